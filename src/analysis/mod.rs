@@ -1,0 +1,4 @@
+//! The numerical core of each command: plain inputs in, result structs out.
+//! Nothing here reads files or prints; the `cli` layer does that.
+
+pub mod km;

@@ -1,0 +1,305 @@
+//! `kimech km`: Michaelis–Menten fits of substrate series.
+
+use std::collections::HashMap;
+
+use serde::Serialize;
+
+use super::{CAUTION, OutputArgs, finish, parse_confidence, parse_flag_concentration};
+use crate::analysis::km::{Enzyme, KmResult, Options, Series, Units, analyse};
+use crate::error::{Error, Result};
+use crate::fit::{FitSettings, Weighting};
+use crate::io::output::{csv_bytes, json_bytes, new_grid, sig};
+use crate::io::{ColumnSpec, Format, Table, write_output};
+use crate::report::Param;
+use crate::units::{ConcUnit, ConcentrationArg};
+
+const SUBSTRATE: ColumnSpec = ColumnSpec::new("substrate", &["s", "substrate_concentration", "conc", "concentration"]);
+const RATE: ColumnSpec = ColumnSpec::new("rate", &["v", "v0", "velocity", "initial_rate"]);
+const SERIES: ColumnSpec = ColumnSpec::new("series", &["group", "condition", "state"]);
+const SD: ColumnSpec = ColumnSpec::new("sd", &["rate_sd", "stdev", "std"]);
+
+/// Fit Michaelis–Menten to initial rates: Vmax, Km (with profile-likelihood
+/// intervals), kcat and kcat/Km when the enzyme concentration is given.
+#[derive(Debug, Clone, clap::Args)]
+pub struct Args {
+    /// CSV with columns substrate, rate and optionally series and sd; `-` reads stdin.
+    pub file: String,
+    /// Unit of substrate values that carry none in the cell or header.
+    #[arg(long, value_name = "UNIT")]
+    pub substrate_unit: Option<ConcUnit>,
+    /// Total active enzyme concentration, e.g. "10 nM": adds kcat and kcat/Km.
+    #[arg(long, value_name = "CONC", value_parser = parse_flag_concentration)]
+    pub enzyme: Option<ConcentrationArg>,
+    /// Residual weighting: none, relative (1/rate²) or sd (1/sd² from the sd column).
+    #[arg(long, value_enum, default_value_t = WeightingArg::None)]
+    pub weighting: WeightingArg,
+    /// Confidence level of the intervals.
+    #[arg(long, default_value_t = 0.95, value_parser = parse_confidence)]
+    pub confidence: f64,
+    /// Output format and destination.
+    #[command(flatten)]
+    pub output: OutputArgs,
+}
+
+/// `--weighting` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum WeightingArg {
+    /// Ordinary least squares.
+    None,
+    /// 1/rate²: constant relative error.
+    Relative,
+    /// 1/sd² from the sd column.
+    Sd,
+}
+
+impl From<WeightingArg> for Weighting {
+    fn from(w: WeightingArg) -> Self {
+        match w {
+            WeightingArg::None => Weighting::None,
+            WeightingArg::Relative => Weighting::Relative,
+            WeightingArg::Sd => Weighting::Sd,
+        }
+    }
+}
+
+/// The JSON document: `{"results": [...]}`.
+#[derive(Debug, Serialize)]
+pub struct Report {
+    /// One result per series, in input order.
+    pub results: Vec<KmResult>,
+}
+
+/// Runs `kimech km`.
+pub fn run(args: &Args) -> Result<()> {
+    let table = Table::read(&args.file)?;
+    let (series, units) = read_series(&table, args)?;
+    let options = Options {
+        weighting: args.weighting.into(),
+        confidence: args.confidence,
+        enzyme: args.enzyme.map(|e| Enzyme { molar: e.molar, unit: e.unit }),
+        settings: FitSettings::default(),
+    };
+    let total = series.len();
+    let (results, failures) = analyse_all(&series, &units, &options);
+    let bytes = render(&results, args.output.format)?;
+    write_output(args.output.output.as_deref(), &bytes, &[&args.file])?;
+    finish(&failures, total, "series")
+}
+
+/// Fits every series; failures are collected, not fatal.
+pub fn analyse_all(series: &[Series], units: &Units, options: &Options) -> (Vec<KmResult>, Vec<Error>) {
+    let mut results = Vec::new();
+    let mut failures = Vec::new();
+    for s in series {
+        match analyse(s, units, options) {
+            Ok(r) => results.push(r),
+            Err(e) => failures.push(e),
+        }
+    }
+    (results, failures)
+}
+
+/// Reads the table into series, converting substrate to one unit.
+pub fn read_series(table: &Table, args: &Args) -> Result<(Vec<Series>, Units)> {
+    let s_col = table.require(&SUBSTRATE)?;
+    let v_col = table.require(&RATE)?;
+    let series_col = table.find(&SERIES);
+    let sd_col = table.find(&SD);
+    if args.weighting == WeightingArg::Sd && sd_col.is_none() {
+        return Err(table.require(&SD).unwrap_err());
+    }
+    let unit = table.column_unit(s_col, args.substrate_unit)?;
+    let mut groups: Vec<(Option<String>, Vec<&crate::io::input::Record>)> = Vec::new();
+    let mut index: HashMap<Option<String>, usize> = HashMap::new();
+    for row in &table.rows {
+        let label = series_col.map(|c| table.text(row, c).to_string());
+        let k = *index.entry(label.clone()).or_insert_with(|| {
+            groups.push((label, Vec::new()));
+            groups.len() - 1
+        });
+        groups[k].1.push(row);
+    }
+    let mut series = Vec::new();
+    for (label, rows) in groups {
+        let mut s = Series {
+            label,
+            origin: origin(&rows),
+            substrate: Vec::new(),
+            rate: Vec::new(),
+            sd: sd_col.map(|_| Vec::new()),
+        };
+        for row in rows {
+            let c = table.concentration(row, s_col, args.substrate_unit, "--substrate-unit")?;
+            if c.qualifier.is_bound() {
+                return Err(table.cell_error(
+                    row,
+                    s_col,
+                    "a qualified substrate concentration",
+                    "give the concentration used, without < or >",
+                ));
+            }
+            if c.molar <= 0.0 {
+                return Err(table.cell_error(
+                    row,
+                    s_col,
+                    "substrate concentration must be positive",
+                    "Michaelis–Menten fits use S > 0; remove blank (S = 0) rows after subtracting the blank from the rates",
+                ));
+            }
+            let reporting = unit.unwrap_or(c.unit);
+            s.substrate.push(reporting.from_molar(c.molar));
+            s.rate.push(table.number(row, v_col)?);
+            if let (Some(col), Some(sd)) = (sd_col, s.sd.as_mut()) {
+                sd.push(table.optional_number(row, col)?.unwrap_or(f64::NAN));
+            }
+        }
+        series.push(s);
+    }
+    let units =
+        Units { substrate: unit.map(|u| u.symbol().to_string()), rate: table.unit_text(v_col).map(str::to_string) };
+    Ok((series, units))
+}
+
+fn origin(rows: &[&crate::io::input::Record]) -> String {
+    match (rows.first(), rows.last()) {
+        (Some(a), Some(b)) if a.line == b.line => format!("line {}", a.line),
+        (Some(a), Some(b)) => format!("lines {}-{}", a.line, b.line),
+        _ => "no rows".into(),
+    }
+}
+
+/// Serialises results in the chosen format.
+pub fn render(results: &[KmResult], format: Format) -> Result<Vec<u8>> {
+    match format {
+        Format::Json => json_bytes(&Report { results: results.to_vec() }),
+        Format::Csv => csv_bytes(&results.iter().map(CsvRow::from).collect::<Vec<_>>()),
+        Format::Table => Ok(human(results).into_bytes()),
+    }
+}
+
+/// One flattened CSV row per series.
+#[derive(Debug, Serialize)]
+struct CsvRow {
+    series: String,
+    n: usize,
+    df: usize,
+    vmax: f64,
+    vmax_se: Option<f64>,
+    vmax_low: Option<f64>,
+    vmax_high: Option<f64>,
+    vmax_unit: String,
+    km: f64,
+    km_se: Option<f64>,
+    km_low: Option<f64>,
+    km_high: Option<f64>,
+    km_unit: String,
+    kcat: Option<f64>,
+    kcat_unit: Option<String>,
+    kcat_km: Option<f64>,
+    kcat_km_unit: Option<String>,
+    sse: f64,
+    residual_sd: f64,
+    r2: f64,
+    runs_p: Option<f64>,
+    converged: bool,
+    warnings: String,
+}
+
+impl From<&KmResult> for CsvRow {
+    fn from(r: &KmResult) -> Self {
+        let p = &r.params;
+        CsvRow {
+            series: crate::io::neutralise_formula(r.series.as_deref().unwrap_or("")),
+            n: r.n,
+            df: r.df,
+            vmax: p.vmax.value,
+            vmax_se: p.vmax.se,
+            vmax_low: p.vmax.low,
+            vmax_high: p.vmax.high,
+            vmax_unit: p.vmax.unit.clone().unwrap_or_default(),
+            km: p.km.value,
+            km_se: p.km.se,
+            km_low: p.km.low,
+            km_high: p.km.high,
+            km_unit: p.km.unit.clone().unwrap_or_default(),
+            kcat: p.kcat.as_ref().map(|k| k.value),
+            kcat_unit: p.kcat.as_ref().and_then(|k| k.unit.clone()),
+            kcat_km: p.kcat_km.as_ref().map(|k| k.value),
+            kcat_km_unit: p.kcat_km.as_ref().and_then(|k| k.unit.clone()),
+            sse: r.sse,
+            residual_sd: r.residual_sd,
+            r2: r.r2,
+            runs_p: r.runs_p,
+            converged: r.converged,
+            warnings: r.warnings.iter().map(|w| w.code).collect::<Vec<_>>().join(";"),
+        }
+    }
+}
+
+fn param_row(name: &str, p: &Param) -> Vec<String> {
+    let end = |v: Option<f64>| v.map_or("unbounded".to_string(), |v| sig(v, 5));
+    vec![
+        name.to_string(),
+        sig(p.value, 6),
+        p.se.map_or("—".into(), |s| sig(s, 3)),
+        end(p.low),
+        end(p.high),
+        p.unit.clone().unwrap_or_default(),
+    ]
+}
+
+/// The human-readable report.
+pub fn human(results: &[KmResult]) -> String {
+    let mut out = String::new();
+    for r in results {
+        let title = r
+            .series
+            .as_deref()
+            .map_or("Michaelis–Menten fit".to_string(), |s| format!("Michaelis–Menten fit — series {s}"));
+        out.push_str(&format!("{title}\n"));
+        let level = r.confidence * 100.0;
+        let mut grid = new_grid(
+            ["parameter", "estimate", "SE", &format!("{level:.0}% low"), &format!("{level:.0}% high"), "unit"]
+                .map(String::from)
+                .to_vec(),
+        );
+        grid.add_row(param_row("Vmax", &r.params.vmax));
+        grid.add_row(param_row("Km", &r.params.km));
+        if let Some(k) = &r.params.kcat {
+            grid.add_row(param_row("kcat", k));
+        }
+        if let Some(k) = &r.params.kcat_km {
+            grid.add_row(param_row("kcat/Km", k));
+        }
+        out.push_str(&format!("{grid}\n"));
+        out.push_str(&format!(
+            "n = {}, df = {}, SSE = {}, residual SD = {}, R² = {}, runs-test p = {}, {}; intervals: {} likelihood, weighting: {:?}\n",
+            r.n,
+            r.df,
+            sig(r.sse, 5),
+            sig(r.residual_sd, 4),
+            sig(r.r2, 4),
+            r.runs_p.map_or("—".into(), |p| sig(p, 2)),
+            if r.converged { "converged" } else { "NOT converged" },
+            r.params.km.interval,
+            r.weighting,
+        ));
+        let dr = &r.double_reciprocal;
+        out.push_str(&format!(
+            "double-reciprocal line from the fit: slope Km/Vmax = {}, 1/v intercept = {}, 1/S intercept = {}\n",
+            sig(dr.slope, 5),
+            sig(dr.y_intercept, 5),
+            sig(dr.x_intercept, 5)
+        ));
+        for note in [&r.params.vmax.note, &r.params.km.note].into_iter().flatten() {
+            out.push_str(&format!("note: {note}\n"));
+        }
+        for w in &r.warnings {
+            out.push_str(&format!("warning [{}]: {}\n", w.code, w.message));
+        }
+        out.push('\n');
+    }
+    out.push_str(CAUTION);
+    out.push('\n');
+    out
+}

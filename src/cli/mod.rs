@@ -1,0 +1,85 @@
+//! The command line: one file per subcommand, each with its own `Args` and
+//! `run`. This module only lists them and holds the options they share.
+
+use std::ffi::OsString;
+use std::path::PathBuf;
+
+use clap::{Parser, Subcommand};
+
+use crate::error::{Error, Result};
+use crate::io::Format;
+
+pub mod demo;
+pub mod km;
+
+/// Enzyme-inhibitor potency and mechanism analysis.
+///
+/// Results are research estimates whose validity rests on the stated
+/// assumptions; follow your laboratory's validated procedures for decisions.
+#[derive(Debug, Parser)]
+#[command(name = "kimech", version, about, long_about = None)]
+pub struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+enum Command {
+    /// Fit Michaelis–Menten to substrate series: Vmax, Km, kcat.
+    Km(km::Args),
+    /// Run the whole chain on the bundled invented demo scenario.
+    Demo(demo::Args),
+}
+
+/// Parses `args` and runs the chosen subcommand.
+pub fn run(args: impl IntoIterator<Item = impl Into<OsString> + Clone>) -> Result<()> {
+    let cli = match Cli::try_parse_from(args) {
+        Ok(cli) => cli,
+        Err(e) => {
+            // Help and version are not errors; usage mistakes are.
+            if e.use_stderr() {
+                return Err(Error::Usage(e.render().to_string().trim_end().to_string()));
+            }
+            let _ = e.print();
+            return Ok(());
+        }
+    };
+    match cli.command {
+        Command::Km(args) => km::run(&args),
+        Command::Demo(args) => demo::run(&args),
+    }
+}
+
+/// Output options every command shares.
+#[derive(Debug, Clone, clap::Args)]
+pub struct OutputArgs {
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = Format::Table)]
+    pub format: Format,
+    /// Write to this file instead of stdout (written atomically; never over an input).
+    #[arg(short = 'o', long = "output", value_name = "FILE")]
+    pub output: Option<PathBuf>,
+}
+
+/// Parses a confidence level strictly between 0 and 1.
+pub fn parse_confidence(text: &str) -> std::result::Result<f64, String> {
+    let c: f64 = text.parse().map_err(|_| format!("'{text}' is not a number; use e.g. 0.95"))?;
+    if c > 0.0 && c < 1.0 { Ok(c) } else { Err(format!("{c} is not between 0 and 1; use e.g. 0.95")) }
+}
+
+/// Parses a concentration with its unit, such as `10 nM`, for a flag.
+pub fn parse_flag_concentration(text: &str) -> std::result::Result<crate::units::ConcentrationArg, String> {
+    crate::units::ConcentrationArg::parse(text)
+}
+
+/// Reports per-group failures on stderr and turns them into the exit status.
+pub fn finish(failures: &[Error], total: usize, what: &'static str) -> Result<()> {
+    for f in failures {
+        eprintln!("kimech: {f}");
+    }
+    if failures.is_empty() { Ok(()) } else { Err(Error::Partial { failed: failures.len(), total, what }) }
+}
+
+/// The sentence every human-readable report ends with.
+pub const CAUTION: &str = "These are research estimates whose validity rests on the stated assumptions \
+(model, weighting, mechanism); follow your laboratory's validated procedures before acting on them.";

@@ -1,0 +1,346 @@
+//! Levenberg–Marquardt from several starts, and the covariance at the optimum.
+
+use levenberg_marquardt::{LeastSquaresProblem, LevenbergMarquardt, TerminationReason};
+use nalgebra::{DMatrix, DVector, Dyn, Owned};
+
+use super::{Data, Model};
+
+/// Residuals larger than this stand in for non-finite ones, so that a trial
+/// step into overflow is rejected by the minimiser instead of aborting it.
+const HUGE_RESIDUAL: f64 = 1e100;
+
+/// Internal coordinates are clamped here: `exp(±700)` is still finite.
+const INTERNAL_LIMIT: f64 = 700.0;
+
+/// Why the minimiser stopped, in our own words.
+#[derive(Debug, Clone, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Termination {
+    /// The relative change in SSE or in the parameters fell below tolerance.
+    Converged,
+    /// The residuals are orthogonal to the Jacobian's columns: a stationary point.
+    Stationary,
+    /// The model passes through every observation.
+    ExactFit,
+    /// The tolerance is below what floating point can resolve; the point is as good as it gets.
+    AtPrecisionLimit,
+    /// The evaluation budget ran out first.
+    EvaluationLimit,
+    /// Residuals or Jacobian became non-finite.
+    NumericalFailure,
+    /// Nothing to fit (no free parameters or no data).
+    NothingToFit,
+}
+
+impl Termination {
+    fn from_lm(reason: &TerminationReason) -> Self {
+        match reason {
+            TerminationReason::Converged { .. } => Termination::Converged,
+            TerminationReason::Orthogonal => Termination::Stationary,
+            TerminationReason::ResidualsZero => Termination::ExactFit,
+            TerminationReason::NoImprovementPossible(_) => Termination::AtPrecisionLimit,
+            TerminationReason::LostPatience => Termination::EvaluationLimit,
+            TerminationReason::NoParameters | TerminationReason::NoResiduals => Termination::NothingToFit,
+            TerminationReason::User(_) | TerminationReason::Numerical(_) | TerminationReason::WrongDimensions(_) => {
+                Termination::NumericalFailure
+            }
+        }
+    }
+
+    /// Whether the stopping point is a trustworthy minimum.
+    pub fn is_converged(&self) -> bool {
+        matches!(
+            self,
+            Termination::Converged | Termination::Stationary | Termination::ExactFit | Termination::AtPrecisionLimit
+        )
+    }
+}
+
+/// Minimiser settings. Tolerances are relative, as in MINPACK.
+#[derive(Debug, Clone, Copy)]
+pub struct FitSettings {
+    /// Relative reduction in SSE below which the fit stops.
+    pub ftol: f64,
+    /// Relative change in the parameters below which the fit stops.
+    pub xtol: f64,
+    /// Cosine between residuals and Jacobian columns below which the fit stops.
+    pub gtol: f64,
+    /// Evaluation budget, in multiples of (free parameters + 1).
+    pub patience: usize,
+}
+
+impl Default for FitSettings {
+    /// Tight enough to reproduce NIST certified values to their last digits.
+    fn default() -> Self {
+        FitSettings { ftol: 1e-15, xtol: 1e-15, gtol: 1e-15, patience: 400 }
+    }
+}
+
+/// The outcome of a least-squares fit: estimates, their uncertainty and the
+/// quality of the fit. Inputs are not modified; this is a separate record.
+#[derive(Debug, Clone)]
+pub struct Fit {
+    /// Parameter names, in model order.
+    pub names: Vec<&'static str>,
+    /// Estimates on the natural scale.
+    pub theta: Vec<f64>,
+    /// Which parameters were held fixed (not estimated).
+    pub fixed: Vec<bool>,
+    /// Standard errors on the natural scale, from s²(JᵀWJ)⁻¹ (covariance
+    /// scaled by the residual variance); `None` where not determined.
+    pub se: Vec<Option<f64>>,
+    /// Covariance of the free parameters on the natural scale, scaled by s².
+    pub covariance: Option<DMatrix<f64>>,
+    /// Number of observations.
+    pub n: usize,
+    /// Number of estimated parameters.
+    pub n_free: usize,
+    /// Residual degrees of freedom, n − free parameters.
+    pub df: usize,
+    /// Weighted sum of squared residuals.
+    pub sse: f64,
+    /// Residual standard deviation √(SSE/df); `NaN` when df = 0.
+    pub residual_sd: f64,
+    /// Weighted coefficient of determination, 1 − SSE/SST about the weighted mean.
+    pub r2: f64,
+    /// Unweighted residuals, observed − predicted, in data order.
+    pub residuals: Vec<f64>,
+    /// Why the best run stopped.
+    pub termination: Termination,
+    /// Residual evaluations spent over all starts.
+    pub evaluations: usize,
+}
+
+impl Fit {
+    /// Whether the minimiser stopped at a trustworthy minimum.
+    pub fn converged(&self) -> bool {
+        self.termination.is_converged()
+    }
+
+    /// Index of a parameter by name.
+    pub fn index(&self, name: &str) -> Option<usize> {
+        self.names.iter().position(|n| *n == name)
+    }
+}
+
+/// The problem as the minimiser sees it: only the free parameters, in
+/// internal (possibly logarithmic) coordinates.
+struct Problem<'a, M: Model> {
+    model: &'a M,
+    data: &'a Data<M::Point>,
+    sqrt_w: Vec<f64>,
+    free: Vec<usize>,
+    theta: Vec<f64>,
+    internal: DVector<f64>,
+}
+
+impl<'a, M: Model> Problem<'a, M> {
+    fn new(model: &'a M, data: &'a Data<M::Point>, start: &[f64], fixed: &[Option<f64>]) -> Self {
+        let scales = model.scales();
+        let mut theta = start.to_vec();
+        for (t, f) in theta.iter_mut().zip(fixed) {
+            if let Some(v) = f {
+                *t = *v;
+            }
+        }
+        let free: Vec<usize> = (0..theta.len()).filter(|&j| fixed.get(j).is_none_or(|f| f.is_none())).collect();
+        let internal = DVector::from_iterator(free.len(), free.iter().map(|&j| scales[j].to_internal(theta[j])));
+        let sqrt_w = data.weights.iter().map(|w| w.sqrt()).collect();
+        Problem { model, data, sqrt_w, free, theta, internal }
+    }
+}
+
+impl<M: Model> LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_, M> {
+    type ResidualStorage = Owned<f64, Dyn>;
+    type JacobianStorage = Owned<f64, Dyn, Dyn>;
+    type ParameterStorage = Owned<f64, Dyn>;
+
+    fn set_params(&mut self, x: &DVector<f64>) {
+        let scales = self.model.scales();
+        for (k, &j) in self.free.iter().enumerate() {
+            let clamped = x[k].clamp(-INTERNAL_LIMIT, INTERNAL_LIMIT);
+            self.internal[k] = clamped;
+            self.theta[j] = scales[j].to_natural(clamped);
+        }
+    }
+
+    fn params(&self) -> DVector<f64> {
+        self.internal.clone()
+    }
+
+    fn residuals(&self) -> Option<DVector<f64>> {
+        let r = self.data.x.iter().zip(&self.data.y).zip(&self.sqrt_w).map(|((x, y), sw)| {
+            let r = sw * (y - self.model.value(&self.theta, x));
+            if r.is_finite() { r } else { HUGE_RESIDUAL }
+        });
+        Some(DVector::from_iterator(self.data.len(), r))
+    }
+
+    fn jacobian(&self) -> Option<DMatrix<f64>> {
+        let scales = self.model.scales();
+        let mut grad = vec![0.0; self.theta.len()];
+        let mut jac = DMatrix::zeros(self.data.len(), self.free.len());
+        for (i, (x, sw)) in self.data.x.iter().zip(&self.sqrt_w).enumerate() {
+            self.model.gradient(&self.theta, x, &mut grad);
+            for (k, &j) in self.free.iter().enumerate() {
+                let d = -sw * grad[j] * scales[j].derivative(self.theta[j]);
+                jac[(i, k)] = if d.is_finite() { d } else { 0.0 };
+            }
+        }
+        Some(jac)
+    }
+}
+
+/// Fits `model` to `data` from every start the model proposes, keeping the
+/// lowest SSE. `fixed[j] = Some(v)` holds parameter j at v.
+pub fn fit<M: Model>(model: &M, data: &Data<M::Point>, fixed: &[Option<f64>], settings: &FitSettings) -> Fit {
+    let starts = model.starts(data);
+    fit_from(model, data, &starts, fixed, settings)
+}
+
+/// Like [`fit`] but from the given starts (natural scale).
+pub fn fit_from<M: Model>(
+    model: &M,
+    data: &Data<M::Point>,
+    starts: &[Vec<f64>],
+    fixed: &[Option<f64>],
+    settings: &FitSettings,
+) -> Fit {
+    let lm = LevenbergMarquardt::new()
+        .with_ftol(settings.ftol)
+        .with_xtol(settings.xtol)
+        .with_gtol(settings.gtol)
+        .with_patience(settings.patience);
+    let mut best: Option<(Vec<f64>, f64, Termination)> = None;
+    let mut evaluations = 0;
+    for start in starts {
+        let (problem, report) = lm.minimize(Problem::new(model, data, start, fixed));
+        evaluations += report.number_of_evaluations;
+        let termination = Termination::from_lm(&report.termination);
+        let sse = weighted_sse(model, data, &problem.theta);
+        let better = match &best {
+            None => true,
+            Some((_, best_sse, best_term)) => {
+                sse < *best_sse || (sse <= *best_sse && termination.is_converged() && !best_term.is_converged())
+            }
+        };
+        if better {
+            best = Some((problem.theta, sse, termination));
+        }
+    }
+    let (theta, sse, termination) = match best {
+        Some(b) => b,
+        None => {
+            let theta = fixed.iter().map(|f| f.unwrap_or(f64::NAN)).collect();
+            (theta, f64::NAN, Termination::NothingToFit)
+        }
+    };
+    summarise(model, data, theta, sse, termination, fixed, evaluations)
+}
+
+fn weighted_sse<M: Model>(model: &M, data: &Data<M::Point>, theta: &[f64]) -> f64 {
+    data.x
+        .iter()
+        .zip(&data.y)
+        .zip(&data.weights)
+        .map(|((x, y), w)| {
+            let r = y - model.value(theta, x);
+            w * r * r
+        })
+        .sum()
+}
+
+fn summarise<M: Model>(
+    model: &M,
+    data: &Data<M::Point>,
+    theta: Vec<f64>,
+    sse: f64,
+    termination: Termination,
+    fixed: &[Option<f64>],
+    evaluations: usize,
+) -> Fit {
+    let p = theta.len();
+    let fixed_mask: Vec<bool> = (0..p).map(|j| fixed.get(j).is_some_and(|f| f.is_some())).collect();
+    let free: Vec<usize> = (0..p).filter(|&j| !fixed_mask[j]).collect();
+    let n = data.len();
+    let df = n.saturating_sub(free.len());
+    let residual_sd = if df > 0 { (sse / df as f64).sqrt() } else { f64::NAN };
+    let residuals = data.x.iter().zip(&data.y).map(|(x, y)| y - model.value(&theta, x)).collect();
+    let covariance = covariance(model, data, &theta, &free, sse, df);
+    let mut se = vec![None; p];
+    if let Some(cov) = &covariance {
+        for (k, &j) in free.iter().enumerate() {
+            let v = cov[(k, k)];
+            se[j] = (v.is_finite() && v >= 0.0).then(|| v.sqrt());
+        }
+    }
+    Fit {
+        names: model.names().to_vec(),
+        theta,
+        fixed: fixed_mask,
+        se,
+        covariance,
+        n,
+        n_free: free.len(),
+        df,
+        sse,
+        residual_sd,
+        r2: r_squared(data, sse),
+        residuals,
+        termination,
+        evaluations,
+    }
+}
+
+/// s²(JᵀWJ)⁻¹ with J taken on the natural scale, so the standard errors are
+/// those of the parameters as reported (the NIST convention).
+fn covariance<M: Model>(
+    model: &M,
+    data: &Data<M::Point>,
+    theta: &[f64],
+    free: &[usize],
+    sse: f64,
+    df: usize,
+) -> Option<DMatrix<f64>> {
+    if df == 0 || free.is_empty() || !sse.is_finite() {
+        return None;
+    }
+    let mut grad = vec![0.0; theta.len()];
+    let mut jac = DMatrix::zeros(data.len(), free.len());
+    for (i, (x, w)) in data.x.iter().zip(&data.weights).enumerate() {
+        model.gradient(theta, x, &mut grad);
+        for (k, &j) in free.iter().enumerate() {
+            jac[(i, k)] = w.sqrt() * grad[j];
+        }
+    }
+    let information = jac.transpose() * &jac;
+    let inverse = invert_information(information)?;
+    let s2 = sse / df as f64;
+    let cov = inverse * s2;
+    cov.iter().all(|v| v.is_finite()).then_some(cov)
+}
+
+/// Inverts JᵀWJ after scaling it to unit diagonal, so that parameters of very
+/// different magnitude (Vmax ~ 1e2, Km ~ 1e-6 M) do not fool the Cholesky test.
+fn invert_information(information: DMatrix<f64>) -> Option<DMatrix<f64>> {
+    let d: Vec<f64> = information.diagonal().iter().map(|v| v.sqrt()).collect();
+    if d.iter().any(|v| !(v.is_finite() && *v > 0.0)) {
+        return None;
+    }
+    let p = d.len();
+    let scaled = DMatrix::from_fn(p, p, |i, j| information[(i, j)] / (d[i] * d[j]));
+    let inverse = scaled.cholesky()?.inverse();
+    // Reject near-singular information: conditioning beyond ~1e14 leaves no digits.
+    let condition = inverse.diagonal().iter().cloned().fold(0.0, f64::max);
+    if !(condition.is_finite() && condition < 1e14) {
+        return None;
+    }
+    Some(DMatrix::from_fn(p, p, |i, j| inverse[(i, j)] / (d[i] * d[j])))
+}
+
+fn r_squared<P>(data: &Data<P>, sse: f64) -> f64 {
+    let wsum: f64 = data.weights.iter().sum();
+    let mean = data.y.iter().zip(&data.weights).map(|(y, w)| w * y).sum::<f64>() / wsum;
+    let sst: f64 = data.y.iter().zip(&data.weights).map(|(y, w)| w * (y - mean) * (y - mean)).sum();
+    if sst > 0.0 { 1.0 - sse / sst } else { f64::NAN }
+}

@@ -1,0 +1,310 @@
+//! The one reader every command uses: a CSV (or TSV, by extension) from a
+//! path or `-` for stdin, header names matched case-insensitively with
+//! aliases, units taken from the header (`ic50 (nM)`, `substrate [uM]`), and
+//! cell accessors whose errors name file, line, column and value.
+
+use std::io::Read;
+
+use crate::error::{CellError, Error, Result};
+use crate::units::{ACCEPTED_UNITS, CellProblem, ConcUnit, Qualifier, parse_written};
+
+/// A column a command looks for: its name and other accepted spellings.
+#[derive(Debug, Clone, Copy)]
+pub struct ColumnSpec {
+    /// The canonical name (as documented).
+    pub name: &'static str,
+    /// Other accepted names (lower case).
+    pub aliases: &'static [&'static str],
+}
+
+impl ColumnSpec {
+    /// A column spec.
+    pub const fn new(name: &'static str, aliases: &'static [&'static str]) -> Self {
+        ColumnSpec { name, aliases }
+    }
+
+    fn matches(&self, key: &str) -> bool {
+        key == self.name || self.aliases.contains(&key)
+    }
+}
+
+/// One header cell, split into its name and the unit written with it.
+#[derive(Debug, Clone)]
+pub struct Column {
+    /// As written in the file.
+    pub header: String,
+    /// Lower-cased name without the unit, spaces and dashes as `_`.
+    pub key: String,
+    /// The text inside `(…)` or `[…]` after the name, if any.
+    pub unit_text: Option<String>,
+}
+
+impl Column {
+    fn parse(header: &str) -> Column {
+        let h = header.trim().trim_start_matches('\u{feff}');
+        let (name, unit_text) = match h.find(['(', '[']) {
+            Some(open) if h.ends_with(')') || h.ends_with(']') => {
+                (h[..open].trim(), Some(h[open + 1..h.len() - 1].trim().to_string()))
+            }
+            _ => (h, None),
+        };
+        let key = name.to_lowercase().split([' ', '-', '_']).filter(|p| !p.is_empty()).collect::<Vec<_>>().join("_");
+        Column { header: h.to_string(), key, unit_text }
+    }
+}
+
+/// One data row and the line it came from.
+#[derive(Debug, Clone)]
+pub struct Record {
+    /// 1-based line number in the file.
+    pub line: u64,
+    /// Cells, trimmed, one per column.
+    pub cells: Vec<String>,
+}
+
+/// A whole table in memory.
+#[derive(Debug, Clone)]
+pub struct Table {
+    /// The file as named by the user, or `<stdin>`.
+    pub source: String,
+    /// Header cells.
+    pub columns: Vec<Column>,
+    /// Data rows in file order.
+    pub rows: Vec<Record>,
+}
+
+/// A concentration read from a cell, already in mol/L.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Concentration {
+    /// `>`, `<`, … or exact.
+    pub qualifier: Qualifier,
+    /// The value in mol/L.
+    pub molar: f64,
+    /// The unit it was written in (cell, header or default).
+    pub unit: ConcUnit,
+}
+
+impl Table {
+    /// Reads `path` (`-` for stdin). Lines starting with `#` are comments.
+    pub fn read(path: &str) -> Result<Table> {
+        let source = if path == "-" { "<stdin>".to_string() } else { path.to_string() };
+        let mut bytes = Vec::new();
+        let read = if path == "-" {
+            std::io::stdin().read_to_end(&mut bytes)
+        } else {
+            std::fs::File::open(path).and_then(|mut f| f.read_to_end(&mut bytes))
+        };
+        read.map_err(|source_err| Error::Read { path: source.clone(), source: source_err })?;
+        let delimiter = if path.ends_with(".tsv") || path.ends_with(".tab") { b'\t' } else { b',' };
+        Table::parse(&source, &bytes, delimiter)
+    }
+
+    /// Parses CSV bytes; `source` names them in errors.
+    pub fn parse(source: &str, bytes: &[u8], delimiter: u8) -> Result<Table> {
+        let mut reader = csv::ReaderBuilder::new()
+            .delimiter(delimiter)
+            .comment(Some(b'#'))
+            .trim(csv::Trim::All)
+            .has_headers(true)
+            .flexible(false)
+            .from_reader(bytes);
+        let csv_error = |e: csv::Error| Error::Csv {
+            path: source.to_string(),
+            line: e.position().map_or(0, |p| p.line()),
+            message: describe_csv_error(&e),
+        };
+        let headers = reader.headers().map_err(csv_error)?.clone();
+        let columns: Vec<Column> = headers.iter().map(Column::parse).collect();
+        if columns.iter().all(|c| c.key.is_empty()) {
+            return Err(Error::Empty { path: source.to_string() });
+        }
+        let mut rows = Vec::new();
+        let mut record = csv::StringRecord::new();
+        loop {
+            match reader.read_record(&mut record) {
+                Ok(false) => break,
+                Ok(true) => {
+                    if record.iter().all(|c| c.is_empty()) {
+                        continue;
+                    }
+                    let line = record.position().map_or(0, |p| p.line());
+                    rows.push(Record { line, cells: record.iter().map(str::to_string).collect() });
+                }
+                Err(e) => return Err(csv_error(e)),
+            }
+        }
+        if rows.is_empty() {
+            return Err(Error::Empty { path: source.to_string() });
+        }
+        Ok(Table { source: source.to_string(), columns, rows })
+    }
+
+    /// Index of the column matching `spec`, if present.
+    pub fn find(&self, spec: &ColumnSpec) -> Option<usize> {
+        self.columns.iter().position(|c| spec.matches(&c.key))
+    }
+
+    /// Index of the column matching `spec`, or an error listing what is there.
+    pub fn require(&self, spec: &ColumnSpec) -> Result<usize> {
+        self.find(spec).ok_or_else(|| Error::MissingColumn {
+            path: self.source.clone(),
+            column: spec.name.to_string(),
+            aliases: if spec.aliases.is_empty() { "none".into() } else { spec.aliases.join(", ") },
+            found: self.columns.iter().map(|c| c.header.as_str()).collect::<Vec<_>>().join(", "),
+        })
+    }
+
+    /// The raw text of a cell.
+    pub fn text<'a>(&self, row: &'a Record, col: usize) -> &'a str {
+        row.cells.get(col).map_or("", String::as_str)
+    }
+
+    /// A cell error at `row`, `col`.
+    pub fn cell_error(
+        &self,
+        row: &Record,
+        col: usize,
+        problem: impl Into<String>,
+        expected: impl Into<String>,
+    ) -> Error {
+        Error::Cell(Box::new(CellError {
+            path: self.source.clone(),
+            line: row.line,
+            column: self.columns[col].header.clone(),
+            value: self.text(row, col).to_string(),
+            problem: problem.into(),
+            expected: expected.into(),
+        }))
+    }
+
+    /// A plain finite number (no qualifier, no unit).
+    pub fn number(&self, row: &Record, col: usize) -> Result<f64> {
+        let expected = "expected a plain number such as 12.5 or 1.2e-3";
+        match parse_written(self.text(row, col)) {
+            Ok(w) if w.qualifier == Qualifier::Equal && w.unit.is_none() => Ok(w.value),
+            Ok(w) if w.unit.is_some() => Err(self.cell_error(row, col, "a unit is not expected here", expected)),
+            Ok(_) => Err(self.cell_error(row, col, "a qualifier is not expected here", expected)),
+            Err(p) => Err(self.cell_error(row, col, p.describe(), expected)),
+        }
+    }
+
+    /// A number, or `None` for an empty cell.
+    pub fn optional_number(&self, row: &Record, col: usize) -> Result<Option<f64>> {
+        if self.text(row, col).is_empty() { Ok(None) } else { self.number(row, col).map(Some) }
+    }
+
+    /// The unit declared in a column's header, if it is a concentration unit.
+    pub fn header_unit(&self, col: usize) -> Result<Option<ConcUnit>> {
+        match &self.columns[col].unit_text {
+            None => Ok(None),
+            Some(text) => ConcUnit::parse(text).map(Some).ok_or_else(|| {
+                Error::Cell(Box::new(CellError {
+                    path: self.source.clone(),
+                    line: 1,
+                    column: self.columns[col].header.clone(),
+                    value: text.clone(),
+                    problem: "the unit in the header is not a concentration unit".into(),
+                    expected: format!("use one of {ACCEPTED_UNITS}"),
+                }))
+            }),
+        }
+    }
+
+    /// A concentration with optional qualifier, in mol/L. The unit comes from
+    /// the cell, else the header, else `default` (a command-line flag named
+    /// `flag`); with none of these it is an error naming the column.
+    pub fn concentration(
+        &self,
+        row: &Record,
+        col: usize,
+        default: Option<ConcUnit>,
+        flag: &str,
+    ) -> Result<Concentration> {
+        let expected = format!("expected a concentration such as '150 nM' or '> 10 uM' (units: {ACCEPTED_UNITS})");
+        let written = parse_written(self.text(row, col)).map_err(|p| match p {
+            CellProblem::UnknownUnit(_) => {
+                self.cell_error(row, col, p.describe(), format!("use one of {ACCEPTED_UNITS}"))
+            }
+            _ => self.cell_error(row, col, p.describe(), expected.clone()),
+        })?;
+        let unit = match written.unit {
+            Some(u) => u,
+            None => match self.header_unit(col)?.or(default) {
+                Some(u) => u,
+                None => {
+                    return Err(Error::NoUnit {
+                        path: self.source.clone(),
+                        column: self.columns[col].header.clone(),
+                        flag: flag.to_string(),
+                    });
+                }
+            },
+        };
+        Ok(Concentration { qualifier: written.qualifier, molar: unit.to_molar(written.value), unit })
+    }
+
+    /// The unit a concentration column is expressed in, for reporting: the
+    /// header's, else the flag's, else that of the first cell that has one.
+    pub fn column_unit(&self, col: usize, default: Option<ConcUnit>) -> Result<Option<ConcUnit>> {
+        if let Some(u) = self.header_unit(col)?.or(default) {
+            return Ok(Some(u));
+        }
+        Ok(self.rows.iter().find_map(|r| parse_written(self.text(r, col)).ok().and_then(|w| w.unit)))
+    }
+
+    /// The unit text written in a column's header, verbatim (for rates).
+    pub fn unit_text(&self, col: usize) -> Option<&str> {
+        self.columns[col].unit_text.as_deref()
+    }
+}
+
+fn describe_csv_error(e: &csv::Error) -> String {
+    match e.kind() {
+        csv::ErrorKind::UnequalLengths { expected_len, len, .. } => format!(
+            "this row has {len} fields but the header has {expected_len}; every row needs one cell per header column (quote cells that contain the delimiter)"
+        ),
+        csv::ErrorKind::Utf8 { .. } => "the text is not valid UTF-8; save the file as UTF-8".to_string(),
+        csv::ErrorKind::Io(io) => format!("read error: {io}"),
+        _ => format!("malformed CSV: {e}"),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    fn table(text: &str) -> Table {
+        Table::parse("t.csv", text.as_bytes(), b',').unwrap()
+    }
+
+    #[test]
+    fn splits_units_from_headers_and_matches_case_insensitively() {
+        let t = table("Substrate (uM),Rate [uM/min]\n1,2\n");
+        assert_eq!(t.columns[0].key, "substrate");
+        assert_eq!(t.header_unit(0).unwrap(), Some(ConcUnit::Micromolar));
+        assert_eq!(t.unit_text(1), Some("uM/min"));
+        assert!(t.require(&ColumnSpec::new("substrate", &[])).is_ok());
+    }
+
+    #[test]
+    fn reports_line_numbers_after_comments() {
+        let t = table("# provenance\nx,y\n1,2\n# note\n3,zz\n");
+        assert_eq!(t.rows[0].line, 3);
+        assert_eq!(t.rows[1].line, 5);
+        let e = t.number(&t.rows[1], 1).unwrap_err().to_string();
+        assert!(e.contains("line 5") && e.contains("'y'") && e.contains("zz"), "{e}");
+    }
+
+    #[test]
+    fn concentration_unit_from_cell_header_or_flag() {
+        let t = table("c (nM),d\n150,2 uM\n");
+        let c = t.concentration(&t.rows[0], 0, None, "--x").unwrap();
+        assert_relative_eq!(c.molar, 1.5e-7, max_relative = 1e-15);
+        let d = t.concentration(&t.rows[0], 1, Some(ConcUnit::Molar), "--x").unwrap();
+        assert_relative_eq!(d.molar, 2e-6, max_relative = 1e-15);
+        let t = table("d\n2\n");
+        let e = t.concentration(&t.rows[0], 0, None, "--d-unit").unwrap_err().to_string();
+        assert!(e.contains("--d-unit") && e.contains("'d'"), "{e}");
+    }
+}

@@ -1,0 +1,7 @@
+//! Reading assay tables and writing results. Nothing here computes.
+
+pub mod input;
+pub mod output;
+
+pub use input::{ColumnSpec, Table};
+pub use output::{Format, neutralise_formula, write_output};

@@ -1,0 +1,18 @@
+//! The `kimech` binary: parse the command line, run, map errors to exit codes.
+
+use std::process::ExitCode;
+
+fn main() -> ExitCode {
+    match kimech::cli::run(std::env::args_os()) {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(kimech::Error::Partial { .. }) => ExitCode::from(3),
+        Err(kimech::Error::Usage(message)) => {
+            eprintln!("{message}");
+            ExitCode::from(2)
+        }
+        Err(e) => {
+            eprintln!("kimech: {e}");
+            ExitCode::from(2)
+        }
+    }
+}

@@ -1,0 +1,6 @@
+//! Rate laws and curve models: each knows its parameters, its value, its
+//! analytic Jacobian and how to guess a start from data.
+
+pub mod michaelis_menten;
+
+pub use michaelis_menten::MichaelisMenten;

@@ -1,0 +1,355 @@
+//! Concentrations, their units and qualifiers.
+//!
+//! Internally every concentration is in mol/L (f64); units are applied at the
+//! edges. Accepted spellings: `pM nM uM µM μM mM M`, and `pmol/L nmol/L
+//! umol/L µmol/L mmol/L mol/L` (with `l` or `L`).
+
+use serde::Serialize;
+use std::fmt;
+
+/// A unit of amount concentration.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize)]
+pub enum ConcUnit {
+    /// 1e-12 mol/L.
+    #[serde(rename = "pM")]
+    Picomolar,
+    /// 1e-9 mol/L.
+    #[serde(rename = "nM")]
+    Nanomolar,
+    /// 1e-6 mol/L.
+    #[serde(rename = "uM")]
+    Micromolar,
+    /// 1e-3 mol/L.
+    #[serde(rename = "mM")]
+    Millimolar,
+    /// 1 mol/L.
+    #[serde(rename = "M")]
+    Molar,
+}
+
+/// What the error messages list as accepted.
+pub const ACCEPTED_UNITS: &str = "pM, nM, uM (or µM), mM, M, or pmol/L, nmol/L, umol/L, mmol/L, mol/L";
+
+impl ConcUnit {
+    /// Every unit, smallest first.
+    pub const ALL: [ConcUnit; 5] =
+        [ConcUnit::Picomolar, ConcUnit::Nanomolar, ConcUnit::Micromolar, ConcUnit::Millimolar, ConcUnit::Molar];
+
+    /// Parses a unit symbol; `None` for anything not a concentration unit.
+    pub fn parse(text: &str) -> Option<ConcUnit> {
+        let t = text.trim();
+        let prefix = if let Some(p) = t.strip_suffix("mol/L").or_else(|| t.strip_suffix("mol/l")) {
+            p
+        } else {
+            t.strip_suffix('M')?
+        };
+        match prefix {
+            "p" => Some(ConcUnit::Picomolar),
+            "n" => Some(ConcUnit::Nanomolar),
+            "u" | "µ" | "μ" => Some(ConcUnit::Micromolar),
+            "m" => Some(ConcUnit::Millimolar),
+            "" => Some(ConcUnit::Molar),
+            _ => None,
+        }
+    }
+
+    /// mol/L per one of this unit.
+    pub fn molar_factor(self) -> f64 {
+        match self {
+            ConcUnit::Picomolar => 1e-12,
+            ConcUnit::Nanomolar => 1e-9,
+            ConcUnit::Micromolar => 1e-6,
+            ConcUnit::Millimolar => 1e-3,
+            ConcUnit::Molar => 1.0,
+        }
+    }
+
+    /// A value in this unit, in mol/L.
+    pub fn to_molar(self, value: f64) -> f64 {
+        value * self.molar_factor()
+    }
+
+    /// A value in mol/L, in this unit.
+    pub fn from_molar(self, molar: f64) -> f64 {
+        molar / self.molar_factor()
+    }
+
+    /// The ASCII symbol used in output (`uM`, not `µM`, so exports stay ASCII).
+    pub fn symbol(self) -> &'static str {
+        match self {
+            ConcUnit::Picomolar => "pM",
+            ConcUnit::Nanomolar => "nM",
+            ConcUnit::Micromolar => "uM",
+            ConcUnit::Millimolar => "mM",
+            ConcUnit::Molar => "M",
+        }
+    }
+}
+
+impl fmt::Display for ConcUnit {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.symbol())
+    }
+}
+
+impl std::str::FromStr for ConcUnit {
+    type Err = String;
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        ConcUnit::parse(s).ok_or_else(|| format!("'{s}' is not a concentration unit; use one of {ACCEPTED_UNITS}"))
+    }
+}
+
+/// A qualifier in front of a number: the value is exact, a bound, or approximate.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default, Serialize)]
+pub enum Qualifier {
+    /// Exact (`=` or nothing).
+    #[default]
+    #[serde(rename = "=")]
+    Equal,
+    /// `<`: the true value is below.
+    #[serde(rename = "<")]
+    Less,
+    /// `<=`.
+    #[serde(rename = "<=")]
+    AtMost,
+    /// `>`: the true value is above.
+    #[serde(rename = ">")]
+    Greater,
+    /// `>=`.
+    #[serde(rename = ">=")]
+    AtLeast,
+    /// `~`: approximate; treated as a number but carried to the output.
+    #[serde(rename = "~")]
+    About,
+}
+
+impl Qualifier {
+    /// The symbol as written in tables.
+    pub fn symbol(self) -> &'static str {
+        match self {
+            Qualifier::Equal => "=",
+            Qualifier::Less => "<",
+            Qualifier::AtMost => "<=",
+            Qualifier::Greater => ">",
+            Qualifier::AtLeast => ">=",
+            Qualifier::About => "~",
+        }
+    }
+
+    /// Whether the value is a bound rather than a number.
+    pub fn is_bound(self) -> bool {
+        !matches!(self, Qualifier::Equal | Qualifier::About)
+    }
+
+    /// The qualifier of 1/x or −log x: bounds flip direction.
+    pub fn reversed(self) -> Qualifier {
+        match self {
+            Qualifier::Less => Qualifier::Greater,
+            Qualifier::AtMost => Qualifier::AtLeast,
+            Qualifier::Greater => Qualifier::Less,
+            Qualifier::AtLeast => Qualifier::AtMost,
+            q => q,
+        }
+    }
+
+    /// Splits a leading qualifier off a cell: `"> 10 uM"` → (`>`, `"10 uM"`).
+    pub fn split(text: &str) -> (Qualifier, &str) {
+        let t = text.trim_start();
+        for (sym, q) in [
+            ("<=", Qualifier::AtMost),
+            (">=", Qualifier::AtLeast),
+            ("≤", Qualifier::AtMost),
+            ("≥", Qualifier::AtLeast),
+            ("<", Qualifier::Less),
+            (">", Qualifier::Greater),
+            ("~", Qualifier::About),
+            ("=", Qualifier::Equal),
+        ] {
+            if let Some(rest) = t.strip_prefix(sym) {
+                return (q, rest.trim_start());
+            }
+        }
+        (Qualifier::Equal, t)
+    }
+}
+
+impl fmt::Display for Qualifier {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.symbol())
+    }
+}
+
+/// A number as written in a cell: qualifier, value and the unit written with it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Written {
+    /// `>`, `<`, … or exact.
+    pub qualifier: Qualifier,
+    /// The number as written (in `unit`, if any).
+    pub value: f64,
+    /// The unit written in the cell itself, if any.
+    pub unit: Option<ConcUnit>,
+}
+
+/// Why a cell is not a number (with optional qualifier and unit).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum CellProblem {
+    /// Empty cell.
+    Empty,
+    /// Not a number.
+    NotANumber,
+    /// `NaN` or infinite.
+    NotFinite,
+    /// Text after the number that is not a concentration unit.
+    UnknownUnit(String),
+}
+
+impl CellProblem {
+    /// A short description for error messages.
+    pub fn describe(&self) -> String {
+        match self {
+            CellProblem::Empty => "empty cell".into(),
+            CellProblem::NotANumber => "not a number".into(),
+            CellProblem::NotFinite => "not a finite number".into(),
+            CellProblem::UnknownUnit(u) => format!("unknown unit '{u}'"),
+        }
+    }
+}
+
+/// Parses `[qualifier] number [unit]`, e.g. `"150 nM"`, `">10uM"`, `"1e-3"`.
+pub fn parse_written(cell: &str) -> Result<Written, CellProblem> {
+    let (qualifier, rest) = Qualifier::split(cell);
+    let rest = rest.trim();
+    if rest.is_empty() {
+        return Err(CellProblem::Empty);
+    }
+    let split = number_prefix_len(rest);
+    let (number, unit_text) = rest.split_at(split);
+    let value: f64 = number.parse().map_err(|_| {
+        if rest.eq_ignore_ascii_case("nan") || rest.to_ascii_lowercase().contains("inf") {
+            CellProblem::NotFinite
+        } else {
+            CellProblem::NotANumber
+        }
+    })?;
+    if !value.is_finite() {
+        return Err(CellProblem::NotFinite);
+    }
+    let unit_text = unit_text.trim();
+    let unit = if unit_text.is_empty() {
+        None
+    } else {
+        Some(ConcUnit::parse(unit_text).ok_or_else(|| CellProblem::UnknownUnit(unit_text.to_string()))?)
+    };
+    Ok(Written { qualifier, value, unit })
+}
+
+/// Length of the leading run of characters that can belong to a decimal
+/// number in scientific notation.
+fn number_prefix_len(s: &str) -> usize {
+    let bytes = s.as_bytes();
+    let mut i = 0;
+    let mut seen_digit = false;
+    if i < bytes.len() && (bytes[i] == b'+' || bytes[i] == b'-') {
+        i += 1;
+    }
+    while i < bytes.len() && (bytes[i].is_ascii_digit() || bytes[i] == b'.') {
+        seen_digit |= bytes[i].is_ascii_digit();
+        i += 1;
+    }
+    if seen_digit && i < bytes.len() && (bytes[i] == b'e' || bytes[i] == b'E') {
+        let mut j = i + 1;
+        if j < bytes.len() && (bytes[j] == b'+' || bytes[j] == b'-') {
+            j += 1;
+        }
+        if j < bytes.len() && bytes[j].is_ascii_digit() {
+            while j < bytes.len() && bytes[j].is_ascii_digit() {
+                j += 1;
+            }
+            i = j;
+        }
+    }
+    if seen_digit { i } else { s.len() }
+}
+
+/// A concentration given on the command line, e.g. `--enzyme "10 nM"`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ConcentrationArg {
+    /// In mol/L.
+    pub molar: f64,
+    /// The unit it was written in.
+    pub unit: ConcUnit,
+}
+
+impl ConcentrationArg {
+    /// Parses `number unit`; the unit is required and the value must be positive.
+    pub fn parse(text: &str) -> Result<ConcentrationArg, String> {
+        let w = parse_written(text).map_err(|p| format!("{}: expected e.g. '10 nM'", p.describe()))?;
+        if w.qualifier != Qualifier::Equal {
+            return Err("a qualifier makes no sense here; give the concentration itself, e.g. '10 nM'".into());
+        }
+        let unit = w
+            .unit
+            .ok_or_else(|| format!("'{text}' has no unit; write it with one, e.g. '{text} nM' ({ACCEPTED_UNITS})"))?;
+        if w.value <= 0.0 {
+            return Err(format!("'{text}' is not positive; a concentration must be > 0"));
+        }
+        Ok(ConcentrationArg { molar: unit.to_molar(w.value), unit })
+    }
+}
+
+/// −log10 of a molar concentration: pKi, pIC50.
+pub fn p_value(molar: f64) -> f64 {
+    -molar.log10()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    #[test]
+    fn parses_every_accepted_spelling() {
+        for (text, unit) in [
+            ("pM", ConcUnit::Picomolar),
+            ("nM", ConcUnit::Nanomolar),
+            ("uM", ConcUnit::Micromolar),
+            ("µM", ConcUnit::Micromolar),
+            ("μM", ConcUnit::Micromolar),
+            ("mM", ConcUnit::Millimolar),
+            ("M", ConcUnit::Molar),
+            ("mol/L", ConcUnit::Molar),
+            ("mmol/L", ConcUnit::Millimolar),
+            ("umol/l", ConcUnit::Micromolar),
+            ("nmol/L", ConcUnit::Nanomolar),
+        ] {
+            assert_eq!(ConcUnit::parse(text), Some(unit), "{text}");
+        }
+        for bad in ["mg/L", "nm", "MM", "", "min", "ng"] {
+            assert_eq!(ConcUnit::parse(bad), None, "{bad}");
+        }
+    }
+
+    #[test]
+    fn parses_cells_with_qualifiers_and_units() {
+        let w = parse_written("> 10 uM").unwrap();
+        assert_eq!((w.qualifier, w.unit), (Qualifier::Greater, Some(ConcUnit::Micromolar)));
+        assert_relative_eq!(w.value, 10.0);
+        let w = parse_written("<=1.5e-3mM").unwrap();
+        assert_eq!((w.qualifier, w.unit), (Qualifier::AtMost, Some(ConcUnit::Millimolar)));
+        assert_relative_eq!(w.value, 1.5e-3);
+        let w = parse_written("-2.5").unwrap();
+        assert_relative_eq!(w.value, -2.5);
+        assert_eq!(parse_written("abc"), Err(CellProblem::NotANumber));
+        assert_eq!(parse_written("NaN"), Err(CellProblem::NotFinite));
+        assert_eq!(parse_written("inf"), Err(CellProblem::NotFinite));
+        assert_eq!(parse_written("  "), Err(CellProblem::Empty));
+        assert_eq!(parse_written("3 furlongs"), Err(CellProblem::UnknownUnit("furlongs".into())));
+    }
+
+    #[test]
+    fn converts_between_units() {
+        assert_relative_eq!(ConcUnit::Nanomolar.to_molar(150.0), 1.5e-7, max_relative = 1e-15);
+        assert_relative_eq!(ConcUnit::Micromolar.from_molar(1.5e-7), 0.15, max_relative = 1e-15);
+        assert_relative_eq!(p_value(1e-9), 9.0, max_relative = 1e-15);
+    }
+}
