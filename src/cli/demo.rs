@@ -25,14 +25,7 @@ pub fn run(_args: &Args) -> Result<()> {
         confidence: 0.95,
         output: super::OutputArgs { format: crate::io::Format::Table, output: None },
     };
-    let (series, units) = km::read_series(&table, &args)?;
-    let options = crate::analysis::km::Options {
-        weighting: args.weighting.into(),
-        confidence: args.confidence,
-        enzyme: args.enzyme.map(|e| crate::analysis::km::Enzyme { molar: e.molar, unit: e.unit }),
-        settings: crate::fit::FitSettings::default(),
-    };
-    let (results, failures) = km::analyse_all(&series, &units, &options);
-    print!("{}", km::human(&results));
-    super::finish(&failures, series.len(), "series")
+    let outcome = km::process(&table, &args)?;
+    print!("{}", km::human(&outcome.results));
+    super::finish(&outcome.failures, outcome.total, "series")
 }

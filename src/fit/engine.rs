@@ -72,7 +72,7 @@ pub struct FitSettings {
 impl Default for FitSettings {
     /// Tight enough to reproduce NIST certified values to their last digits.
     fn default() -> Self {
-        FitSettings { ftol: 1e-20, xtol: 1e-15, gtol: 1e-15, patience: 400 }
+        FitSettings { ftol: 1e-15, xtol: 1e-15, gtol: 1e-15, patience: 400 }
     }
 }
 
