@@ -311,3 +311,42 @@ fn warns_about_substrate_inhibition_and_unbracketed_km() {
     std::fs::write(dir.path().join("lin.csv"), csv).unwrap();
     kimech(dir.path()).args(["km", "lin.csv"]).assert().success().stdout(predicate::str::contains("km-not-bracketed"));
 }
+
+#[test]
+fn t_and_f_quantiles_match_scipy() {
+    // scipy.stats.t.ppf(0.975, df) and scipy.stats.f.ppf(0.95, 1, df), from tests/reference/mm_reference.py.
+    use kimech::fit::intervals::{f_quantile, t_quantile};
+    let reference = &fixture_json("reference/mm_scipy.json")["datasets"];
+    for key in ["misra1d", "puromycin_treated", "puromycin_untreated"] {
+        let d = &reference[key];
+        let df = d["df"].as_u64().unwrap() as usize;
+        assert_relative_eq!(t_quantile(0.95, df).unwrap(), d["t_0975"].as_f64().unwrap(), max_relative = 1e-10);
+        assert_relative_eq!(f_quantile(0.95, 1, df).unwrap(), d["f_095"].as_f64().unwrap(), max_relative = 1e-10);
+    }
+}
+
+#[test]
+fn wald_interval_is_symmetric_on_the_log_scale_for_positive_parameters() {
+    use kimech::fit::intervals::{Bound, wald};
+    let f = kimech::fit::fit(&MichaelisMenten, &misra1d(), &[None, None], &FitSettings::default());
+    let w = wald(&MichaelisMenten, &f, 0, 0.95);
+    let (Bound::At(lo), Bound::At(hi)) = (w.low, w.high) else { panic!("{w:?}") };
+    // ln(Vmax) ± t·SE/Vmax, t from scipy (tests/reference/mm_reference.py): 2.1788128296672284.
+    let half = 2.1788128296672284 * f.se[0].unwrap() / f.theta[0];
+    assert_relative_eq!(lo, f.theta[0] * (-half).exp(), max_relative = 1e-10);
+    assert_relative_eq!(hi, f.theta[0] * half.exp(), max_relative = 1e-10);
+}
+
+#[test]
+fn profile_reports_unbounded_when_the_data_cannot_bound_km() {
+    // All substrate far below Km: only Vmax/Km is determined, so Km (and Vmax)
+    // have no upper bound. Rates from v = 10·S/(1000 + S) with ±1% alternating error.
+    let s: Vec<f64> = (1..=8).map(f64::from).collect();
+    let v: Vec<f64> =
+        s.iter().enumerate().map(|(i, s)| 10.0 * s / (1000.0 + s) * if i % 2 == 0 { 1.01 } else { 0.99 }).collect();
+    let series = Series { label: None, origin: "test".into(), substrate: s, rate: v, sd: None };
+    let r = analyse(&series, &Units { substrate: None, rate: None }, &options()).unwrap();
+    assert_eq!(r.params.km.high, None, "{:?}", r.params.km);
+    assert!(r.params.km.note.as_deref().unwrap_or("").contains("no upper bound"), "{:?}", r.params.km);
+    assert!(r.warnings.iter().any(|w| w.code == "km-not-bracketed"));
+}
