@@ -1,0 +1,290 @@
+//! Pictures: the SVGs parse and rasterise to something, the drawn curve is
+//! the fitted curve (checked through the axis mapping), plot file names are
+//! safe, and the HTML report renders in a real browser and loads nothing.
+
+mod common;
+
+use common::{fixture_text, kimech};
+use kimech::analysis::km::{KmResult, Options, Series, Units, analyse};
+use kimech::fit::{FitSettings, Weighting};
+use kimech::plot::Frame;
+
+/// The treated Puromycin series (Treloar 1974, in Bates & Watts 1988; fixtures/README.md).
+fn puromycin_treated() -> KmResult {
+    let text = fixture_text("puromycin.csv");
+    let (mut s, mut v) = (Vec::new(), Vec::new());
+    for line in text.lines().skip(1).filter(|l| l.starts_with("treated,")) {
+        let cells: Vec<&str> = line.split(',').collect();
+        s.push(cells[1].parse::<f64>().unwrap());
+        v.push(cells[2].parse::<f64>().unwrap());
+    }
+    let series = Series { label: Some("treated".into()), origin: "fixture".into(), substrate: s, rate: v, sd: None };
+    let units = Units { substrate: Some("ppm".into()), rate: Some("counts/min²".into()) };
+    let options =
+        Options { weighting: Weighting::None, confidence: 0.95, enzyme: None, settings: FitSettings::default() };
+    analyse(&series, &units, &options).unwrap()
+}
+
+/// The invented demo substrate series (demo-compounds/README.md).
+fn demo_series() -> std::path::PathBuf {
+    std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-compounds/substrate-series.csv")
+}
+
+/// The `points` of every `<polyline>` drawn with this stroke colour and width.
+fn polylines(svg: &str, stroke: &str, width: &str) -> Vec<Vec<(f64, f64)>> {
+    let mut lines = Vec::new();
+    for element in svg.split("<polyline").skip(1) {
+        let tag = &element[..element.find("/>").unwrap()];
+        let attr = |name: &str| {
+            let start = tag.find(&format!(" {name}=\"")).map(|i| i + name.len() + 3)?;
+            Some(&tag[start..start + tag[start..].find('"')?])
+        };
+        if attr("stroke") == Some(stroke) && attr("stroke-width") == Some(width) {
+            let pts = attr("points")
+                .unwrap()
+                .split_whitespace()
+                .map(|p| {
+                    let (x, y) = p.split_once(',').unwrap();
+                    (x.parse().unwrap(), y.parse().unwrap())
+                })
+                .collect();
+            lines.push(pts);
+        }
+    }
+    lines
+}
+
+/// The longest line of the given colour inside a panel's plotting area.
+fn curve_in(svg: &str, frame: &Frame, stroke: &str) -> Vec<(f64, f64)> {
+    let (x0, x1) = (frame.px.0 as f64 - 1.0, frame.px.1 as f64 + 1.0);
+    polylines(svg, stroke, "2")
+        .into_iter()
+        .filter(|l| l.iter().all(|p| p.0 >= x0 && p.0 <= x1))
+        .max_by_key(|l| l.len())
+        .expect("a fitted curve in the panel")
+}
+
+/// The curve's pixel y at pixel x, by linear interpolation between vertices.
+fn y_at(curve: &[(f64, f64)], u: f64) -> f64 {
+    let k = curve.windows(2).position(|w| (w[0].0 - u) * (w[1].0 - u) <= 0.0).expect("x within the curve");
+    let (a, b) = (curve[k], curve[k + 1]);
+    if (b.0 - a.0).abs() < 1e-9 { a.1 } else { a.1 + (u - a.0) / (b.0 - a.0) * (b.1 - a.1) }
+}
+
+/// Rasterises an SVG with resvg and returns the share of pixels that are not white.
+fn inked_fraction(svg: &str) -> f64 {
+    let tree = resvg::usvg::Tree::from_str(svg, &resvg::usvg::Options::default()).expect("SVG parses");
+    let size = tree.size().to_int_size();
+    let mut pixmap = resvg::tiny_skia::Pixmap::new(size.width(), size.height()).unwrap();
+    resvg::render(&tree, resvg::tiny_skia::Transform::default(), &mut pixmap.as_mut());
+    let inked = pixmap.pixels().iter().filter(|p| p.alpha() > 0 && (p.red() < 240 || p.blue() < 240)).count();
+    inked as f64 / (size.width() * size.height()) as f64
+}
+
+#[test]
+fn km_curve_passes_through_the_fitted_rates() {
+    let r = puromycin_treated();
+    let svg = kimech::plot::km::series_figure(&r).unwrap();
+    let frame = svg.frames[0];
+    let curve = curve_in(&svg.text, &frame, "#0072B2");
+    assert!(curve.len() > 100, "a sampled curve, not a few segments");
+    // Every vertex, mapped back through the axes, lies on Vmax·S/(Km + S) from the fit result
+    // (allowing half a pixel of rounding in each direction, times the local slope).
+    for &(u, v) in &curve {
+        let (s, _) = frame.value_at(u, v);
+        let expected = frame.pixel_of(s, r.rate_at(s)).1;
+        let (_, v_right) = frame.pixel_of(frame.value_at(u + 1.0, v).0, r.rate_at(frame.value_at(u + 1.0, v).0));
+        let slope = (v_right - expected).abs();
+        assert!((v - expected).abs() <= 0.75 + 0.5 * slope, "vertex ({u}, {v}): S = {s}, expected y {expected}");
+    }
+    // Handbook relation (Michaelis & Menten 1913): at S = Km the rate is Vmax/2; and at
+    // S = 4·Km it is 0.8·Vmax. Read the drawn curve there.
+    let (vmax, km) = (r.params.vmax.value, r.params.km.value);
+    for (s, v) in [(km, vmax / 2.0), (4.0 * km, 0.8 * vmax), (0.5, vmax * 0.5 / (km + 0.5))] {
+        let (u, expected) = frame.pixel_of(s, v);
+        let drawn = y_at(&curve, u);
+        assert!((drawn - expected).abs() <= 1.5, "S = {s}: drawn y {drawn}, expected {expected}");
+    }
+}
+
+#[test]
+fn double_reciprocal_line_is_the_one_implied_by_the_fit() {
+    let r = puromycin_treated();
+    let svg = kimech::plot::km::series_figure(&r).unwrap();
+    let frame = svg.frames[2];
+    let line = curve_in(&svg.text, &frame, "#0072B2");
+    let dr = &r.double_reciprocal;
+    // It meets 1/v = 0 at 1/S = −1/Km and 1/S = 0 at 1/v = 1/Vmax (Lineweaver & Burk 1934).
+    for (x, y) in [(dr.x_intercept, 0.0), (0.0, 1.0 / r.params.vmax.value), (100.0, dr.slope * 100.0 + dr.y_intercept)]
+    {
+        let (u, expected) = frame.pixel_of(x, y);
+        if u < line[0].0 || u > line[line.len() - 1].0 {
+            continue;
+        }
+        let drawn = y_at(&line, u);
+        assert!((drawn - expected).abs() <= 1.5, "1/S = {x}: drawn y {drawn}, expected {expected}");
+    }
+    // The x-intercept is on screen: the view shows where the line meets the axis.
+    assert!(frame.x.contains(dr.x_intercept));
+}
+
+#[test]
+fn confidence_band_brackets_the_curve_and_narrows_where_the_data_are() {
+    let r = puromycin_treated();
+    // The band is the delta-method interval: symmetric about the curve, zero width at S = 0.
+    let (lo0, hi0) = r.rate_band(0.0).unwrap();
+    assert!(lo0.abs() < 1e-12 && hi0.abs() < 1e-12);
+    let (lo, hi) = r.rate_band(0.2).unwrap();
+    let v = r.rate_at(0.2);
+    assert!(lo < v && v < hi);
+    assert!(((hi - v) - (v - lo)).abs() < 1e-9 * v);
+}
+
+#[test]
+fn every_km_panel_rasterises_to_a_visible_picture() {
+    let r = puromycin_treated();
+    let svg = kimech::plot::km::series_figure(&r).unwrap();
+    let inked = inked_fraction(&svg.text);
+    assert!(inked > 0.01, "only {:.3}% of pixels drawn", inked * 100.0);
+    assert_eq!(svg.frames.len(), 3);
+    for f in &svg.frames {
+        assert!(f.px.1 - f.px.0 > 200 && f.py.0 - f.py.1 > 150, "plotting area too small: {f:?}");
+    }
+}
+
+#[test]
+fn plot_files_stay_inside_the_directory_whatever_the_ids() {
+    let dir = tempfile::tempdir().unwrap();
+    let ids = ["../escape", "a/b", "..", "spaced id", "αβγ", "/abs", "KX-101"];
+    let mut csv = String::from("series,substrate (uM),rate (uM/min)\n");
+    for id in ids {
+        for (s, v) in [(2.0, 0.9), (5.0, 1.7), (10.0, 2.5), (20.0, 3.2), (50.0, 3.8), (100.0, 4.1)] {
+            csv.push_str(&format!("\"{id}\",{s},{v}\n"));
+        }
+    }
+    std::fs::write(dir.path().join("in.csv"), csv).unwrap();
+    std::fs::create_dir(dir.path().join("run")).unwrap();
+    kimech(&dir.path().join("run"))
+        .args(["km", "../in.csv", "--plot", "plots", "--report", "report.html"])
+        .assert()
+        .success();
+    let plots = dir.path().join("run/plots");
+    let mut names: Vec<String> =
+        std::fs::read_dir(&plots).unwrap().map(|e| e.unwrap().file_name().into_string().unwrap()).collect();
+    names.sort();
+    assert_eq!(names.len(), ids.len(), "one file per series: {names:?}");
+    for n in &names {
+        assert!(n.ends_with(".svg") && !n.starts_with('.') && n.is_ascii() && !n.contains(".."), "{n}");
+        assert!(inked_fraction(&std::fs::read_to_string(plots.join(n)).unwrap()) > 0.01, "{n} is blank");
+    }
+    assert!(names.contains(&"km-KX-101.svg".to_string()));
+    // Nothing appeared beside the input or above it.
+    let mut top: Vec<String> =
+        std::fs::read_dir(dir.path()).unwrap().map(|e| e.unwrap().file_name().into_string().unwrap()).collect();
+    top.sort();
+    assert_eq!(top, ["in.csv", "run"]);
+    let mut run: Vec<String> = std::fs::read_dir(dir.path().join("run"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().into_string().unwrap())
+        .collect();
+    run.sort();
+    assert_eq!(run, ["plots", "report.html"]);
+}
+
+/// What a self-contained page must not contain: scripts, fetched resources, URLs.
+fn assert_self_contained(html: &str) {
+    let lower = html.to_ascii_lowercase();
+    for bad in ["<script", "http:", "https:", "src=", "href=", "@import", "url(", "<link", "<iframe", "<object"] {
+        assert!(!lower.contains(bad), "the report contains '{bad}'");
+    }
+}
+
+#[test]
+fn km_report_holds_tables_warnings_and_one_figure_per_series() {
+    let dir = tempfile::tempdir().unwrap();
+    kimech(dir.path())
+        .args(["km", demo_series().to_str().unwrap(), "--enzyme", "5 nM", "--report", "r.html"])
+        .assert()
+        .success();
+    let html = std::fs::read_to_string(dir.path().join("r.html")).unwrap();
+    assert_self_contained(&html);
+    assert_eq!(html.matches("<svg").count(), 2, "batch-A and batch-B");
+    assert!(html.contains("Michaelis–Menten fit — series batch-A"));
+    assert!(html.contains("kcat/Km"));
+    assert!(html.contains("<table>") && html.contains("Km") && html.contains("profile"));
+    assert!(html.contains(&kimech::plot::html::escape(kimech::cli::CAUTION)));
+    assert!(html.contains("for display only"));
+}
+
+/// Headless Chromium must be installed; CI installs it (.ci/run). A skipped
+/// browser test would read as a pass, so a missing browser fails loudly.
+fn chromium() -> &'static str {
+    let found = std::process::Command::new("chromium").arg("--version").output().is_ok_and(|o| o.status.success());
+    assert!(
+        found,
+        "the report test needs headless Chromium: install it with `apt-get update && apt-get install -y chromium` \
+         (.ci/run does this)"
+    );
+    "chromium"
+}
+
+/// Runs a command, killing it after `limit`.
+fn run_with_limit(cmd: &mut std::process::Command, limit: std::time::Duration) -> std::process::ExitStatus {
+    let mut child = cmd.stdout(std::process::Stdio::null()).stderr(std::process::Stdio::null()).spawn().unwrap();
+    let start = std::time::Instant::now();
+    loop {
+        if let Some(status) = child.try_wait().unwrap() {
+            return status;
+        }
+        if start.elapsed() > limit {
+            let _ = child.kill();
+            panic!("chromium did not finish within {limit:?}");
+        }
+        std::thread::sleep(std::time::Duration::from_millis(100));
+    }
+}
+
+#[test]
+fn demo_report_renders_in_a_real_browser() {
+    let browser = chromium();
+    let dir = tempfile::tempdir().unwrap();
+    let out = kimech(dir.path()).arg("demo").assert().success().get_output().stdout.clone();
+    let stdout = String::from_utf8(out).unwrap();
+    assert!(stdout.contains("Report written to kimech-demo-report.html"), "{stdout}");
+    let report = dir.path().join("kimech-demo-report.html");
+    let html = std::fs::read_to_string(&report).unwrap();
+    assert_self_contained(&html);
+    let shot = dir.path().join("shot.png");
+    let profile = dir.path().join("profile");
+    let status = run_with_limit(
+        std::process::Command::new(browser).args([
+            "--headless",
+            "--no-sandbox",
+            "--disable-gpu",
+            "--disable-quic",
+            "--no-first-run",
+            "--disable-background-networking",
+            "--disable-component-update",
+            "--disable-sync",
+            &format!("--user-data-dir={}", profile.display()),
+            &format!("--screenshot={}", shot.display()),
+            "--window-size=1200,2000",
+            &format!("file://{}", report.display()),
+        ]),
+        std::time::Duration::from_secs(90),
+    );
+    assert!(status.success(), "chromium exited with {status}");
+    let png = std::fs::read(&shot).expect("chromium wrote a screenshot");
+    let pixmap = resvg::tiny_skia::Pixmap::decode_png(&png).expect("the screenshot is a PNG");
+    assert_eq!((pixmap.width(), pixmap.height()), (1200, 2000));
+    // The page background is #fbfaf7; count what differs from it, and the curve's blue.
+    let px = pixmap.pixels();
+    let differs = px.iter().filter(|p| {
+        u32::from(p.red().abs_diff(0xfb)) + u32::from(p.green().abs_diff(0xfa)) + u32::from(p.blue().abs_diff(0xf7))
+            > 24
+    });
+    let share = differs.count() as f64 / px.len() as f64;
+    assert!(share > 0.03, "only {:.2}% of the screenshot differs from the background", share * 100.0);
+    let blue = px.iter().filter(|p| p.red() < 60 && (90..140).contains(&p.green()) && p.blue() > 150).count();
+    assert!(blue > 200, "the fitted curves (Okabe–Ito blue) are not visible: {blue} pixels");
+}
