@@ -288,3 +288,103 @@ fn demo_report_renders_in_a_real_browser() {
     let blue = px.iter().filter(|p| p.red() < 60 && (90..140).contains(&p.green()) && p.blue() > 150).count();
     assert!(blue > 200, "the fitted curves (Okabe–Ito blue) are not visible: {blue} pixels");
 }
+
+/// Writes an SVG for a person to look at when KIMECH_PREVIEW names a directory.
+fn preview(name: &str, svg: &str) {
+    if let Some(dir) = std::env::var_os("KIMECH_PREVIEW") {
+        std::fs::create_dir_all(&dir).unwrap();
+        std::fs::write(std::path::Path::new(&dir).join(name), svg).unwrap();
+    }
+}
+
+/// A competitive rate matrix: Vmax 10, Km 5, Ki 2 (invented numbers for a geometric check).
+fn competitive() -> (Vec<kimech::plot::charts::RatePoint>, kimech::plot::charts::RateLaw) {
+    use kimech::plot::charts::RatePoint;
+    let law = |s: f64, i: f64| 10.0 * s / (5.0 * (1.0 + i / 2.0) + s);
+    let mut points = Vec::new();
+    for i in [0.0, 2.0, 6.0] {
+        for s in [1.0, 2.5, 5.0, 10.0, 25.0] {
+            points.push(RatePoint { s, i, v: law(s, i) * (1.0 + 0.01 * ((s * 7.0 + i).sin())) });
+        }
+    }
+    (points, std::rc::Rc::new(law))
+}
+
+/// Pixel y of every line of `colour`s at pixel x `u`.
+fn lines_at(svg: &str, frame: &Frame, colours: &[&str], u: f64) -> Vec<f64> {
+    colours.iter().map(|c| y_at(&curve_in(svg, frame, c), u)).collect()
+}
+
+#[test]
+fn mechanism_views_cross_where_the_rate_law_says() {
+    use kimech::plot::charts::{RateUnits, View, linear_view, rate_family};
+    let (points, law) = competitive();
+    let units = RateUnits { s: Some("uM".into()), i: Some("uM".into()), v: Some("uM/min".into()) };
+    let panels = [
+        rate_family("Rates", &points, &law, &units),
+        linear_view(View::DoubleReciprocal, "Double reciprocal", &points, &law, &units),
+        linear_view(View::Dixon, "Dixon", &points, &law, &units),
+    ];
+    let svg = kimech::plot::figure(&panels, 3, kimech::plot::PANEL, "mechanism").unwrap();
+    preview("mechanism.svg", &svg.text);
+    assert!(inked_fraction(&svg.text) > 0.01);
+    let colours = ["#0072B2", "#D55E00", "#009E73"];
+    // Competitive inhibition (Cornish-Bowden, Fundamentals of Enzyme Kinetics, 2012, ch. 6):
+    // double-reciprocal lines share the 1/v intercept 1/Vmax at 1/S = 0 ...
+    let f = svg.frames[1];
+    let (u, expected) = f.pixel_of(0.0, 1.0 / 10.0);
+    for y in lines_at(&svg.text, &f, &colours, u) {
+        assert!((y - expected).abs() <= 1.5, "double reciprocal at 1/S = 0: {y} vs {expected}");
+    }
+    // ... and Dixon lines (one per S) meet at I = −Ki, 1/v = 1/Vmax (Dixon 1953).
+    let f = svg.frames[2];
+    let (u, expected) = f.pixel_of(-2.0, 1.0 / 10.0);
+    for y in lines_at(&svg.text, &f, &colours, u) {
+        assert!((y - expected).abs() <= 1.5, "Dixon at I = −Ki: {y} vs {expected}");
+    }
+}
+
+#[test]
+fn dose_curve_passes_through_its_midpoint_at_the_ic50_and_rankings_draw_bounds() {
+    use kimech::plot::charts::{DoseCurve, Ranked, dose_panel, evidence_panel, ranking_panel};
+    use kimech::plot::xy::Direction;
+    // Four-parameter logistic, upper 100, lower 5, IC50 0.3 uM, Hill 1.2 (invented for geometry).
+    let f = |x: f64| 5.0 + 95.0 / (1.0 + (x / 0.3f64).powf(1.2));
+    let doses = [0.0, 0.01, 0.03, 0.1, 0.3, 1.0, 3.0, 10.0];
+    let curve = DoseCurve {
+        title: "KX-101".into(),
+        subtitle: "IC50 = 0.30 uM (95% CI 0.25 to 0.36)".into(),
+        flagged: false,
+        points: doses.iter().map(|&x| (x, f(x))).collect(),
+        fit: Some(Box::new(f)),
+        ic50: Some((0.3, f(0.3), Some(0.25), Some(0.36), None)),
+        unit: Some("uM".into()),
+        response: "activity (%)".into(),
+    };
+    let ranks = [
+        Ranked { label: "KX-104".into(), value: 8.2, low: Some(8.0), high: Some(8.4), bound: None },
+        Ranked { label: "KX-101".into(), value: 6.5, low: Some(6.3), high: Some(6.7), bound: None },
+        Ranked { label: "KX-109".into(), value: 5.0, low: None, high: None, bound: Some(Direction::Below) },
+    ];
+    let models = [("competitive".to_string(), 0.71), ("mixed".to_string(), 0.26), ("noncompetitive".to_string(), 0.03)];
+    let panels = [
+        dose_panel(curve),
+        ranking_panel("pKi by compound", "pKi", &ranks),
+        evidence_panel("Model evidence", "Akaike weight", &models, Some(0)),
+    ];
+    let svg = kimech::plot::figure(&panels, 3, kimech::plot::PANEL, "dose").unwrap();
+    preview("dose.svg", &svg.text);
+    assert!(inked_fraction(&svg.text) > 0.01);
+    // 4PL at x = IC50 is halfway between the asymptotes (DESIGN.md §4): read the drawn curve there,
+    // on the log axis.
+    let frame = svg.frames[0];
+    let fit = curve_in(&svg.text, &frame, "#0072B2");
+    let (u, expected) = frame.pixel_of(0.3, 52.5);
+    assert!((y_at(&fit, u) - expected).abs() <= 1.5);
+    // Log mapping: a decade is the same width wherever it is.
+    let w1 = frame.pixel_of(0.1, 0.0).0 - frame.pixel_of(0.01, 0.0).0;
+    let w2 = frame.pixel_of(10.0, 0.0).0 - frame.pixel_of(1.0, 0.0).0;
+    assert!((w1 - w2).abs() < 1e-6);
+    // The bound in the ranking is drawn as an open marker (a circle outlined in vermilion).
+    assert!(svg.text.contains("fill=\"none\" stroke=\"#D55E00\""), "the bound's open marker");
+}

@@ -12,6 +12,7 @@
 //! [`html`] (the report page) and [`files`] (safe file names in `--plot DIR`).
 
 pub mod axis;
+pub mod charts;
 pub mod files;
 pub mod html;
 pub mod km;
