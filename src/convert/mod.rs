@@ -192,7 +192,12 @@ impl Problem {
                     "the {relation} relation needs the {what}, but column '{column}' is absent or empty and {flag} was not given"
                 )
             }
-            Problem::NotPositive { what, value } => format!("the {what} is {value}, not positive"),
+            Problem::NotPositive { what, value } if *what == "alpha" => {
+                format!("{what} is {}, not positive", crate::io::output::sig(*value, 4))
+            }
+            Problem::NotPositive { what, value } => {
+                format!("the {what} is {} nM, not positive", crate::io::output::sig(value * 1e9, 4))
+            }
             Problem::BindingMechanism(m) => format!(
                 "the binding-assay relation assumes competitive displacement of the labelled ligand, but the mechanism is {}",
                 m.name()
@@ -208,6 +213,7 @@ impl Problem {
     /// What would make the row usable.
     pub fn expected(&self) -> String {
         match self {
+            Problem::Missing { column: "alpha", flag, .. } => format!("add an 'alpha' column or pass {flag}"),
             Problem::Missing { column, flag, .. } => format!("add a '{column}' column (with its unit) or pass {flag}"),
             Problem::NotPositive { .. } => "give a value greater than zero, with its unit".into(),
             Problem::BindingMechanism(_) => {
@@ -237,8 +243,8 @@ pub fn convert(m: &Measurement, c: &Conditions, settings: &Settings) -> Result<C
             positive(what, v)?;
         }
     }
-    if c.km_se.is_some_and(|se| se.is_nan() || se < 0.0) {
-        return Err(Problem::NotPositive { what: "Km standard error", value: c.km_se.unwrap_or(f64::NAN) });
+    if let Some(se) = c.km_se.filter(|se| se.is_nan() || *se < 0.0) {
+        return Err(Problem::NotPositive { what: "Km standard error", value: se });
     }
     let relation = Relation::choose(c)?;
     // Et is used only in enzyme assays: the binding-assay relation has its own depletion problems.
