@@ -355,9 +355,9 @@ fn bad_rows_get_an_error_and_the_others_still_convert() {
         assert!(rows[i]["error"].is_null());
         assert!(rows[i]["ki"]["value"].is_number());
     }
-    for i in 1..10 {
-        assert!(rows[i]["ki"]["value"].is_null(), "{}", rows[i]);
-        assert!(rows[i]["pki"].is_null());
+    for (i, row) in rows.iter().enumerate().take(10).skip(1) {
+        assert!(row["ki"]["value"].is_null(), "{row}");
+        assert!(row["pki"].is_null());
         assert!(error(i).contains(&format!("line {}", i + 2)), "{}", error(i));
     }
     assert!(error(1).contains("Et/2") && error(1).contains("not above"), "{}", error(1));
