@@ -267,7 +267,8 @@ fn exact_mean(row: &mut RankRow, exact: &[&Entry], confidence: f64, flags: &mut 
     let n = p.len() as f64;
     let mean = p.iter().sum::<f64>() / n;
     row.pki = Some(mean);
-    row.ki = Some(10f64.powf(-mean));
+    // A single value is reported as it came, not through the round trip 10^(−log10 x).
+    row.ki = Some(if exact.len() == 1 { exact[0].ki } else { 10f64.powf(-mean) });
     if exact.iter().any(|e| e.qualifier == Qualifier::About) {
         flags.push(Flag::new("approximate-input", "at least one value was written as approximate (~)"));
     }

@@ -350,8 +350,13 @@ fn in_unit(r: &RankRow, unit: ConcUnit) -> RankRow {
     }
 }
 
+/// A number for an export cell: ten significant digits, so that unit
+/// conversions do not print as 49.999999999999986.
 fn num(v: Option<f64>) -> String {
-    v.map_or(String::new(), |x| format!("{x}"))
+    v.map_or(String::new(), |x| {
+        let rounded: f64 = format!("{x:.9e}").parse().unwrap_or(x);
+        format!("{rounded}")
+    })
 }
 
 fn interval_text(r: &RankRow) -> String {
