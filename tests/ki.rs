@@ -423,6 +423,15 @@ fn json_follows_the_contract() {
     assert!(rows[0]["error"].is_null());
     assert!(rows[1]["error"].as_str().unwrap().contains("empty cell"));
     assert!(rows[1]["ki"]["value"].is_null());
+    // When the IC50 step left an error column, that reason is passed on.
+    let (_, rows) = run_json(
+        "compound,ic50 (nM),error
+A,,fit did not converge
+",
+        &["--mechanism", "noncompetitive"],
+    );
+    let e = rows[0]["error"].as_str().unwrap();
+    assert!(e.contains("fit did not converge") && e.contains("line 2"), "{e}");
 }
 
 // --- reading what `kimech ic50` writes ------------------------------------------------------

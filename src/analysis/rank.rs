@@ -18,6 +18,8 @@
 //! in kcal/mol per heavy atom (1.37 ≈ 2.303·RT at about 298 K; Hopkins, Groom
 //! & Alex, Drug Discov. Today 9, 430–431, 2004).
 
+use std::collections::HashMap;
+
 use serde::Serialize;
 
 use crate::fit::intervals::t_quantile;
@@ -151,21 +153,18 @@ pub struct RankRow {
 /// Aggregates, ranks and adds selectivity. Groups keep first-appearance order
 /// of targets; within a target and endpoint, rows are sorted by pKi, most potent first.
 pub fn aggregate(entries: &[Entry], options: &Options) -> Vec<RankRow> {
-    let mut keys: Vec<(String, String, String)> = Vec::new();
+    // Groups in order of first appearance.
+    let mut index: HashMap<(&str, &str, &str), usize> = HashMap::new();
+    let mut groups: Vec<Vec<&Entry>> = Vec::new();
     for e in entries {
-        let k = (e.compound.clone(), e.target.clone(), e.endpoint.clone());
-        if !keys.contains(&k) {
-            keys.push(k);
-        }
+        let k = (e.compound.as_str(), e.target.as_str(), e.endpoint.as_str());
+        let i = *index.entry(k).or_insert_with(|| {
+            groups.push(Vec::new());
+            groups.len() - 1
+        });
+        groups[i].push(e);
     }
-    let mut rows: Vec<RankRow> = keys
-        .iter()
-        .map(|(c, t, p)| {
-            let members: Vec<&Entry> =
-                entries.iter().filter(|e| &e.compound == c && &e.target == t && &e.endpoint == p).collect();
-            group(&members, options.confidence)
-        })
-        .collect();
+    let mut rows: Vec<RankRow> = groups.iter().map(|members| group(members, options.confidence)).collect();
     let targets: Vec<(String, String)> = {
         let mut v: Vec<(String, String)> = Vec::new();
         for r in &rows {
@@ -414,13 +413,13 @@ fn direction(q: Qualifier) -> i8 {
 
 /// ΔpKi = pKi(row) − pKi(versus) for every compound measured on both.
 fn selectivity(rows: &mut [RankRow], versus: &str) {
-    let counter: Vec<(String, String, Option<f64>, Qualifier)> = rows
+    let counter: HashMap<(String, String), (Option<f64>, Qualifier)> = rows
         .iter()
         .filter(|r| r.target == versus)
-        .map(|r| (r.compound.clone(), r.endpoint.clone(), r.pki, r.qualifier.reversed()))
+        .map(|r| ((r.compound.clone(), r.endpoint.clone()), (r.pki, r.qualifier.reversed())))
         .collect();
     for r in rows.iter_mut().filter(|r| r.target != versus) {
-        let Some((_, _, pv, qv)) = counter.iter().find(|c| c.0 == r.compound && c.1 == r.endpoint) else {
+        let Some((pv, qv)) = counter.get(&(r.compound.clone(), r.endpoint.clone())) else {
             continue;
         };
         r.versus = Some(versus.to_string());

@@ -326,9 +326,24 @@ fn convert_row(
             (row, None)
         }
         Err(e) => {
+            let e = with_upstream_error(table, record, e);
             row.error = Some(e.to_string());
             (row, Some(e))
         }
+    }
+}
+
+/// When the IC50 step already reported why a row has no IC50 (an `error`
+/// column, as `kimech ic50` writes), say that instead of "empty cell".
+fn with_upstream_error(table: &Table, record: &Record, e: Error) -> Error {
+    let upstream = table.find(&ColumnSpec::new("error", &[])).map(|c| table.text(record, c)).unwrap_or("");
+    match e {
+        Error::Cell(cell) if cell.value.is_empty() && !upstream.is_empty() => Error::Data {
+            group: format!("{}, line {}", cell.path, cell.line),
+            problem: format!("no value in column '{}'; the input's error column says: {upstream}", cell.column),
+            expected: "fix the IC50 fit for this row first".into(),
+        },
+        e => e,
     }
 }
 
@@ -564,7 +579,7 @@ pub fn human(rows: &[KiRow]) -> String {
                 format!("{} – {}", lo.map_or("0".into(), |v| sig(v, 3)), hi.map_or("unbounded".into(), |v| sig(v, 3)))
             }
         };
-        let source = if r.mechanism_source == MechanismSource::Measured { "given" } else { "assumed" };
+        let source = if r.mechanism_source == MechanismSource::Measured { "measured" } else { "assumed" };
         grid.add_row(vec![
             r.row.to_string(),
             r.compound.clone(),
