@@ -380,6 +380,11 @@ fn a_missing_condition_names_its_column_and_flag() {
     assert_eq!(code, 3);
     let e = rows[0]["error"].as_str().unwrap();
     assert!(e.contains("'substrate'") && e.contains("--substrate"), "{e}");
+    // Km's SE without a unit of its own is read in Km's header unit: (0.25 / 4) with SE 10% of Km.
+    let (_, rows) =
+        run_json("compound,ic50,substrate (uM),km (uM),km_se\nA,250 nM,150,50,5\n", &["--mechanism", "competitive"]);
+    assert!(rows[0]["error"].is_null(), "{}", rows[0]);
+    assert!(rows[0]["ki"]["low"].is_number());
     // The flag default fills the gap.
     let (code, rows) = run_json(
         "compound,ic50\nA,250 nM\n",

@@ -178,6 +178,10 @@ fn selectivity_and_ligand_efficiency() {
     assert_relative_eq!(b_off["ligand_efficiency"]["value"].as_f64().unwrap(), 1.37 * 5.0 / 20.0, max_relative = 1e-12);
     // C was not measured on the counter-target.
     assert!(find(&rows, "C", "main")["delta_pki"].is_null());
+    // A counter-target that is not in the input is an option error naming the targets there.
+    let r = run(csv, &["--versus", "VRD3"]);
+    assert_eq!(r.code, 2);
+    assert!(r.stderr.contains("--versus") && r.stderr.contains("main, off"), "{}", r.stderr);
     // Heavy atoms that disagree give no LE.
     let (_, rows) = json("compound,ki (nM),heavy_atoms\nA,10,25\nA,20,26\n", &[]);
     assert!(rows[0]["ligand_efficiency"].is_null());

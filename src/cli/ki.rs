@@ -396,8 +396,11 @@ fn read_row(table: &Table, cols: &Columns, record: &Record, args: &Args) -> Resu
         },
     };
     let mut described = vec![format!("IC50 = {}", table.text(record, cols.ic50))];
+    // Km's SE is read in Km's header unit when its own column has none.
+    let km_unit = cols.km.and_then(|c| table.header_unit(c).ok().flatten());
     let mut conc = |col: Option<usize>, flag_value: Option<ConcentrationArg>, label: &str, flag: &str| {
-        condition(table, record, col, flag_value, args.conc_unit, flag).map(|found| {
+        let default_unit = if label == "Km SE" { args.conc_unit.or(km_unit) } else { args.conc_unit };
+        condition(table, record, col, flag_value, default_unit, flag).map(|found| {
             found.map(|(molar, unit)| {
                 described.push(format!("{label} = {} {unit}", sig(unit.from_molar(molar), 4)));
                 molar

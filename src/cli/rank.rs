@@ -112,6 +112,19 @@ pub fn run(args: &Args) -> Result<()> {
         failures.extend(f);
     }
     let total = entries.len() + failures.len();
+    if let Some(v) = &args.versus
+        && !entries.iter().any(|e| &e.target == v)
+    {
+        let mut targets: Vec<&str> = entries.iter().map(|e| e.target.as_str()).collect();
+        targets.sort_unstable();
+        targets.dedup();
+        return Err(Error::Option {
+            option: "--versus".into(),
+            value: v.clone(),
+            problem: "no row has this target".into(),
+            expected: format!("use one of the targets in the input: {}", targets.join(", ")),
+        });
+    }
     let rows = aggregate(&entries, &Options { versus: args.versus.clone(), confidence: args.confidence });
     let bytes = render(&rows, args.unit, args.output.format)?;
     let inputs: Vec<&str> = args.files.iter().map(String::as_str).collect();
