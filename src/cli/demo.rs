@@ -38,23 +38,23 @@ pub fn run(_args: &Args) -> Result<()> {
     let (results, failures) = km::analyse_all(&series, &units, &options);
     print!("{}", km::human(&results));
     let km_status = super::finish(&failures, series.len(), "series");
-    let ki_status = ki_and_rank(&[("demo-compounds/second-assay-ic50.csv", SECOND_ASSAY)]);
+    let second = "demo-compounds/second-assay-ic50.csv";
+    let ki_status = ki_and_rank(&[(second, SECOND_ASSAY, ki_args(second))]);
     km_status.and(ki_status)
 }
 
-/// The `ki` and `rank` stages: each IC50 table (name, CSV text) goes through
+/// The `ki` and `rank` stages: each IC50 table (name, CSV text, `ki` options) goes through
 /// `kimech ki` and its CSV output, and all of them together through `kimech rank`,
 /// exactly as a user would pipe them.
-pub fn ki_and_rank(tables: &[(&str, &str)]) -> Result<()> {
+pub fn ki_and_rank(tables: &[(&str, &str, ki::Args)]) -> Result<()> {
     let mut ki_csv = Vec::new();
     let mut failures = Vec::new();
     let mut total = 0;
-    for (name, text) in tables {
+    for (name, text, args) in tables {
         println!("\nStage — IC50 table → Ki (conditions from the table's columns)");
         println!("  $ kimech ki {name}\n");
         let table = crate::io::Table::parse(name, text.as_bytes(), b',')?;
-        let args = ki_args(name);
-        let (rows, carried, row_failures) = ki::convert_table(&table, &args)?;
+        let (rows, carried, row_failures) = ki::convert_table(&table, args)?;
         print!("{}", ki::human(&rows));
         total += rows.len();
         failures.extend(row_failures);
@@ -65,7 +65,7 @@ pub fn ki_and_rank(tables: &[(&str, &str)]) -> Result<()> {
     }
     let names: Vec<&str> = ki_csv.iter().map(|(n, _)| n.as_str()).collect();
     println!("\nStage — Ki → one ranked, flagged, registry-ready table (selectivity against VRD3)");
-    for ((n, _), (name, _)) in ki_csv.iter().zip(tables) {
+    for ((n, _), (name, _, _)) in ki_csv.iter().zip(tables) {
         println!("  $ kimech ki {name} --format csv -o {n}");
     }
     println!("  $ kimech rank {} --versus VRD3\n", names.join(" "));
@@ -87,7 +87,7 @@ pub fn ki_and_rank(tables: &[(&str, &str)]) -> Result<()> {
 }
 
 /// `kimech ki NAME` with every default: conditions come from the table.
-fn ki_args(name: &str) -> ki::Args {
+pub fn ki_args(name: &str) -> ki::Args {
     ki::Args {
         file: name.to_string(),
         substrate: None,
