@@ -503,6 +503,15 @@ fn the_interval_adds_km_error_in_quadrature_on_the_log_scale() {
     let high = 62.5 * NM * (1.28f64.ln()).hypot(k).exp();
     assert_relative_eq!(r.low.unwrap(), low, max_relative = 1e-8);
     assert_relative_eq!(r.high.unwrap(), high, max_relative = 1e-8);
+    // A lower IC50 end of zero (or at or below Et/2) leaves the Ki interval open towards zero.
+    let open = Measurement { low: Some(0.0), ..m };
+    let r = convert(&open, &c, &Settings::default()).unwrap();
+    assert!(r.low.is_none() && r.high.is_some());
+    let below = Measurement { low: Some(0.4 * NM), ..m };
+    let r = convert(&below, &Conditions { enzyme: Some(1.0 * NM), ..c }, &Settings::default()).unwrap();
+    assert!(r.low.is_none() && r.high.is_some());
+    // A negative end is an error.
+    assert!(convert(&Measurement { low: Some(-NM), ..m }, &c, &Settings::default()).is_err());
     // Without Km's SE the IC50 ends map straight through the relation: 50 … 80 nM.
     let r = convert(&m, &Conditions { km_se: None, ..c }, &Settings::default()).unwrap();
     assert_relative_eq!(r.low.unwrap(), 50.0 * NM, max_relative = 1e-12);

@@ -229,6 +229,8 @@ impl Problem {
 /// Converts one IC50 under the given conditions.
 pub fn convert(m: &Measurement, c: &Conditions, settings: &Settings) -> Result<Conversion, Problem> {
     positive("IC50", Some(m.ic50))?;
+    // A lower interval end of exactly zero says "down to zero": no lower end.
+    let m = &Measurement { low: m.low.filter(|v| v.is_nan() || *v < 0.0 || *v > 0.0), ..*m };
     for (what, v) in [
         ("lower end of the IC50 interval", m.low),
         ("upper end of the IC50 interval", m.high),
