@@ -2,12 +2,15 @@
 //! stage's output is parsed as the next stage's input, exactly as a user
 //! would pipe the commands.
 
-use super::{OutputArgs, km, rates};
+use super::{OutputArgs, ki, km, rank, rates};
 use crate::error::Result;
 use crate::io::{Format, Table};
 
 /// Invented progress curves (see demo-compounds/README.md).
 const PROGRESS_CURVES: &str = include_str!("../../demo-compounds/progress-curves.csv");
+
+/// The invented IC50 table of a second assay at other conditions (see its header comments).
+const SECOND_ASSAY: &str = include_str!("../../demo-compounds/second-assay-ic50.csv");
 
 /// Run every stage on the invented demo scenario and print a summary.
 #[derive(Debug, Clone, clap::Args)]
@@ -22,7 +25,9 @@ pub fn run(_args: &Args) -> Result<()> {
     println!("kimech demo — an invented scenario: the fictional enzyme veridase-7 (VRD7)");
     println!("and fictional compounds KX-101 … (see demo-compounds/README.md). Nothing here is real data.\n");
     let rate_table = rates_stage()?;
-    km_stage(&rate_table)
+    let km_status = km_stage(&rate_table);
+    let ki_status = ki_rank_stage();
+    km_status.and(ki_status)
 }
 
 /// Stage 1: progress curves → initial rates; returns the rates as the table `km` reads.
@@ -60,4 +65,75 @@ fn km_stage(rate_table: &Table) -> Result<()> {
     let outcome = km::process(rate_table, &args)?;
     print!("{}", km::human(&outcome.results));
     super::finish(&outcome.failures, outcome.total, "series")
+}
+
+/// Stages 3 and 4: IC50 tables → Ki → ranking.
+fn ki_rank_stage() -> Result<()> {
+    let second = "demo-compounds/second-assay-ic50.csv";
+    ki_and_rank(&[(second, SECOND_ASSAY, ki_args(second))])
+}
+
+/// The `ki` and `rank` stages: each IC50 table (name, CSV text, `ki` options) goes through
+/// `kimech ki` and its CSV output, and all of them together through `kimech rank`,
+/// exactly as a user would pipe them.
+pub fn ki_and_rank(tables: &[(&str, &str, ki::Args)]) -> Result<()> {
+    let mut ki_csv = Vec::new();
+    let mut failures = Vec::new();
+    let mut total = 0;
+    for (name, text, args) in tables {
+        println!("\nStage — IC50 table → Ki (conditions from the table's columns)");
+        println!("  $ kimech ki {name}\n");
+        let table = crate::io::Table::parse(name, text.as_bytes(), b',')?;
+        let (rows, carried, row_failures) = ki::convert_table(&table, args)?;
+        print!("{}", ki::human(&rows));
+        total += rows.len();
+        failures.extend(row_failures);
+        ki_csv.push((
+            format!("{}-ki.csv", name.trim_end_matches(".csv")),
+            ki::render(&rows, &carried, crate::io::Format::Csv)?,
+        ));
+    }
+    let names: Vec<&str> = ki_csv.iter().map(|(n, _)| n.as_str()).collect();
+    println!("\nStage — Ki → one ranked, flagged, registry-ready table (selectivity against VRD3)");
+    for ((n, _), (name, _, _)) in ki_csv.iter().zip(tables) {
+        println!("  $ kimech ki {name} --format csv -o {n}");
+    }
+    println!("  $ kimech rank {} --versus VRD3\n", names.join(" "));
+    let mut entries = Vec::new();
+    for (n, bytes) in &ki_csv {
+        let table = crate::io::Table::parse(n, bytes, b',')?;
+        let (e, f) = rank::read_entries(&table, None)?;
+        entries.extend(e);
+        failures.extend(f);
+    }
+    let options = crate::analysis::rank::Options { versus: Some("VRD3".into()), confidence: 0.95 };
+    let ranked = crate::analysis::rank::aggregate(&entries, &options);
+    print!(
+        "{}",
+        String::from_utf8_lossy(&rank::render(&ranked, crate::units::ConcUnit::Nanomolar, crate::io::Format::Table)?)
+    );
+    println!("(`kimech rank … --format csv` writes the same rows as the registry export; columns in README.md.)");
+    super::finish(&failures, total, "rows")
+}
+
+/// `kimech ki NAME` with every default: conditions come from the table.
+pub fn ki_args(name: &str) -> ki::Args {
+    ki::Args {
+        file: name.to_string(),
+        substrate: None,
+        km: None,
+        km_se: None,
+        enzyme: None,
+        mechanism: crate::convert::Mechanism::Unknown,
+        alpha: None,
+        assay: crate::convert::Assay::Enzyme,
+        ligand: None,
+        kd: None,
+        unit: crate::units::ConcUnit::Nanomolar,
+        ic50_unit: None,
+        conc_unit: None,
+        hill_tolerance: 0.5,
+        confidence: 0.95,
+        output: stdout_table(),
+    }
 }

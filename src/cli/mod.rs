@@ -10,7 +10,9 @@ use crate::error::{Error, Result};
 use crate::io::Format;
 
 pub mod demo;
+pub mod ki;
 pub mod km;
+pub mod rank;
 pub mod rates;
 
 /// Enzyme-inhibitor potency and mechanism analysis.
@@ -30,6 +32,10 @@ enum Command {
     Rates(rates::Args),
     /// Fit Michaelis–Menten to substrate series: Vmax, Km, kcat.
     Km(km::Args),
+    /// Convert IC50 values to Ki with the relation, mechanism and assumption checks behind each.
+    Ki(ki::Args),
+    /// Aggregate, rank and export Ki results: the registry table.
+    Rank(rank::Args),
     /// Run the whole chain on the bundled invented demo scenario.
     Demo(demo::Args),
 }
@@ -50,6 +56,8 @@ pub fn run(args: impl IntoIterator<Item = impl Into<OsString> + Clone>) -> Resul
     match cli.command {
         Command::Rates(args) => rates::run(&args),
         Command::Km(args) => km::run(&args),
+        Command::Ki(args) => ki::run(&args),
+        Command::Rank(args) => rank::run(&args),
         Command::Demo(args) => demo::run(&args),
     }
 }
