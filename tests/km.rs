@@ -350,3 +350,22 @@ fn profile_reports_unbounded_when_the_data_cannot_bound_km() {
     assert!(r.params.km.note.as_deref().unwrap_or("").contains("no upper bound"), "{:?}", r.params.km);
     assert!(r.warnings.iter().any(|w| w.code == "km-not-bracketed"));
 }
+
+#[test]
+fn json_output_keeps_the_documented_contract() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("p.csv"), puromycin_csv()).unwrap();
+    let out = kimech(dir.path()).args(["km", "p.csv", "--format", "json", "--enzyme", "1 nM"]).output().unwrap();
+    let json: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let r = &json["results"][0];
+    for key in ["series", "n", "df", "sse", "residual_sd", "r2", "converged", "params", "warnings"] {
+        assert!(r.get(key).is_some(), "missing {key}");
+    }
+    assert!(r["n"].is_u64() && r["df"].is_u64() && r["converged"].is_boolean() && r["warnings"].is_array());
+    for p in ["vmax", "km", "kcat", "kcat_km"] {
+        for key in ["value", "se", "low", "high", "unit"] {
+            assert!(r["params"][p].get(key).is_some(), "params.{p}.{key}");
+        }
+    }
+    assert_eq!(r["params"]["km"]["unit"], "uM");
+}

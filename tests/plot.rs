@@ -25,9 +25,13 @@ fn puromycin_treated() -> KmResult {
     analyse(&series, &units, &options).unwrap()
 }
 
-/// The invented demo substrate series (demo-compounds/README.md).
-fn demo_series() -> std::path::PathBuf {
-    std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-compounds/substrate-series.csv")
+/// Puromycin (fixtures/README.md) as a km input; its ppm are labelled uM, as in tests/km.rs,
+/// because km needs a concentration unit and the unit only labels the axes here.
+fn puromycin_input(dir: &std::path::Path) -> std::path::PathBuf {
+    let path = dir.join("p.csv");
+    let text = fixture_text("puromycin.csv").replacen("state,conc,rate", "series,substrate (uM),rate (uM/min)", 1);
+    std::fs::write(&path, text).unwrap();
+    path
 }
 
 /// The `points` of every `<polyline>` drawn with this stroke colour and width.
@@ -202,14 +206,12 @@ fn assert_self_contained(html: &str) {
 #[test]
 fn km_report_holds_tables_warnings_and_one_figure_per_series() {
     let dir = tempfile::tempdir().unwrap();
-    kimech(dir.path())
-        .args(["km", demo_series().to_str().unwrap(), "--enzyme", "5 nM", "--report", "r.html"])
-        .assert()
-        .success();
+    puromycin_input(dir.path());
+    kimech(dir.path()).args(["km", "p.csv", "--enzyme", "5 nM", "--report", "r.html"]).assert().success();
     let html = std::fs::read_to_string(dir.path().join("r.html")).unwrap();
     assert_self_contained(&html);
-    assert_eq!(html.matches("<svg").count(), 2, "batch-A and batch-B");
-    assert!(html.contains("Michaelis–Menten fit — series batch-A"));
+    assert_eq!(html.matches("<svg").count(), 2, "treated and untreated");
+    assert!(html.contains("Michaelis–Menten fit — series treated"));
     assert!(html.contains("kcat/Km"));
     assert!(html.contains("<table>") && html.contains("Km") && html.contains("profile"));
     assert!(html.contains(&kimech::plot::html::escape(kimech::cli::CAUTION)));
@@ -387,4 +389,71 @@ fn dose_curve_passes_through_its_midpoint_at_the_ic50_and_rankings_draw_bounds()
     assert!((w1 - w2).abs() < 1e-6);
     // The bound in the ranking is drawn as an open marker (a circle outlined in vermilion).
     assert!(svg.text.contains("fill=\"none\" stroke=\"#D55E00\""), "the bound's open marker");
+}
+
+/// Centres of the filled diamonds (estimate markers) of a colour: (x, y) pixels.
+fn diamonds(svg: &str, fill: &str) -> Vec<(f64, f64)> {
+    let mut out = Vec::new();
+    for element in svg.split("<polygon").skip(1) {
+        let tag = &element[..element.find("/>").unwrap()];
+        if !tag.contains(&format!("fill=\"{fill}\"")) {
+            continue;
+        }
+        let start = tag.find("points=\"").unwrap() + 8;
+        let pts: Vec<(f64, f64)> = tag[start..start + tag[start..].find('"').unwrap()]
+            .split_whitespace()
+            .map(|p| {
+                let (x, y) = p.split_once(',').unwrap();
+                (x.parse().unwrap(), y.parse().unwrap())
+            })
+            .collect();
+        if pts.len() == 4 {
+            let n = pts.len() as f64;
+            out.push((pts.iter().map(|p| p.0).sum::<f64>() / n, pts.iter().map(|p| p.1).sum::<f64>() / n));
+        }
+    }
+    out
+}
+
+#[test]
+fn rank_plots_put_each_compound_at_its_pki_and_draw_bounds_apart() {
+    // Hand-worked: Ki 10 nM → pKi 8, 1 uM → 6 (pKi = −log10 Ki in M); "> 10 uM" is the bound pKi < 5.
+    let csv = "compound,target,ki (nM),qualifier,method,mechanism\n\
+               KX-A,T1,10,,m,competitive\n\
+               KX-B,T1,1000,,m,competitive\n\
+               KX-C,T1,10000,>,m,competitive\n\
+               KX-A,T2/β,50,,m,competitive\n";
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("ki.csv"), csv).unwrap();
+    kimech(dir.path()).args(["rank", "ki.csv", "--plot", "plots", "--report", "rank.html"]).assert().success();
+    let mut names: Vec<String> = std::fs::read_dir(dir.path().join("plots"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().into_string().unwrap())
+        .collect();
+    names.sort();
+    assert_eq!(names, ["rank-T1-Ki.svg", "rank-T2_-Ki.svg"]);
+    let html = std::fs::read_to_string(dir.path().join("rank.html")).unwrap();
+    assert_self_contained(&html);
+    assert_eq!(html.matches("<svg").count(), 2);
+
+    let rows: Vec<kimech::analysis::rank::RankRow> = {
+        let table = kimech::io::Table::parse("ki.csv", csv.as_bytes(), b',').unwrap();
+        let (entries, _) = kimech::cli::rank::read_entries(&table, None).unwrap();
+        let options = kimech::analysis::rank::Options { versus: None, confidence: 0.95 };
+        kimech::analysis::rank::aggregate(&entries, &options)
+    };
+    let groups = kimech::plot::rank::groups(&rows);
+    let ((target, endpoint), group) = &groups[0];
+    let svg = kimech::plot::rank::group_figure(target, endpoint, group).unwrap();
+    assert!(inked_fraction(&svg.text) > 0.01);
+    let frame = svg.frames[0];
+    let mut xs: Vec<f64> = diamonds(&svg.text, "#0072B2").iter().map(|&(u, v)| frame.value_at(u, v).0).collect();
+    xs.sort_by(f64::total_cmp);
+    // The legend also draws one diamond, left of the plotting area; keep those inside it.
+    xs.retain(|x| frame.x.contains(*x));
+    assert_eq!(xs.len(), 2, "two estimates: {xs:?}");
+    let px = (frame.x.hi - frame.x.lo) / (frame.px.1 - frame.px.0) as f64;
+    assert!((xs[0] - 6.0).abs() <= px && (xs[1] - 8.0).abs() <= px, "{xs:?}");
+    // The bound is an open circle in the second colour, not a diamond.
+    assert!(svg.text.contains("fill=\"none\" stroke=\"#D55E00\""));
 }

@@ -2,3 +2,5 @@
 //! Nothing here reads files or prints; the `cli` layer does that.
 
 pub mod km;
+pub mod rank;
+pub mod rates;

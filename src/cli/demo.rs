@@ -1,18 +1,25 @@
-//! `kimech demo`: the whole chain on the bundled invented scenario.
+//! `kimech demo`: the whole chain on the bundled invented scenario. Each
+//! stage's output is parsed as the next stage's input, exactly as a user
+//! would pipe the commands.
 
 use std::path::PathBuf;
 
-use super::km;
+use super::{OutputArgs, ki, km, rank, rates};
 use crate::error::Result;
-use crate::plot::html::{Page, Section};
+use crate::io::{Format, Table};
+use crate::plot::html::{Block, Page, Section, without_caution};
 
-/// The invented substrate series (see demo-compounds/README.md).
-const SUBSTRATE_SERIES: &str = include_str!("../../demo-compounds/substrate-series.csv");
+/// Invented progress curves (see demo-compounds/README.md).
+const PROGRESS_CURVES: &str = include_str!("../../demo-compounds/progress-curves.csv");
+
+/// The invented IC50 table of a second assay at other conditions (see its header comments).
+const SECOND_ASSAY: &str = include_str!("../../demo-compounds/second-assay-ic50.csv");
 
 /// Where the report goes when `--report` is not given.
 const DEFAULT_REPORT: &str = "kimech-demo-report.html";
 
-/// Run every stage on the invented demo scenario and print a summary.
+/// Run every stage on the invented demo scenario, print a summary and write
+/// an HTML report with the tables and charts.
 #[derive(Debug, Clone, clap::Args)]
 pub struct Args {
     /// Write the HTML report here (default: kimech-demo-report.html in the current directory).
@@ -20,36 +27,22 @@ pub struct Args {
     pub report: Option<PathBuf>,
 }
 
+fn stdout_table() -> OutputArgs {
+    OutputArgs { format: Format::Table, output: None }
+}
+
 /// Runs the demo.
 pub fn run(args: &Args) -> Result<()> {
     println!("kimech demo — an invented scenario: the fictional enzyme veridase-7 (VRD7)");
     println!("and fictional compounds KX-101 … (see demo-compounds/README.md). Nothing here is real data.\n");
     let mut sections = Vec::new();
-    let km_outcome = km_stage(&mut sections)?;
+    let rate_table = rates_stage(&mut sections)?;
+    let km_status = km_stage(&rate_table, &mut sections);
+    let ki_status = ki_rank_stage(&mut sections);
     let path = args.report.clone().unwrap_or_else(|| PathBuf::from(DEFAULT_REPORT));
     write_report(&path, sections)?;
     println!("\nReport written to {}", path.display());
-    super::finish(&km_outcome.failures, km_outcome.total, "series")
-}
-
-/// Stage 1: substrate series → Km, Vmax, kcat.
-fn km_stage(sections: &mut Vec<Section>) -> Result<km::Outcome> {
-    println!("Stage 1 — substrate series → Km, Vmax, kcat");
-    println!("  $ kimech km demo-compounds/substrate-series.csv --enzyme \"5 nM\"\n");
-    let table = crate::io::Table::parse("demo-compounds/substrate-series.csv", SUBSTRATE_SERIES.as_bytes(), b',')?;
-    let args = km::Args {
-        file: "demo-compounds/substrate-series.csv".into(),
-        substrate_unit: None,
-        enzyme: crate::units::ConcentrationArg::parse("5 nM").ok(),
-        weighting: km::WeightingArg::None,
-        confidence: 0.95,
-        output: super::OutputArgs { format: crate::io::Format::Table, output: None },
-        pictures: super::PictureArgs::default(),
-    };
-    let outcome = km::process(&table, &args)?;
-    print!("{}", km::human(&outcome.results));
-    sections.push(crate::plot::km::section(&outcome.results, &outcome.failures, &km::command_line(&args))?);
-    Ok(outcome)
+    km_status.and(ki_status)
 }
 
 /// Writes the demo's report page.
@@ -64,4 +57,136 @@ fn write_report(path: &std::path::Path, sections: Vec<Section>) -> Result<()> {
         caution: super::CAUTION.to_string(),
     };
     crate::io::write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[])
+}
+
+/// A section holding a command's human output as it is.
+fn text_section(heading: &str, command: &str, text: &str) -> Section {
+    Section {
+        heading: heading.into(),
+        command: Some(command.into()),
+        blocks: vec![Block::Preformatted(without_caution(text))],
+    }
+}
+
+/// Stage 1: progress curves → initial rates; returns the rates as the table `km` reads.
+fn rates_stage(sections: &mut Vec<Section>) -> Result<Table> {
+    println!("Stage 1 — progress curves → initial rates");
+    println!("  $ kimech rates demo-compounds/progress-curves.csv --format csv -o rates.csv\n");
+    let input = Table::parse("demo-compounds/progress-curves.csv", PROGRESS_CURVES.as_bytes(), b',')?;
+    let args = rates::Args {
+        file: "demo-compounds/progress-curves.csv".into(),
+        min_points: 4,
+        curvature_alpha: 0.05,
+        max_conversion: 0.1,
+        confidence: 0.95,
+        output: stdout_table(),
+    };
+    let outcome = rates::process(&input, &args)?;
+    let text = String::from_utf8_lossy(&rates::render(&outcome, Format::Table)?).into_owned();
+    print!("{text}");
+    println!();
+    sections.push(text_section(
+        "Initial rates",
+        "kimech rates demo-compounds/progress-curves.csv --format csv -o rates.csv",
+        &text,
+    ));
+    super::finish(&outcome.failures, outcome.total, "curves")?;
+    Table::parse("rates.csv", &rates::render(&outcome, Format::Csv)?, b',')
+}
+
+/// Stage 2: initial rates → Km, Vmax, kcat.
+fn km_stage(rate_table: &Table, sections: &mut Vec<Section>) -> Result<()> {
+    println!("Stage 2 — initial rates → Km, Vmax, kcat");
+    println!("  $ kimech km rates.csv --enzyme \"5 nM\"\n");
+    let args = km::Args {
+        file: "rates.csv".into(),
+        substrate_unit: None,
+        enzyme: crate::units::ConcentrationArg::parse("5 nM").ok(),
+        weighting: km::WeightingArg::None,
+        confidence: 0.95,
+        output: stdout_table(),
+        pictures: super::PictureArgs::default(),
+    };
+    let outcome = km::process(rate_table, &args)?;
+    print!("{}", km::human(&outcome.results));
+    sections.push(crate::plot::km::section(&outcome.results, &outcome.failures, &km::command_line(&args))?);
+    super::finish(&outcome.failures, outcome.total, "series")
+}
+
+/// Stages 3 and 4: IC50 tables → Ki → ranking.
+fn ki_rank_stage(sections: &mut Vec<Section>) -> Result<()> {
+    let second = "demo-compounds/second-assay-ic50.csv";
+    ki_and_rank_into(&[(second, SECOND_ASSAY, ki_args(second))], sections)
+}
+
+/// The `ki` and `rank` stages: each IC50 table (name, CSV text, `ki` options) goes through
+/// `kimech ki` and its CSV output, and all of them together through `kimech rank`,
+/// exactly as a user would pipe them.
+pub fn ki_and_rank(tables: &[(&str, &str, ki::Args)]) -> Result<()> {
+    ki_and_rank_into(tables, &mut Vec::new())
+}
+
+/// [`ki_and_rank`], adding a report section per stage (the ranking with its charts).
+pub fn ki_and_rank_into(tables: &[(&str, &str, ki::Args)], sections: &mut Vec<Section>) -> Result<()> {
+    let mut ki_csv = Vec::new();
+    let mut failures = Vec::new();
+    let mut total = 0;
+    for (name, text, args) in tables {
+        println!("\nStage — IC50 table → Ki (conditions from the table's columns)");
+        println!("  $ kimech ki {name}\n");
+        let table = crate::io::Table::parse(name, text.as_bytes(), b',')?;
+        let (rows, carried, row_failures) = ki::convert_table(&table, args)?;
+        let human = ki::human(&rows);
+        print!("{human}");
+        sections.push(text_section(&format!("Ki from {name}"), &format!("kimech ki {name}"), &human));
+        total += rows.len();
+        failures.extend(row_failures);
+        ki_csv.push((
+            format!("{}-ki.csv", name.trim_end_matches(".csv")),
+            ki::render(&rows, &carried, crate::io::Format::Csv)?,
+        ));
+    }
+    let names: Vec<&str> = ki_csv.iter().map(|(n, _)| n.as_str()).collect();
+    println!("\nStage — Ki → one ranked, flagged, registry-ready table (selectivity against VRD3)");
+    for ((n, _), (name, _, _)) in ki_csv.iter().zip(tables) {
+        println!("  $ kimech ki {name} --format csv -o {n}");
+    }
+    println!("  $ kimech rank {} --versus VRD3\n", names.join(" "));
+    let mut entries = Vec::new();
+    for (n, bytes) in &ki_csv {
+        let table = crate::io::Table::parse(n, bytes, b',')?;
+        let (e, f) = rank::read_entries(&table, None)?;
+        entries.extend(e);
+        failures.extend(f);
+    }
+    let options = crate::analysis::rank::Options { versus: Some("VRD3".into()), confidence: 0.95 };
+    let ranked = crate::analysis::rank::aggregate(&entries, &options);
+    let unit = crate::units::ConcUnit::Nanomolar;
+    print!("{}", String::from_utf8_lossy(&rank::render(&ranked, unit, crate::io::Format::Table)?));
+    let command = format!("kimech rank {} --versus VRD3", names.join(" "));
+    sections.push(crate::plot::rank::section(&ranked, unit, &failures, &command)?);
+    println!("(`kimech rank … --format csv` writes the same rows as the registry export; columns in README.md.)");
+    super::finish(&failures, total, "rows")
+}
+
+/// `kimech ki NAME` with every default: conditions come from the table.
+pub fn ki_args(name: &str) -> ki::Args {
+    ki::Args {
+        file: name.to_string(),
+        substrate: None,
+        km: None,
+        km_se: None,
+        enzyme: None,
+        mechanism: crate::convert::Mechanism::Unknown,
+        alpha: None,
+        assay: crate::convert::Assay::Enzyme,
+        ligand: None,
+        kd: None,
+        unit: crate::units::ConcUnit::Nanomolar,
+        ic50_unit: None,
+        conc_unit: None,
+        hill_tolerance: 0.5,
+        confidence: 0.95,
+        output: stdout_table(),
+    }
 }

@@ -189,7 +189,7 @@ fn read_series(table: &Table, args: &Args) -> Result<(Vec<Series>, Units)> {
     for (label, rows) in groups {
         let mut s = Series {
             label,
-            origin: origin(&rows),
+            origin: super::rows_origin(&rows),
             substrate: Vec::new(),
             rate: Vec::new(),
             sd: sd_col.map(|_| Vec::new()),
@@ -224,14 +224,6 @@ fn read_series(table: &Table, args: &Args) -> Result<(Vec<Series>, Units)> {
     let units =
         Units { substrate: unit.map(|u| u.symbol().to_string()), rate: table.unit_text(v_col).map(str::to_string) };
     Ok((series, units))
-}
-
-fn origin(rows: &[&crate::io::input::Record]) -> String {
-    match (rows.first(), rows.last()) {
-        (Some(a), Some(b)) if a.line == b.line => format!("line {}", a.line),
-        (Some(a), Some(b)) => format!("lines {}-{}", a.line, b.line),
-        _ => "no rows".into(),
-    }
 }
 
 /// Serialises results in the chosen format.

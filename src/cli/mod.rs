@@ -10,7 +10,10 @@ use crate::error::{Error, Result};
 use crate::io::Format;
 
 pub mod demo;
+pub mod ki;
 pub mod km;
+pub mod rank;
+pub mod rates;
 
 /// Enzyme-inhibitor potency and mechanism analysis.
 ///
@@ -25,8 +28,14 @@ pub struct Cli {
 
 #[derive(Debug, Subcommand)]
 enum Command {
+    /// Initial rates from progress curves (output feeds `km`).
+    Rates(rates::Args),
     /// Fit Michaelis–Menten to substrate series: Vmax, Km, kcat.
     Km(km::Args),
+    /// Convert IC50 values to Ki with the relation, mechanism and assumption checks behind each.
+    Ki(ki::Args),
+    /// Aggregate, rank and export Ki results: the registry table.
+    Rank(rank::Args),
     /// Run the whole chain on the bundled invented demo scenario.
     Demo(demo::Args),
 }
@@ -45,7 +54,10 @@ pub fn run(args: impl IntoIterator<Item = impl Into<OsString> + Clone>) -> Resul
         }
     };
     match cli.command {
+        Command::Rates(args) => rates::run(&args),
         Command::Km(args) => km::run(&args),
+        Command::Ki(args) => ki::run(&args),
+        Command::Rank(args) => rank::run(&args),
         Command::Demo(args) => demo::run(&args),
     }
 }
@@ -89,6 +101,15 @@ pub fn finish(failures: &[Error], total: usize, what: &'static str) -> Result<()
         eprintln!("kimech: {f}");
     }
     if failures.is_empty() { Ok(()) } else { Err(Error::Partial { failed: failures.len(), total, what }) }
+}
+
+/// "line 4" or "lines 4-9": where a group's rows are, for messages.
+pub fn rows_origin(rows: &[&crate::io::input::Record]) -> String {
+    match (rows.first(), rows.last()) {
+        (Some(a), Some(b)) if a.line == b.line => format!("line {}", a.line),
+        (Some(a), Some(b)) => format!("lines {}-{}", a.line, b.line),
+        _ => "no rows".into(),
+    }
 }
 
 /// The sentence every human-readable report ends with.

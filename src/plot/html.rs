@@ -44,6 +44,8 @@ pub enum Block {
     Warnings(Vec<(String, String)>),
     /// Errors of groups that could not be analysed.
     Failures(Vec<String>),
+    /// Text laid out in columns already (a command's human table), shown as it is.
+    Preformatted(String),
     /// A figure: inline SVG and a caption.
     Figure {
         /// The SVG document as the chart functions return it.
@@ -60,6 +62,13 @@ pub struct Table {
     pub header: Vec<String>,
     /// Rows; numbers already formatted.
     pub rows: Vec<Vec<String>>,
+}
+
+/// A command's human output without its closing caution, which the page
+/// states once at its end.
+pub fn without_caution(text: &str) -> String {
+    let trimmed = text.trim_end();
+    trimmed.strip_suffix(crate::cli::CAUTION).unwrap_or(trimmed).trim_end().to_string()
 }
 
 /// Escapes text for HTML element content and attribute values.
@@ -93,6 +102,8 @@ p.lede { color: var(--muted); margin: 4px 0; }
 code, .code { font-family: ui-monospace, "SFMono-Regular", Menlo, Consolas, monospace; font-size: 13px; }
 pre.command { background: #fff; border: 1px solid var(--rule); border-radius: 4px; padding: 8px 12px;
   overflow-x: auto; margin: 8px 0 14px; }
+pre.table { background: #fff; border: 1px solid var(--rule); padding: 8px 12px; overflow-x: auto;
+  font: 12.5px/1.35 ui-monospace, "SFMono-Regular", Menlo, Consolas, monospace; }
 table { border-collapse: collapse; margin: 8px 0 12px; background: #fff; }
 th, td { padding: 4px 14px 4px 0; text-align: left; }
 th { font-weight: 600; border-bottom: 1px solid var(--ink); }
@@ -157,6 +168,7 @@ fn render_block(out: &mut String, block: &Block) {
             out.push_str("</ul>\n");
         }
         Block::Warnings(_) | Block::Failures(_) => {}
+        Block::Preformatted(text) => out.push_str(&format!("<pre class=\"table\">{}</pre>\n", escape(text))),
         Block::Figure { svg, caption } => {
             out.push_str("<figure>\n");
             out.push_str(&super::inline(svg));
