@@ -35,16 +35,15 @@ pub(crate) fn reciprocal_unit(unit: Option<&str>) -> Option<String> {
     })
 }
 
-/// "12.3 (95% CI 10.1–14.9)" with the words for a missing end.
-pub(crate) fn estimate_text(p: &Param, confidence: f64) -> String {
+/// "12.3 (10.1–14.9) uM": the estimate, its interval (words for a missing end) and unit.
+pub(crate) fn estimate_text(p: &Param) -> String {
     let end = |v: Option<f64>, word: &str| v.map_or(word.to_string(), |v| sig(v, 3));
     format!(
-        "{}{} ({:.0}% CI {} to {})",
-        sig(p.value, 4),
-        p.unit.as_deref().map_or(String::new(), |u| format!(" {u}")),
-        confidence * 100.0,
-        end(p.low, "not bounded"),
-        end(p.high, "not bounded")
+        "{} ({}–{}){}",
+        sig(p.value, 3),
+        end(p.low, "unbounded"),
+        end(p.high, "unbounded"),
+        p.unit.as_deref().map_or(String::new(), |u| format!(" {u}"))
     )
 }
 
@@ -59,9 +58,10 @@ pub fn rate_panel(r: &KmResult) -> XyChart {
     let y = Axis::linear(format!("initial rate v{}", unit_suffix(v_unit))).from_zero();
     let mut chart = XyChart::new(format!("Rate vs substrate — {}", series_name(r)), x, y);
     chart.subtitle = Some(format!(
-        "Vmax = {}; Km = {}",
-        estimate_text(&r.params.vmax, r.confidence),
-        estimate_text(&r.params.km, r.confidence)
+        "Vmax {} · Km {} ({:.0}% CI)",
+        estimate_text(&r.params.vmax),
+        estimate_text(&r.params.km),
+        r.confidence * 100.0
     ));
     chart.flagged = !r.warnings.is_empty();
     let s_max = r.observations.substrate.iter().cloned().fold(0.0, f64::max);
@@ -71,11 +71,11 @@ pub fn rate_panel(r: &KmResult) -> XyChart {
         (0..=n).map(|k| top * k as f64 / n as f64).filter_map(|s| r.rate_band(s).map(|(lo, hi)| (s, lo, hi))).collect();
     let level = format!("{:.0}%", r.confidence * 100.0);
     if !band.is_empty() {
-        chart.layers.push(Layer::Band { label: Some(format!("{level} band for the mean")), series: 0, points: band });
+        chart.layers.push(Layer::Band { label: Some(format!("{level} band")), series: 0, points: band });
     }
     let (vmax, km) = (r.params.vmax.value, r.params.km.value);
     chart.layers.push(Layer::Function {
-        label: Some("Michaelis–Menten fit".into()),
+        label: Some("fit".into()),
         series: 0,
         f: Box::new(move |s| vmax * s / (km + s)),
         dashed: false,
@@ -120,7 +120,7 @@ pub fn reciprocal_panel(r: &KmResult) -> XyChart {
     let mut chart = XyChart::new(format!("Double reciprocal — {}", series_name(r)), x, y);
     let dr = &r.double_reciprocal;
     chart.subtitle = Some(format!(
-        "line from the fit: slope Km/Vmax = {}, 1/v intercept = {}, 1/S intercept = {}",
+        "slope Km/Vmax {} · 1/v intercept {} · 1/S intercept {}",
         sig(dr.slope, 3),
         sig(dr.y_intercept, 3),
         sig(dr.x_intercept, 3)
@@ -133,7 +133,7 @@ pub fn reciprocal_panel(r: &KmResult) -> XyChart {
     let (slope, intercept) = (dr.slope, dr.y_intercept);
     chart.layers.push(Layer::Reference { at: Line::Vertical(0.0), label: None });
     chart.layers.push(Layer::Function {
-        label: Some("line from fitted Vmax, Km".into()),
+        label: Some("from fitted Vmax, Km".into()),
         series: 0,
         f: Box::new(move |x| slope * x + intercept),
         dashed: false,

@@ -37,7 +37,7 @@ pub struct Svg {
 }
 
 /// The pixel size of one panel in a figure.
-pub const PANEL: (u32, u32) = (470, 390);
+pub const PANEL: (u32, u32) = (400, 360);
 /// The pixel size of one thumbnail in a grid.
 pub const THUMBNAIL: (u32, u32) = (380, 300);
 
