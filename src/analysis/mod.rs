@@ -2,3 +2,4 @@
 //! Nothing here reads files or prints; the `cli` layer does that.
 
 pub mod km;
+pub mod mode;

@@ -11,6 +11,7 @@ use crate::io::Format;
 
 pub mod demo;
 pub mod km;
+pub mod mode;
 
 /// Enzyme-inhibitor potency and mechanism analysis.
 ///
@@ -27,6 +28,8 @@ pub struct Cli {
 enum Command {
     /// Fit Michaelis–Menten to substrate series: Vmax, Km, kcat.
     Km(km::Args),
+    /// Say how a compound inhibits: global fits of five rate laws to an [S]×[I] rate matrix.
+    Mode(mode::Args),
     /// Run the whole chain on the bundled invented demo scenario.
     Demo(demo::Args),
 }
@@ -47,6 +50,7 @@ pub fn run(args: impl IntoIterator<Item = impl Into<OsString> + Clone>) -> Resul
     match cli.command {
         Command::Km(args) => km::run(&args),
         Command::Demo(args) => demo::run(&args),
+        Command::Mode(args) => mode::run(&args),
     }
 }
 

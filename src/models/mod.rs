@@ -4,3 +4,4 @@
 pub mod michaelis_menten;
 
 pub use michaelis_menten::MichaelisMenten;
+pub mod inhibition;
