@@ -362,3 +362,28 @@ fn fails_without_a_unit_naming_the_flag() {
 }
 
 use predicates::prelude::PredicateBooleanExt;
+
+// ---------------------------------------------------------------------------
+// The invented demo (demo-compounds/make_rate_matrix.py states each compound's mechanism).
+
+#[test]
+fn demo_matrix_names_each_compound_s_mechanism() {
+    let doc = json_of(&["mode", &format!("{ROOT}/demo-compounds/rate-matrix.csv"), "--format", "json"]);
+    let chosen: Vec<(String, String)> = doc["results"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| (r["compound"].as_str().unwrap().into(), r["chosen"].as_str().unwrap().into()))
+        .collect();
+    let made_with = [
+        ("KX-201", "competitive"),
+        ("KX-202", "uncompetitive"),
+        ("KX-203", "noncompetitive"),
+        ("KX-204", "mixed"),
+        ("KX-205", "none"),
+    ];
+    assert_eq!(chosen, made_with.map(|(a, b)| (a.to_string(), b.to_string())));
+    let demo = kimech().arg("demo").output().unwrap();
+    let text = String::from_utf8(demo.stdout).unwrap();
+    assert!(text.contains("$ kimech mode demo-compounds/rate-matrix.csv") && text.contains("Inhibition mode — KX-204"));
+}

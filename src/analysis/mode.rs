@@ -536,6 +536,17 @@ fn reparametrised(fit: &Fit, theta: [f64; 2], se: [Option<f64>; 2]) -> Fit {
     f
 }
 
+/// Refits along a profile need the SSE to ~1e-10 relative, far below the
+/// ~7% rise that defines an interval end; tighter tolerances only cost time.
+fn profile_settings(settings: &FitSettings) -> FitSettings {
+    FitSettings {
+        ftol: settings.ftol.max(1e-10),
+        xtol: settings.xtol.max(1e-10),
+        gtol: settings.gtol.max(1e-10),
+        ..*settings
+    }
+}
+
 /// Interval methods over the model forms, so one closure can serve them all.
 trait Profiled {
     fn profile(&self, data: &Data<Point>, fit: &Fit, j: usize, options: &Options) -> Interval;
@@ -544,7 +555,7 @@ trait Profiled {
 
 impl<M: Model<Point = Point>> Profiled for M {
     fn profile(&self, data: &Data<Point>, fit: &Fit, j: usize, options: &Options) -> Interval {
-        profile(self, data, fit, j, options.confidence, &options.settings)
+        profile(self, data, fit, j, options.confidence, &profile_settings(&options.settings))
     }
     fn wald(&self, fit: &Fit, j: usize, options: &Options) -> Interval {
         wald(self, fit, j, options.confidence)
