@@ -383,7 +383,36 @@ fn demo_matrix_names_each_compound_s_mechanism() {
         ("KX-205", "none"),
     ];
     assert_eq!(chosen, made_with.map(|(a, b)| (a.to_string(), b.to_string())));
+    let inactive = &doc["results"][4]["warnings"];
+    assert!(inactive.as_array().unwrap().iter().any(|w| w["code"] == "no-inhibition-detected"), "{inactive}");
     let demo = kimech().arg("demo").output().unwrap();
     let text = String::from_utf8(demo.stdout).unwrap();
     assert!(text.contains("$ kimech mode demo-compounds/rate-matrix.csv") && text.contains("Inhibition mode — KX-204"));
+}
+
+#[test]
+fn warns_about_a_design_that_cannot_decide() {
+    // Only two non-zero inhibitor levels and no uninhibited series (issue 3's design warnings).
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(format!("{ROOT}/fixtures/mode/competitive.csv")).unwrap();
+    let kept: String =
+        text.lines().skip(1).filter(|l| l.contains(",2,") || l.contains(",8,")).map(|l| format!("{l}\n")).collect();
+    let path = dir.path().join("thin.csv");
+    std::fs::write(&path, format!("substrate (uM),inhibitor (uM),rate\n{kept}")).unwrap();
+    let doc = json_of(&["mode", path.to_str().unwrap(), "--format", "json"]);
+    let codes: Vec<&str> =
+        doc["results"][0]["warnings"].as_array().unwrap().iter().map(|w| w["code"].as_str().unwrap()).collect();
+    assert!(codes.contains(&"few-inhibitor-levels") && codes.contains(&"no-uninhibited-series"), "{codes:?}");
+}
+
+#[test]
+fn reads_stdin_and_writes_csv_to_a_file() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("mode.csv");
+    let input = std::fs::read(format!("{ROOT}/fixtures/mode/all.csv")).unwrap();
+    kimech().args(["mode", "-", "--format", "csv", "-o"]).arg(&out).write_stdin(input).assert().success();
+    let text = std::fs::read_to_string(&out).unwrap();
+    assert_eq!(text.lines().count(), 1 + 4 * 5, "a header and one row per compound and model");
+    assert!(text.lines().next().unwrap().starts_with("compound,model,chosen,choice"));
+    assert!(text.contains("mixed,true,mixed"));
 }
