@@ -536,13 +536,13 @@ fn reparametrised(fit: &Fit, theta: [f64; 2], se: [Option<f64>; 2]) -> Fit {
     f
 }
 
-/// Refits along a profile need the SSE to ~1e-10 relative, far below the
+/// Refits along a profile need the SSE to ~1e-8 relative, far below the
 /// ~7% rise that defines an interval end; tighter tolerances only cost time.
 fn profile_settings(settings: &FitSettings) -> FitSettings {
     FitSettings {
-        ftol: settings.ftol.max(1e-10),
-        xtol: settings.xtol.max(1e-10),
-        gtol: settings.gtol.max(1e-10),
+        ftol: settings.ftol.max(1e-8),
+        xtol: settings.xtol.max(1e-8),
+        gtol: settings.gtol.max(1e-8),
         ..*settings
     }
 }

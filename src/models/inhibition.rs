@@ -154,19 +154,23 @@ impl Model for RateLaw {
 
     /// Data-driven Vmax and Km (from the uninhibited rows, or all rows) times
     /// a grid of inhibition constants spread log-evenly from 1/30 to 30 × the
-    /// highest inhibitor concentration, and for mixed α over 0.1–10.
+    /// highest inhibitor concentration (five values); for mixed, the first
+    /// Vmax/Km guess with three Ki values × α ∈ {0.1, 1, 10}. The analysis
+    /// adds the one-constant optima as further mixed starts.
     fn starts(&self, data: &Data<Point>) -> Vec<Vec<f64>> {
         let base = vmax_km_starts(data);
-        let grid = ki_grid(data, 5);
         let mut starts = Vec::new();
-        for (vmax, km) in base {
-            match self.0 {
-                Mechanism::None => starts.push(vec![vmax, km]),
-                Mechanism::Competitive | Mechanism::Uncompetitive | Mechanism::Noncompetitive => {
+        match self.0 {
+            Mechanism::None => starts.extend(base.iter().map(|&(v, k)| vec![v, k])),
+            Mechanism::Competitive | Mechanism::Uncompetitive | Mechanism::Noncompetitive => {
+                let grid = ki_grid(data, 5);
+                for &(vmax, km) in &base {
                     starts.extend(grid.iter().map(|&k| vec![vmax, km, k]));
                 }
-                Mechanism::Mixed => {
-                    for &k in &grid {
+            }
+            Mechanism::Mixed => {
+                for &(vmax, km) in base.iter().take(1) {
+                    for k in ki_grid(data, 3) {
                         starts.extend([0.1, 1.0, 10.0].iter().map(|&a| vec![vmax, km, k, a]));
                     }
                 }
