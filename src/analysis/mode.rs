@@ -457,7 +457,7 @@ fn describe(
     };
     let method = if best.converged() { "profile" } else { "wald" };
     let prof = |model: &dyn Profiled, fit: &Fit, j: usize| {
-        if best.converged() { model.profile(data, fit, j, options) } else { model.wald(&best, j, options) }
+        if best.converged() { model.profile(data, fit, j, options) } else { model.wald(fit, j, options) }
     };
     let cap = LIMIT_FACTOR * i_max;
     let report = |value: f64, se: Option<f64>, iv: Interval, unit: &Option<String>, infinite: bool| {

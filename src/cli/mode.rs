@@ -126,10 +126,7 @@ pub fn read_matrices(table: &Table, args: &Args) -> Result<(Vec<Matrix>, Units, 
     let i_col = table.require(&INHIBITOR)?;
     let v_col = table.require(&RATE)?;
     let compound_col = table.find(&COMPOUND);
-    let sd_col = table.find(&SD);
-    if args.weighting == WeightingArg::Sd && sd_col.is_none() {
-        return Err(table.require(&SD).unwrap_err());
-    }
+    let sd_col = if args.weighting == WeightingArg::Sd { Some(table.require(&SD)?) } else { table.find(&SD) };
     let s_unit = table.column_unit(s_col, args.substrate_unit)?;
     let i_unit = table.column_unit(i_col, args.inhibitor_unit)?;
     // No unit in the header, a flag or any cell: a problem of the whole file, not of one compound.
