@@ -33,7 +33,7 @@ use std::collections::HashMap;
 use serde::Serialize;
 
 use crate::error::{Error, Result};
-use crate::fit::intervals::{Interval, profile, wald};
+use crate::fit::intervals::{Bound, Interval, profile, wald};
 use crate::fit::stats::{aicc, akaike_weights, extra_sum_of_squares, lack_of_fit, runs_test};
 use crate::fit::{Data, Fit, FitSettings, Model, WeightProblem, Weighting, fit, fit_from, weights};
 use crate::io::output::sig;
@@ -507,9 +507,11 @@ fn describe(
             params.ki = Some(report(ki, se(2), prof(&MixedKiu, &ki_kiu, 2), &units.inhibitor, ki_infinite));
             params.kiu = Some(report(kiu, kiu_se, prof(&MixedKiu, &ki_kiu, 3), &units.inhibitor, kiu_infinite));
             // α walked up holds Ki (the competitive edge), walked down holds Kiu (the uncompetitive edge).
+            // A refit can only miss the profile minimum from above, so each form's interval lies
+            // inside the true one: the wider end of the two is the better estimate.
             let up = prof(&law, &tamed, 3);
             let down = prof(&MixedAlphaKiu, &kiu_alpha, 3);
-            let iv = Interval { low: down.low, high: up.high };
+            let iv = Interval { low: wider(down.low, up.low, -1.0), high: wider(up.high, down.high, 1.0) };
             let mut a = report(alpha, best.se[3], iv, &None, limit == Some("competitive"));
             if ki_infinite {
                 a.value = f64::NAN;
@@ -524,6 +526,17 @@ fn describe(
         }
     }
     Fitted { mechanism, fit: best, limit, params }
+}
+
+/// The farther of two interval ends in `direction` (−1 low, +1 high); an
+/// unbounded end is farthest, an undetermined one yields to the other.
+fn wider(first: Bound, second: Bound, direction: f64) -> Bound {
+    match (first, second) {
+        (Bound::Unbounded, _) | (_, Bound::Unbounded) => Bound::Unbounded,
+        (Bound::At(a), Bound::At(b)) => Bound::At(if (a - b) * direction >= 0.0 { a } else { b }),
+        (Bound::At(a), Bound::NotDetermined) | (Bound::NotDetermined, Bound::At(a)) => Bound::At(a),
+        (Bound::NotDetermined, Bound::NotDetermined) => Bound::NotDetermined,
+    }
 }
 
 /// A copy of a mixed fit with parameters 2 and 3 replaced (same curve, another form).
@@ -816,4 +829,31 @@ fn design_warnings(matrix: &Matrix, picked: &Fitted, i_max: f64, units: &Units) 
         ));
     }
     warnings
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn wider_takes_the_farther_end() {
+        assert_eq!(wider(Bound::At(1.0), Bound::At(2.0), -1.0), Bound::At(1.0));
+        assert_eq!(wider(Bound::At(1.0), Bound::At(2.0), 1.0), Bound::At(2.0));
+        assert_eq!(wider(Bound::At(1.0), Bound::Unbounded, -1.0), Bound::Unbounded);
+        assert_eq!(wider(Bound::NotDetermined, Bound::At(3.0), 1.0), Bound::At(3.0));
+    }
+
+    #[test]
+    fn limits_are_pulled_back_keeping_the_finite_constant() {
+        // α·Ki beyond 10⁶ × I_max: competitive edge, Ki kept.
+        let mut t = [1.0, 2.0, 3.0, 1e9];
+        assert_eq!(tame_limits(Mechanism::Mixed, &mut t, 8.0), Some("competitive"));
+        assert!((t[2] - 3.0).abs() < 1e-12 && (t[2] * t[3] - 8e6).abs() < 1e-3);
+        // Ki beyond: uncompetitive edge, Kiu = α·Ki kept.
+        let mut t = [1.0, 2.0, 1e20, 2e-20];
+        assert_eq!(tame_limits(Mechanism::Mixed, &mut t, 8.0), Some("uncompetitive"));
+        assert!((t[2] - 8e6).abs() < 1e-3 && (t[2] * t[3] - 2.0).abs() < 1e-9);
+        let mut t = [1.0, 2.0, 3.0, 4.0];
+        assert_eq!(tame_limits(Mechanism::Mixed, &mut t, 8.0), None);
+    }
 }
