@@ -61,9 +61,10 @@ fn polylines(svg: &str, stroke: &str, width: &str) -> Vec<Vec<(f64, f64)>> {
 /// The longest line of the given colour inside a panel's plotting area.
 fn curve_in(svg: &str, frame: &Frame, stroke: &str) -> Vec<(f64, f64)> {
     let (x0, x1) = (frame.px.0 as f64 - 1.0, frame.px.1 as f64 + 1.0);
+    let (y0, y1) = (frame.py.1 as f64 - 1.0, frame.py.0 as f64 + 1.0);
     polylines(svg, stroke, "2")
         .into_iter()
-        .filter(|l| l.iter().all(|p| p.0 >= x0 && p.0 <= x1))
+        .filter(|l| l.iter().all(|p| p.0 >= x0 && p.0 <= x1 && p.1 >= y0 && p.1 <= y1))
         .max_by_key(|l| l.len())
         .expect("a fitted curve in the panel")
 }
@@ -456,4 +457,73 @@ fn rank_plots_put_each_compound_at_its_pki_and_draw_bounds_apart() {
     assert!((xs[0] - 6.0).abs() <= px && (xs[1] - 8.0).abs() <= px, "{xs:?}");
     // The bound is an open circle in the second colour, not a diamond.
     assert!(svg.text.contains("fill=\"none\" stroke=\"#D55E00\""));
+}
+
+#[test]
+fn mode_curves_are_the_chosen_models_global_fit_at_each_inhibitor_level() {
+    use kimech::cli::mode;
+    // Simulated competitive matrix (fixtures/README.md, "Simulated data — mode/").
+    let path = common::fixture("mode/competitive.csv");
+    let table = kimech::io::Table::read(path.to_str().unwrap()).unwrap();
+    let args = mode::Args {
+        file: path.to_str().unwrap().into(),
+        substrate_unit: None,
+        inhibitor_unit: None,
+        weighting: kimech::cli::km::WeightingArg::None,
+        criterion: mode::CriterionArg::Aicc,
+        alpha_level: 0.05,
+        confidence: 0.95,
+        output: kimech::cli::OutputArgs { format: kimech::io::Format::Table, output: None },
+        pictures: kimech::cli::PictureArgs::default(),
+    };
+    let outcome = mode::analyse_with_matrices(&table, &args).unwrap();
+    let (r, matrix) = &outcome.pairs[0];
+    assert_eq!(r.chosen, "competitive");
+    let svg = kimech::plot::mode::figure(r, matrix, &outcome.units).unwrap();
+    preview("mode.svg", &svg.text);
+    assert_eq!(svg.frames.len(), 10, "rates, three views, evidence, five residual panels");
+    assert!(inked_fraction(&svg.text) > 0.01);
+    let m = r.models.iter().find(|m| m.model == "competitive").unwrap();
+    let (vmax, km, ki) = (m.params.vmax.value, m.params.km.value, m.params.ki.as_ref().unwrap().value);
+    let mut levels: Vec<f64> = matrix.inhibitor.clone();
+    levels.sort_by(f64::total_cmp);
+    levels.dedup();
+    let frame = svg.frames[0];
+    // The k-th inhibitor level is drawn in the k-th palette colour; its curve is
+    // v = Vmax·S/(Km(1 + I/Ki) + S) with the competitive fit's constants (DESIGN.md §4).
+    for (k, i) in levels.iter().enumerate().take(3) {
+        let colour = kimech::plot::style::hex(kimech::plot::style::colour(k));
+        let curve = curve_in(&svg.text, &frame, &colour);
+        for s in [5.0, 20.0, 60.0] {
+            let (u, expected) = frame.pixel_of(s, vmax * s / (km * (1.0 + i / ki) + s));
+            assert!((y_at(&curve, u) - expected).abs() <= 1.5, "I = {i}, S = {s}");
+        }
+    }
+    // Competitive: the double-reciprocal lines share 1/v = 1/Vmax at 1/S = 0 (Cornish-Bowden 2012).
+    let frame = svg.frames[1];
+    let (u, expected) = frame.pixel_of(0.0, 1.0 / vmax);
+    for k in 0..3 {
+        let colour = kimech::plot::style::hex(kimech::plot::style::colour(k));
+        assert!((y_at(&curve_in(&svg.text, &frame, &colour), u) - expected).abs() <= 1.5);
+    }
+}
+
+#[test]
+fn mode_writes_one_plot_per_compound_and_a_report() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = common::fixture("mode/all.csv");
+    kimech(dir.path())
+        .args(["mode", input.to_str().unwrap(), "--plot", "plots", "--report", "mode.html"])
+        .assert()
+        .success();
+    let mut names: Vec<String> = std::fs::read_dir(dir.path().join("plots"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().into_string().unwrap())
+        .collect();
+    names.sort();
+    assert_eq!(names, ["mode-competitive.svg", "mode-mixed.svg", "mode-noncompetitive.svg", "mode-uncompetitive.svg"]);
+    let html = std::fs::read_to_string(dir.path().join("mode.html")).unwrap();
+    assert_self_contained(&html);
+    assert_eq!(html.matches("<svg").count(), 4);
+    assert!(html.contains("Dixon") && html.contains("Cornish-Bowden") && html.contains("Akaike weight"));
 }

@@ -4,13 +4,16 @@
 
 use std::path::PathBuf;
 
-use super::{OutputArgs, ki, km, rank, rates};
+use super::{OutputArgs, ki, km, mode, rank, rates};
 use crate::error::Result;
 use crate::io::{Format, Table};
 use crate::plot::html::{Block, Page, Section, without_caution};
 
 /// Invented progress curves (see demo-compounds/README.md).
 const PROGRESS_CURVES: &str = include_str!("../../demo-compounds/progress-curves.csv");
+
+/// The invented rate matrix of five compounds (demo-compounds/make_rate_matrix.py).
+const RATE_MATRIX: &str = include_str!("../../demo-compounds/rate-matrix.csv");
 
 /// The invented IC50 table of a second assay at other conditions (see its header comments).
 const SECOND_ASSAY: &str = include_str!("../../demo-compounds/second-assay-ic50.csv");
@@ -38,11 +41,12 @@ pub fn run(args: &Args) -> Result<()> {
     let mut sections = Vec::new();
     let rate_table = rates_stage(&mut sections)?;
     let km_status = km_stage(&rate_table, &mut sections);
+    let mode_status = mode_stage(&mut sections);
     let ki_status = ki_rank_stage(&mut sections);
     let path = args.report.clone().unwrap_or_else(|| PathBuf::from(DEFAULT_REPORT));
     write_report(&path, sections)?;
     println!("\nReport written to {}", path.display());
-    km_status.and(ki_status)
+    km_status.and(mode_status).and(ki_status)
 }
 
 /// Writes the demo's report page.
@@ -113,7 +117,31 @@ fn km_stage(rate_table: &Table, sections: &mut Vec<Section>) -> Result<()> {
     super::finish(&outcome.failures, outcome.total, "series")
 }
 
-/// Stages 3 and 4: IC50 tables → Ki → ranking.
+/// Stage 3: the [S]×[I] rate matrix of five invented compounds → mechanism, Ki, α.
+fn mode_stage(sections: &mut Vec<Section>) -> Result<()> {
+    println!("\nStage 3 — [S]×[I] rate matrices → mechanism, Ki, α (five invented compounds, one per mechanism)");
+    println!("  $ kimech mode demo-compounds/rate-matrix.csv\n");
+    let path = "demo-compounds/rate-matrix.csv";
+    let table = crate::io::Table::parse(path, RATE_MATRIX.as_bytes(), b',')?;
+    let args = mode::Args {
+        file: path.into(),
+        substrate_unit: None,
+        inhibitor_unit: None,
+        weighting: km::WeightingArg::None,
+        criterion: mode::CriterionArg::Aicc,
+        alpha_level: 0.05,
+        confidence: 0.95,
+        output: stdout_table(),
+        pictures: super::PictureArgs::default(),
+    };
+    let outcome = mode::analyse_with_matrices(&table, &args)?;
+    let results: Vec<_> = outcome.pairs.iter().map(|(r, _)| r.clone()).collect();
+    print!("{}", mode::human(&results));
+    sections.push(mode::report_section(&outcome, &format!("kimech mode {path}"))?);
+    super::finish(&outcome.failures, outcome.total, "compounds")
+}
+
+/// Stages 4 and 5: IC50 tables → Ki → ranking.
 fn ki_rank_stage(sections: &mut Vec<Section>) -> Result<()> {
     let second = "demo-compounds/second-assay-ic50.csv";
     ki_and_rank_into(&[(second, SECOND_ASSAY, ki_args(second))], sections)

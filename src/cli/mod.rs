@@ -12,6 +12,7 @@ use crate::io::Format;
 pub mod demo;
 pub mod ki;
 pub mod km;
+pub mod mode;
 pub mod rank;
 pub mod rates;
 
@@ -36,6 +37,8 @@ enum Command {
     Ki(ki::Args),
     /// Aggregate, rank and export Ki results: the registry table.
     Rank(rank::Args),
+    /// Say how a compound inhibits: global fits of five rate laws to an [S]×[I] rate matrix.
+    Mode(mode::Args),
     /// Run the whole chain on the bundled invented demo scenario.
     Demo(demo::Args),
 }
@@ -59,6 +62,7 @@ pub fn run(args: impl IntoIterator<Item = impl Into<OsString> + Clone>) -> Resul
         Command::Ki(args) => ki::run(&args),
         Command::Rank(args) => rank::run(&args),
         Command::Demo(args) => demo::run(&args),
+        Command::Mode(args) => mode::run(&args),
     }
 }
 

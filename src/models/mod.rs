@@ -6,3 +6,4 @@ pub mod polynomial;
 
 pub use michaelis_menten::MichaelisMenten;
 pub use polynomial::Polynomial;
+pub mod inhibition;

@@ -16,6 +16,7 @@ pub mod charts;
 pub mod files;
 pub mod html;
 pub mod km;
+pub mod mode;
 pub mod rank;
 pub mod style;
 pub mod xy;
