@@ -1,4 +1,5 @@
 //! The numerical core of each command: plain inputs in, result structs out.
 //! Nothing here reads files or prints; the `cli` layer does that.
 
+pub mod ic50;
 pub mod km;

@@ -10,6 +10,7 @@ use crate::error::{Error, Result};
 use crate::io::Format;
 
 pub mod demo;
+pub mod ic50;
 pub mod km;
 
 /// Enzyme-inhibitor potency and mechanism analysis.
@@ -27,6 +28,8 @@ pub struct Cli {
 enum Command {
     /// Fit Michaelis–Menten to substrate series: Vmax, Km, kcat.
     Km(km::Args),
+    /// Fit dose-response curves: IC50, pIC50, Hill coefficient, quality flags.
+    Ic50(ic50::Args),
     /// Run the whole chain on the bundled invented demo scenario.
     Demo(demo::Args),
 }
@@ -46,6 +49,7 @@ pub fn run(args: impl IntoIterator<Item = impl Into<OsString> + Clone>) -> Resul
     };
     match cli.command {
         Command::Km(args) => km::run(&args),
+        Command::Ic50(args) => ic50::run(&args),
         Command::Demo(args) => demo::run(&args),
     }
 }

@@ -40,7 +40,7 @@ pub struct Column {
 }
 
 impl Column {
-    fn parse(header: &str) -> Column {
+    pub(crate) fn parse(header: &str) -> Column {
         let h = header.trim().trim_start_matches('\u{feff}');
         let (name, unit_text) = match h.find(['(', '[']) {
             Some(open) if h.ends_with(')') || h.ends_with(']') => {
@@ -258,7 +258,7 @@ impl Table {
     }
 }
 
-fn describe_csv_error(e: &csv::Error) -> String {
+pub(crate) fn describe_csv_error(e: &csv::Error) -> String {
     match e.kind() {
         csv::ErrorKind::UnequalLengths { expected_len, len, .. } => format!(
             "this row has {len} fields but the header has {expected_len}; every row needs one cell per header column (quote cells that contain the delimiter)"

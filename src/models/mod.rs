@@ -4,3 +4,6 @@
 pub mod michaelis_menten;
 
 pub use michaelis_menten::MichaelisMenten;
+pub mod logistic;
+
+pub use logistic::{Logistic, Morrison};

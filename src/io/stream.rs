@@ -1,0 +1,194 @@
+//! Streaming input and output for files too large to hold in memory
+//! (screening campaigns with millions of rows).
+//!
+//! [`RowStream`] reads the same CSV dialect as [`Table::read`] (comments,
+//! trimming, header units, delimiter by extension) one row at a time into a
+//! reused [`Record`], and exposes a header-only [`Table`] so that the very
+//! same cell accessors (`number`, `concentration`, their error messages)
+//! apply. [`OutputSink`] writes to stdout, or to a temporary sibling of the
+//! target that is renamed into place on [`OutputSink::commit`], like
+//! [`super::write_output`] but without holding the whole output.
+
+use std::io::{BufReader, BufWriter, Read, Write};
+use std::path::{Path, PathBuf};
+
+use super::input::{Column, Record, Table, describe_csv_error};
+use crate::error::{Error, Result};
+
+/// Rows of a CSV, one at a time.
+pub struct RowStream {
+    table: Table,
+    reader: csv::Reader<Box<dyn Read + Send>>,
+    record: csv::StringRecord,
+    rows: u64,
+}
+
+impl RowStream {
+    /// Opens `path` (`-` for stdin).
+    pub fn open(path: &str) -> Result<RowStream> {
+        let source = if path == "-" { "<stdin>".to_string() } else { path.to_string() };
+        let input: Box<dyn Read + Send> = if path == "-" {
+            Box::new(std::io::stdin())
+        } else {
+            let file = std::fs::File::open(path).map_err(|e| Error::Read { path: source.clone(), source: e })?;
+            Box::new(file)
+        };
+        RowStream::new(&source, input, delimiter_for(path))
+    }
+
+    /// Reads from any byte source; `source` names it in errors.
+    pub fn new(source: &str, input: Box<dyn Read + Send>, delimiter: u8) -> Result<RowStream> {
+        let input: Box<dyn Read + Send> = Box::new(BufReader::with_capacity(1 << 16, input));
+        let mut reader = csv::ReaderBuilder::new()
+            .delimiter(delimiter)
+            .comment(Some(b'#'))
+            .trim(csv::Trim::All)
+            .has_headers(true)
+            .flexible(false)
+            .from_reader(input);
+        let headers = reader.headers().map_err(|e| csv_error(source, &e))?.clone();
+        let columns: Vec<Column> = headers.iter().map(Column::parse).collect();
+        if columns.iter().all(|c| c.key.is_empty()) {
+            return Err(Error::Empty { path: source.to_string() });
+        }
+        let table = Table { source: source.to_string(), columns, rows: Vec::new() };
+        Ok(RowStream { table, reader, record: csv::StringRecord::new(), rows: 0 })
+    }
+
+    /// The header (and file name) as a table without rows, for the cell accessors.
+    pub fn table(&self) -> &Table {
+        &self.table
+    }
+
+    /// Reads the next non-blank row into `row`, reusing its buffers; false at the end.
+    /// A file with a header and no rows is [`Error::Empty`].
+    pub fn next_into(&mut self, row: &mut Record) -> Result<bool> {
+        loop {
+            match self.reader.read_record(&mut self.record) {
+                Ok(false) if self.rows == 0 => return Err(Error::Empty { path: self.table.source.clone() }),
+                Ok(false) => return Ok(false),
+                Ok(true) => {
+                    if self.record.iter().all(str::is_empty) {
+                        continue;
+                    }
+                    self.rows += 1;
+                    row.line = self.record.position().map_or(0, |p| p.line());
+                    row.cells.resize_with(self.record.len(), String::new);
+                    for (cell, field) in row.cells.iter_mut().zip(self.record.iter()) {
+                        cell.clear();
+                        cell.push_str(field);
+                    }
+                    return Ok(true);
+                }
+                Err(e) => return Err(csv_error(&self.table.source, &e)),
+            }
+        }
+    }
+
+    /// Bytes consumed so far (for progress).
+    pub fn bytes_read(&self) -> u64 {
+        self.reader.position().byte()
+    }
+}
+
+fn csv_error(source: &str, e: &csv::Error) -> Error {
+    Error::Csv { path: source.to_string(), line: e.position().map_or(0, |p| p.line()), message: describe_csv_error(e) }
+}
+
+/// Tab for `.tsv`/`.tab`, comma otherwise (as [`Table::read`]).
+pub fn delimiter_for(path: &str) -> u8 {
+    if path.ends_with(".tsv") || path.ends_with(".tab") { b'\t' } else { b',' }
+}
+
+/// Output written as it is produced: stdout, or a file that appears only
+/// when complete.
+pub struct OutputSink {
+    writer: BufWriter<Box<dyn Write + Send>>,
+    temp: Option<(PathBuf, PathBuf)>,
+}
+
+impl OutputSink {
+    /// Stdout when `path` is `None` or `-`; else a temporary sibling of
+    /// `path`, refused if `path` is one of `inputs`.
+    pub fn create(path: Option<&Path>, inputs: &[&str]) -> Result<OutputSink> {
+        let Some(path) = path.filter(|p| p.as_os_str() != "-") else {
+            return Ok(OutputSink { writer: BufWriter::new(Box::new(std::io::stdout())), temp: None });
+        };
+        super::output::refuse_inputs(path, inputs)?;
+        let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_else(|| "output".into());
+        let temp = path.with_file_name(format!(".{name}.{}.tmp", std::process::id()));
+        let file = std::fs::File::create(&temp).map_err(|source| Error::Write { path: path.to_path_buf(), source })?;
+        Ok(OutputSink { writer: BufWriter::new(Box::new(file)), temp: Some((temp, path.to_path_buf())) })
+    }
+
+    /// The error for a failed write to this sink.
+    pub fn error(&self, source: std::io::Error) -> Error {
+        let path = self.temp.as_ref().map_or_else(|| PathBuf::from("<stdout>"), |(_, p)| p.clone());
+        Error::Write { path, source }
+    }
+
+    /// Flushes and, for a file, renames it into place.
+    pub fn commit(mut self) -> Result<()> {
+        self.writer.flush().map_err(|e| self.error(e))?;
+        if let Some((temp, path)) = self.temp.take() {
+            std::fs::rename(&temp, &path).map_err(|source| {
+                let _ = std::fs::remove_file(&temp);
+                Error::Write { path, source }
+            })?;
+        }
+        Ok(())
+    }
+}
+
+impl Write for OutputSink {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        self.writer.write(buf)
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        self.writer.flush()
+    }
+}
+
+impl Drop for OutputSink {
+    /// An output never committed (an error happened) leaves no file behind.
+    fn drop(&mut self) {
+        if let Some((temp, _)) = self.temp.take() {
+            let _ = std::fs::remove_file(temp);
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn streams_rows_with_line_numbers_and_reuses_the_record() {
+        let text = "# note\nx (nM),y\n1,2\n3,zz\n";
+        let mut s = RowStream::new("t.csv", Box::new(std::io::Cursor::new(text.as_bytes().to_vec())), b',').unwrap();
+        let mut row = Record { line: 0, cells: Vec::new() };
+        assert!(s.next_into(&mut row).unwrap());
+        assert_eq!((row.line, row.cells.clone()), (3, vec!["1".to_string(), "2".to_string()]));
+        assert!(s.next_into(&mut row).unwrap());
+        assert_eq!(row.line, 4);
+        let e = s.table().number(&row, 1).unwrap_err().to_string();
+        assert!(e.contains("line 4") && e.contains("zz"), "{e}");
+        assert!(!s.next_into(&mut row).unwrap());
+    }
+
+    #[test]
+    fn uncommitted_output_leaves_no_file() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("out.csv");
+        {
+            let mut sink = OutputSink::create(Some(&path), &[]).unwrap();
+            sink.write_all(b"half").unwrap();
+        }
+        assert!(!path.exists());
+        let mut sink = OutputSink::create(Some(&path), &[]).unwrap();
+        sink.write_all(b"whole").unwrap();
+        sink.commit().unwrap();
+        assert_eq!(std::fs::read_to_string(&path).unwrap(), "whole");
+    }
+}
