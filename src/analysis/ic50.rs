@@ -34,6 +34,7 @@
 //! | `poor-fit` | R² below `min_r2` (0.8) |
 //! | `too-few-points` | fewer than `min_concentrations` (6) distinct concentrations |
 //! | `not-converged` | the minimiser did not stop at a minimum |
+//! | `hill-fixed` | the free fit was degenerate (no transition in range); refitted with h = 1 to place the IC50 |
 //! | `tight-binding-titration` | Morrison: Ki,app below Et/10 — the curve mostly measures Et |
 //! | `plate-z-prime-low` | a plate the compound sits on has Z′ below the limit (0.5) |
 //! | `carried-varies` | a carried column has different values within the compound |
@@ -48,9 +49,9 @@ use serde::Serialize;
 use serde::ser::SerializeMap;
 
 use crate::error::{Error, Result};
-use crate::fit::intervals::{Bound, Interval, profile, wald};
-use crate::fit::{Data, Fit, FitSettings, Model, fit_small};
-use crate::models::{Logistic, Morrison};
+use crate::fit::intervals::{Bound, Interval, profile, t_quantile};
+use crate::fit::{Data, Fit, FitSettings, Model, Scale, fit_small};
+use crate::models::{Dose, Logistic, Morrison};
 use crate::report::Param;
 use crate::units::{ConcUnit, Qualifier, p_value};
 
@@ -240,9 +241,9 @@ fn check(curve: &Curve, n_free: usize) -> Result<(usize, f64, f64)> {
 
 /// Fits from the model's first (data-driven) start; the other starts are
 /// tried only when that fit is doubtful, so a clean curve costs one run.
-fn fit_curve<M: Model<Point = f64>>(
+fn fit_curve<M: Model>(
     model: &M,
-    data: &Data<f64>,
+    data: &Data<M::Point>,
     fixed: &[Option<f64>],
     settings: &FitSettings,
     plausible: impl Fn(&Fit) -> bool,
@@ -260,21 +261,29 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     let fixed = [None, None, options.fix_lower, options.fix_upper];
     let n_free = fixed.iter().filter(|f| f.is_none()).count();
     let (levels, min_pos, max) = check(curve, n_free)?;
-    let data = Data::unweighted(curve.x.clone(), curve.y.clone());
+    let data = Data::unweighted(curve.x.iter().map(|x| Dose::new(*x)).collect(), curve.y.clone());
     let t = &options.thresholds;
     let model = Logistic;
-    let mut fit = fit_curve(&model, &data, &fixed, &options.settings, |f| {
-        f.r2 >= t.min_r2 && f.theta[Logistic::IC50] > min_pos * 1e-3 && f.theta[Logistic::IC50] < max * 1e3
-    });
+    let plausible =
+        |f: &Fit| f.r2 >= t.min_r2 && f.theta[Logistic::IC50] > min_pos * 1e-3 && f.theta[Logistic::IC50] < max * 1e3;
+    let mut fit = fit_curve(&model, &data, &fixed, &options.settings, plausible);
     let both_free = options.fix_lower.is_none() && options.fix_upper.is_none();
     if both_free && fit.theta[Logistic::HILL] < 0.0 {
         mirror(&mut fit);
     }
-    let (ic50, hill, lower, upper) = (fit.theta[0], fit.theta[1], fit.theta[2], fit.theta[3]);
-    let top_effect = if upper > 0.0 { 1.0 - model.value(&fit.theta, &max) / upper } else { 0.0 };
     let mut flags = Vec::new();
+    if !determined(&fit, &curve.y) {
+        // No transition inside the tested range: the slope is not determined and
+        // the free fit degenerates (h → 0, an asymptote running away). Hold h = 1
+        // (common practice) so that the IC50 can at least be placed, and say so.
+        let held = [None, Some(1.0), options.fix_lower, options.fix_upper];
+        fit = fit_curve(&model, &data, &held, &options.settings, plausible);
+        flags.push("hill-fixed");
+    }
+    let (ic50, hill, lower, upper) = (fit.theta[0], fit.theta[1], fit.theta[2], fit.theta[3]);
+    let top_effect = if upper > 0.0 { 1.0 - model.value(&fit.theta, &Dose::new(max)) / upper } else { 0.0 };
     let qualifier = range_flags(ic50, min_pos, max, top_effect < t.min_inhibition, &mut flags);
-    if qualifier == Qualifier::Equal {
+    if qualifier == Qualifier::Equal && !fit.fixed[Logistic::HILL] {
         if hill.abs() > t.hill_steep {
             flags.push("hill-steep");
         }
@@ -289,7 +298,7 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     let ic50_param = ic50_param(&model, &data, &fit, Logistic::IC50, qualifier, min_pos, max, 0.0, options);
     let wald_linear = |j: usize, flag: &str| match fit.fixed[j] {
         true => fixed_param(fit.theta[j], flag),
-        false => Param::new(fit.theta[j], fit.se[j], wald(&model, &fit, j, options.confidence), "wald", None),
+        false => Param::new(fit.theta[j], fit.se[j], wald(&fit, j, Scale::Linear, options.confidence), "wald", None),
     };
     Ok(Ic50Result {
         compound: curve.compound.clone(),
@@ -298,7 +307,12 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
         qualifier,
         pic50: p_value(options.unit.to_molar(ic50_param.value)),
         ic50: ic50_param,
-        hill: Some(Param::new(hill, fit.se[1], wald(&model, &fit, Logistic::HILL, options.confidence), "wald", None)),
+        hill: Some(match fit.fixed[Logistic::HILL] {
+            true => fixed_param(hill, "kimech: not determined by the data (flag hill-fixed)"),
+            false => {
+                Param::new(hill, fit.se[1], wald(&fit, Logistic::HILL, Scale::Linear, options.confidence), "wald", None)
+            }
+        }),
         upper: wald_linear(Logistic::UPPER, "--fix-upper"),
         lower: wald_linear(Logistic::LOWER, "--fix-lower"),
         residual_sd: fit.residual_sd,
@@ -308,6 +322,19 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
         model: "logistic",
         ki_app: None,
     })
+}
+
+/// Whether a free 4PL fit is a curve the data determine: a Hill coefficient
+/// of at least 0.05 and asymptotes within one response span of the observed
+/// responses. Degenerate fits (h → 0: a step at zero dose; an asymptote at
+/// −700) fail this. A very steep fit passes: its IC50 is still placed
+/// between two tested concentrations, and it is flagged `hill-steep`.
+fn determined(fit: &Fit, y: &[f64]) -> bool {
+    let (lo, hi) = y.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
+    let span = hi - lo;
+    let h = fit.theta[Logistic::HILL].abs();
+    let inside = |v: f64| v >= lo - span && v <= hi + span;
+    fit.fixed[Logistic::HILL] || (h >= 0.05 && inside(fit.theta[Logistic::LOWER]) && inside(fit.theta[Logistic::UPPER]))
 }
 
 /// (IC50, h, lower, upper) and (IC50, −h, upper, lower) are the same curve;
@@ -327,6 +354,49 @@ fn mirror(fit: &mut Fit) {
         cov.swap_rows(2, 3);
         cov.swap_columns(2, 3);
     }
+}
+
+/// The Wald interval of parameter `j`: θ ± t·SE, or for a log-scale
+/// parameter exp(ln θ ± t·SE/θ) (the engine's `wald`, with the t quantile
+/// looked up once per degrees of freedom: computing it is a third of the
+/// cost of a 10-point fit).
+fn wald(fit: &Fit, j: usize, scale: Scale, confidence: f64) -> Interval {
+    let (Some(se), Some(t)) = (fit.se[j], cached_t(confidence, fit.df)) else {
+        return Interval { low: Bound::NotDetermined, high: Bound::NotDetermined };
+    };
+    let value = fit.theta[j];
+    match scale {
+        Scale::Linear => Interval { low: Bound::At(value - t * se), high: Bound::At(value + t * se) },
+        Scale::Log => {
+            let half = t * se / value;
+            Interval { low: Bound::At(value * (-half).exp()), high: Bound::At(value * half.exp()) }
+        }
+    }
+}
+
+fn cached_t(confidence: f64, df: usize) -> Option<f64> {
+    thread_local! {
+        static CACHE: std::cell::RefCell<Vec<(f64, usize, Option<f64>)>> = const { std::cell::RefCell::new(Vec::new()) };
+    }
+    CACHE.with(|c| {
+        let mut c = c.borrow_mut();
+        if let Some(hit) = c.iter().find(|(conf, d, _)| *d == df && conf.to_bits() == confidence.to_bits()) {
+            return hit.2;
+        }
+        let t = t_quantile(confidence, df);
+        if c.len() < 256 {
+            c.push((confidence, df, t));
+        }
+        t
+    })
+}
+
+/// Minimiser settings for dose-response curves: relative tolerances of
+/// 1e-10 on SSE and parameters (IC50 to about ten digits, far inside any
+/// assay's precision) instead of the engine's 1e-15, which at a million
+/// curves costs iterations that change nothing that is reported.
+pub fn screening_settings() -> FitSettings {
+    FitSettings { ftol: 1e-10, xtol: 1e-10, gtol: 1e-12, patience: 200 }
 }
 
 fn fixed_param(value: f64, flag: &str) -> Param {
@@ -373,9 +443,9 @@ fn common_flags(fit: &Fit, levels: usize, t: &Thresholds, curve: &Curve, flags: 
 /// IC50 (or Ki,app for Morrison, `offset` = Et/2 between them) as reported:
 /// the bound when out of range, else the estimate with its interval.
 #[allow(clippy::too_many_arguments)]
-fn ic50_param<M: Model<Point = f64>>(
+fn ic50_param<M: Model>(
     model: &M,
-    data: &Data<f64>,
+    data: &Data<M::Point>,
     fit: &Fit,
     j: usize,
     qualifier: Qualifier,
@@ -407,7 +477,7 @@ fn ic50_param<M: Model<Point = f64>>(
                 IntervalMethod::Profile if fit.converged() => {
                     (profile(model, data, fit, j, options.confidence, &options.settings), "profile")
                 }
-                _ => (wald(model, fit, j, options.confidence), "wald-log"),
+                _ => (wald(fit, j, Scale::Log, options.confidence), "wald-log"),
             };
             let shift = |b: Bound| match b {
                 Bound::At(v) => Bound::At(v + offset),
@@ -443,7 +513,7 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
     };
     let upper_p = match fit.fixed[Morrison::UPPER] {
         true => fixed_param(upper, "--fix-upper"),
-        false => Param::new(upper, fit.se[1], wald(&model, &fit, 1, options.confidence), "wald", None),
+        false => Param::new(upper, fit.se[1], wald(&fit, 1, Scale::Linear, options.confidence), "wald", None),
     };
     let mut lower = fixed_param(0.0, "the Morrison model");
     lower.note = Some("zero by the Morrison model (complete inhibition at saturating inhibitor)".into());

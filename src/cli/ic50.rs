@@ -17,7 +17,6 @@ use rayon::prelude::*;
 use super::{CAUTION, OutputArgs, parse_confidence, parse_flag_concentration};
 use crate::analysis::ic50::{Carried, Curve, Ic50Result, IntervalMethod, Options, PlateQc, Thresholds, Wells, analyse};
 use crate::error::{CellError, Error, Result};
-use crate::fit::FitSettings;
 use crate::io::input::Record;
 use crate::io::output::{neutralise_formula, new_grid, sig};
 use crate::io::stream::{OutputSink, RowStream};
@@ -227,7 +226,7 @@ pub fn run_source(source: &Source, args: &Args, out: &mut dyn Write, progress: b
         confidence: args.confidence,
         intervals: args.intervals,
         thresholds,
-        settings: FitSettings::default(),
+        settings: crate::analysis::ic50::screening_settings(),
     };
     let mut bar = Progress::new(progress, source.len());
     let batch_size = args.batch_size.max(1);
@@ -953,6 +952,7 @@ pub fn flag_meaning(code: &str) -> &'static str {
         "poor-fit" => "R² below --min-r2: the logistic does not describe these data well",
         "too-few-points" => "fewer distinct concentrations than --min-concentrations",
         "not-converged" => "the fit did not converge; the estimates are not trustworthy",
+        "hill-fixed" => "no transition inside the tested range determines the slope; Hill held at 1 to place the IC50",
         "tight-binding-titration" => "Ki,app below Et/10: the curve mostly measures the enzyme concentration",
         "plate-z-prime-low" => "a plate of this compound has Z′ below --min-z-prime",
         "carried-varies" => "a carried column has different values within the compound (joined with ';')",

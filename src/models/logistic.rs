@@ -17,6 +17,23 @@
 
 use crate::fit::{Data, Model, Scale};
 
+/// One tested concentration with its logarithm, computed once per curve
+/// rather than in every evaluation of the fit.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Dose {
+    /// The concentration (0 allowed).
+    pub x: f64,
+    /// ln x; unused (and −∞) at x = 0.
+    pub ln_x: f64,
+}
+
+impl Dose {
+    /// A dose and its logarithm.
+    pub fn new(x: f64) -> Dose {
+        Dose { x, ln_x: if x > 0.0 { x.ln() } else { f64::NEG_INFINITY } }
+    }
+}
+
 /// The four-parameter logistic; concentrations in any one unit (IC50 comes
 /// out in that unit).
 #[derive(Debug, Clone, Copy, Default)]
@@ -33,10 +50,10 @@ impl Logistic {
     pub const UPPER: usize = 3;
 
     /// 1/(1 + (x/IC50)^h), with its limits at x = 0, and ln(x/IC50) (0 at x = 0).
-    fn fraction(theta: &[f64], x: f64) -> (f64, f64) {
+    fn fraction(theta: &[f64], dose: &Dose) -> (f64, f64) {
         let h = theta[Self::HILL];
-        if x > 0.0 {
-            let log_ratio = x.ln() - theta[Self::IC50].ln();
+        if dose.x > 0.0 {
+            let log_ratio = dose.ln_x - theta[Self::IC50].ln();
             // exp overflowing to +inf gives s = 0, the right limit.
             (1.0 / (1.0 + (h * log_ratio).exp()), log_ratio)
         } else if h > 0.0 {
@@ -50,7 +67,7 @@ impl Logistic {
 }
 
 impl Model for Logistic {
-    type Point = f64;
+    type Point = Dose;
 
     fn names(&self) -> &[&'static str] {
         &["ic50", "hill", "lower", "upper"]
@@ -60,16 +77,16 @@ impl Model for Logistic {
         &[Scale::Log, Scale::Linear, Scale::Linear, Scale::Linear]
     }
 
-    fn value(&self, theta: &[f64], x: &f64) -> f64 {
-        let (s, _) = Self::fraction(theta, *x);
+    fn value(&self, theta: &[f64], x: &Dose) -> f64 {
+        let (s, _) = Self::fraction(theta, x);
         theta[Self::LOWER] + (theta[Self::UPPER] - theta[Self::LOWER]) * s
     }
 
     /// With s = 1/(1+u), u = (x/IC50)^h: ∂y/∂upper = s, ∂y/∂lower = 1 − s,
     /// ∂y/∂IC50 = (upper − lower)·s(1−s)·h/IC50,
     /// ∂y/∂h = −(upper − lower)·s(1−s)·ln(x/IC50). At x = 0, s(1−s) = 0.
-    fn gradient(&self, theta: &[f64], x: &f64, grad: &mut [f64]) {
-        let (s, log_ratio) = Self::fraction(theta, *x);
+    fn gradient(&self, theta: &[f64], x: &Dose, grad: &mut [f64]) {
+        let (s, log_ratio) = Self::fraction(theta, x);
         let span = theta[Self::UPPER] - theta[Self::LOWER];
         let bend = span * s * (1.0 - s);
         grad[Self::IC50] = bend * theta[Self::HILL] / theta[Self::IC50];
@@ -83,8 +100,8 @@ impl Model for Logistic {
     /// line ln((upper − y)/(y − lower)) = h·ln x − h·ln IC50 through the
     /// positive concentrations (the logit transform of the curve). Then a
     /// few fallbacks with h = 1 and IC50 spread over the tested range.
-    fn starts(&self, data: &Data<f64>) -> Vec<Vec<f64>> {
-        let Some(guess) = Guess::from(data) else {
+    fn starts(&self, data: &Data<Dose>) -> Vec<Vec<f64>> {
+        let Some(guess) = Guess::from(&data.x.iter().map(|d| d.x).collect::<Vec<_>>(), &data.y) else {
             return vec![vec![1.0, 1.0, 0.0, 1.0]];
         };
         let mut starts = Vec::with_capacity(4);
@@ -113,9 +130,9 @@ pub struct Guess {
 
 impl Guess {
     /// `None` when there is no positive concentration.
-    pub fn from(data: &Data<f64>) -> Option<Guess> {
+    pub fn from(xs: &[f64], ys: &[f64]) -> Option<Guess> {
         let (mut lo_x, mut hi_x, mut min_pos) = (f64::INFINITY, f64::NEG_INFINITY, f64::INFINITY);
-        for &x in &data.x {
+        for &x in xs {
             lo_x = lo_x.min(x);
             hi_x = hi_x.max(x);
             if x > 0.0 {
@@ -126,10 +143,9 @@ impl Guess {
             return None;
         }
         let mean_at = |target: f64| {
-            let (sum, n) = data
-                .x
+            let (sum, n) = xs
                 .iter()
-                .zip(&data.y)
+                .zip(ys)
                 .filter(|(x, _)| (**x - target).abs() <= 1e-12 * target.abs())
                 .fold((0.0, 0usize), |(s, n), (_, y)| (s + y, n + 1));
             sum / n.max(1) as f64
@@ -145,18 +161,18 @@ impl Guess {
 
 /// IC50 and h from the least-squares line through the logit-transformed
 /// responses; `None` when the line is degenerate.
-fn logit_line(data: &Data<f64>, lower: f64, upper: f64) -> Option<(f64, f64)> {
+fn logit_line(data: &Data<Dose>, lower: f64, upper: f64) -> Option<(f64, f64)> {
     let span = upper - lower;
     if span.abs() <= f64::EPSILON * upper.abs().max(lower.abs()) {
         return None;
     }
     let (mut n, mut sx, mut sz, mut sxx, mut sxz) = (0.0, 0.0, 0.0, 0.0, 0.0);
-    for (&x, &y) in data.x.iter().zip(&data.y) {
-        if x <= 0.0 {
+    for (dose, &y) in data.x.iter().zip(&data.y) {
+        if dose.x <= 0.0 {
             continue;
         }
         let p = ((y - lower) / span).clamp(0.02, 0.98);
-        let (lx, z) = (x.ln(), ((1.0 - p) / p).ln());
+        let (lx, z) = (dose.ln_x, ((1.0 - p) / p).ln());
         n += 1.0;
         sx += lx;
         sz += z;
@@ -224,7 +240,7 @@ impl Model for Morrison {
     /// The apparent Ki from the concentration where the response crosses
     /// half its start (IC50 = K + Et/2), and a grid in decades of Et.
     fn starts(&self, data: &Data<f64>) -> Vec<Vec<f64>> {
-        let Some(guess) = Guess::from(data) else {
+        let Some(guess) = Guess::from(&data.x, &data.y) else {
             return vec![vec![self.et, 1.0]];
         };
         let mut starts = Vec::new();
@@ -258,17 +274,17 @@ mod tests {
     use super::*;
     use approx::assert_relative_eq;
 
-    fn check_gradient<M: Model<Point = f64>>(m: &M, theta: &[f64], xs: &[f64]) {
+    fn check_gradient<M: Model>(m: &M, theta: &[f64], xs: &[M::Point]) {
         let mut g = vec![0.0; theta.len()];
-        for &x in xs {
-            m.gradient(theta, &x, &mut g);
+        for x in xs {
+            m.gradient(theta, x, &mut g);
             for j in 0..theta.len() {
                 let h = 1e-6 * theta[j].abs().max(1e-3);
                 let (mut up, mut dn) = (theta.to_vec(), theta.to_vec());
                 up[j] += h;
                 dn[j] -= h;
-                let numeric = (m.value(&up, &x) - m.value(&dn, &x)) / (2.0 * h);
-                assert!((g[j] - numeric).abs() <= 1e-6 * (1.0 + numeric.abs()), "x={x} j={j}: {} vs {numeric}", g[j]);
+                let numeric = (m.value(&up, x) - m.value(&dn, x)) / (2.0 * h);
+                assert!((g[j] - numeric).abs() <= 1e-6 * (1.0 + numeric.abs()), "j={j}: {} vs {numeric}", g[j]);
             }
         }
     }
@@ -276,14 +292,14 @@ mod tests {
     #[test]
     fn logistic_gradient_matches_central_differences_and_is_finite_at_zero() {
         let theta = [3.0, 2.5, 0.4, 7.8];
-        check_gradient(&Logistic, &theta, &[0.0, 0.5, 3.0, 30.0]);
+        check_gradient(&Logistic, &theta, &[0.0, 0.5, 3.0, 30.0].map(Dose::new));
         let mut g = [0.0; 4];
-        Logistic.gradient(&theta, &0.0, &mut g);
+        Logistic.gradient(&theta, &Dose::new(0.0), &mut g);
         for (got, want) in g.iter().zip([0.0, 0.0, 0.0, 1.0]) {
             assert_relative_eq!(*got, want);
         }
-        assert_relative_eq!(Logistic.value(&theta, &0.0), 7.8);
-        assert_relative_eq!(Logistic.value(&theta, &3.0), 0.5 * (0.4 + 7.8));
+        assert_relative_eq!(Logistic.value(&theta, &Dose::new(0.0)), 7.8);
+        assert_relative_eq!(Logistic.value(&theta, &Dose::new(3.0)), 0.5 * (0.4 + 7.8));
     }
 
     #[test]

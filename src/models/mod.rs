@@ -6,4 +6,4 @@ pub mod michaelis_menten;
 pub use michaelis_menten::MichaelisMenten;
 pub mod logistic;
 
-pub use logistic::{Logistic, Morrison};
+pub use logistic::{Dose, Logistic, Morrison};
