@@ -23,6 +23,7 @@ fn options() -> Options {
         fix_upper: None,
         enzyme: None,
         unit: ConcUnit::Nanomolar,
+        response_unit: None,
         confidence: 0.95,
         intervals: IntervalMethod::Wald,
         thresholds: Thresholds::default(),
@@ -421,4 +422,31 @@ fn human_report_ends_with_the_caution() {
     let text = String::from_utf8(out.stdout).unwrap();
     assert!(text.trim_end().ends_with(kimech::cli::CAUTION), "{text}");
     assert!(text.contains("IC50 (nM)") && text.contains("KX-1"));
+}
+
+/// The invented demo plates (demo-compounds/make_dose_response.py): the
+/// awkward curves built into them come out with their flags.
+#[test]
+fn demo_plates_come_out_with_the_planted_flags() {
+    let out = kimech()
+        .args(["ic50", "demo-compounds/dose-response.csv", "--normalise", "--format", "json"])
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let results = v["results"].as_array().unwrap();
+    assert_eq!(results.len(), 30);
+    let by = |name: &str| results.iter().find(|r| r["compound"] == name).unwrap().clone();
+    let has = |name: &str, flag: &str| by(name)["flags"].as_array().unwrap().iter().any(|f| f == flag);
+    assert!(has("KX-109", "hill-shallow"));
+    assert!(has("KX-113", "partial-inhibition"));
+    assert!(has("KX-117", "no-inhibition") && by("KX-117")["qualifier"] == ">");
+    assert!(has("KX-121", "hill-steep"));
+    assert!(has("KX-125", "plate-z-prime-low") && !has("KX-101", "plate-z-prime-low"));
+    assert_eq!(by("KX-101")["carried"]["enzyme (nM)"], "2");
+    assert_eq!(by("KX-101")["upper"]["unit"], "%");
+    assert_eq!(v["plates"][2]["flags"][0], "plate-z-prime-low");
+    let demo = kimech().arg("demo").output().unwrap();
+    let text = String::from_utf8(demo.stdout).unwrap();
+    assert!(text.contains("kimech ic50 demo-compounds/dose-response.csv --normalise") && text.contains("KX-130"));
 }

@@ -31,7 +31,7 @@
 //! | `hill-shallow` | \|h\| below `hill_shallow` (0.5), IC50 within range |
 //! | `partial-inhibition` | lower/upper above `partial_above` (0.2): activity left at saturating inhibitor, response measured from zero |
 //! | `no-inhibition` | fitted inhibition at the top concentration, 1 − y(top)/upper, below `min_inhibition` (0.2) |
-//! | `poor-fit` | R² below `min_r2` (0.8) |
+//! | `poor-fit` | R² below `min_r2` (0.8); not raised with `no-inhibition` (R² means nothing for a flat curve) |
 //! | `too-few-points` | fewer than `min_concentrations` (6) distinct concentrations |
 //! | `not-converged` | the minimiser did not stop at a minimum |
 //! | `hill-fixed` | the free fit was degenerate (no transition in range); refitted with h = 1 to place the IC50 |
@@ -146,6 +146,8 @@ pub struct Options {
     pub enzyme: Option<f64>,
     /// The unit of concentrations and IC50.
     pub unit: ConcUnit,
+    /// The unit of the response and the asymptotes (`%` after normalisation), if known.
+    pub response_unit: Option<String>,
     /// Confidence level, e.g. 0.95.
     pub confidence: f64,
     /// Interval method for IC50.
@@ -297,8 +299,14 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     common_flags(&fit, levels, t, curve, &mut flags);
     let ic50_param = ic50_param(&model, &data, &fit, Logistic::IC50, qualifier, min_pos, max, 0.0, options);
     let wald_linear = |j: usize, flag: &str| match fit.fixed[j] {
-        true => fixed_param(fit.theta[j], flag),
-        false => Param::new(fit.theta[j], fit.se[j], wald(&fit, j, Scale::Linear, options.confidence), "wald", None),
+        true => Param { unit: options.response_unit.clone(), ..fixed_param(fit.theta[j], flag) },
+        false => Param::new(
+            fit.theta[j],
+            fit.se[j],
+            wald(&fit, j, Scale::Linear, options.confidence),
+            "wald",
+            options.response_unit.clone(),
+        ),
     };
     Ok(Ic50Result {
         compound: curve.compound.clone(),
@@ -427,8 +435,11 @@ fn range_flags(ic50: f64, min_pos: f64, max: f64, no_inhibition: bool, flags: &m
     }
 }
 
+/// Flags every model shares. R² says nothing about a flat curve (there is
+/// no variance to explain), so `poor-fit` is not raised with `no-inhibition`.
 fn common_flags(fit: &Fit, levels: usize, t: &Thresholds, curve: &Curve, flags: &mut Vec<&'static str>) {
-    if fit.r2 < t.min_r2 || fit.r2.is_nan() {
+    let flat = flags.contains(&"no-inhibition");
+    if !flat && (fit.r2 < t.min_r2 || fit.r2.is_nan()) {
         flags.push("poor-fit");
     }
     if levels < t.min_concentrations {
@@ -512,10 +523,16 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
         _ => Param { value: ic50.value - et / 2.0, ..ic50.clone() },
     };
     let upper_p = match fit.fixed[Morrison::UPPER] {
-        true => fixed_param(upper, "--fix-upper"),
-        false => Param::new(upper, fit.se[1], wald(&fit, 1, Scale::Linear, options.confidence), "wald", None),
+        true => Param { unit: options.response_unit.clone(), ..fixed_param(upper, "--fix-upper") },
+        false => Param::new(
+            upper,
+            fit.se[1],
+            wald(&fit, 1, Scale::Linear, options.confidence),
+            "wald",
+            options.response_unit.clone(),
+        ),
     };
-    let mut lower = fixed_param(0.0, "the Morrison model");
+    let mut lower = Param { unit: options.response_unit.clone(), ..fixed_param(0.0, "the Morrison model") };
     lower.note = Some("zero by the Morrison model (complete inhibition at saturating inhibitor)".into());
     Ok(Ic50Result {
         compound: curve.compound.clone(),

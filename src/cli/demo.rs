@@ -1,10 +1,13 @@
 //! `kimech demo`: the whole chain on the bundled invented scenario.
 
-use super::km;
+use super::{ic50, km};
 use crate::error::Result;
 
 /// The invented substrate series (see demo-compounds/README.md).
 const SUBSTRATE_SERIES: &str = include_str!("../../demo-compounds/substrate-series.csv");
+
+/// The invented dose-response plates (demo-compounds/make_dose_response.py).
+const DOSE_RESPONSE: &str = include_str!("../../demo-compounds/dose-response.csv");
 
 /// Run every stage on the invented demo scenario and print a summary.
 #[derive(Debug, Clone, clap::Args)]
@@ -34,5 +37,22 @@ pub fn run(_args: &Args) -> Result<()> {
     };
     let (results, failures) = km::analyse_all(&series, &units, &options);
     print!("{}", km::human(&results));
-    super::finish(&failures, series.len(), "series")
+    let km_status = super::finish(&failures, series.len(), "series");
+    let (_ic50_csv, ic50_status) = dose_response_stage()?;
+    km_status.and(ic50_status)
+}
+
+/// The dose-response stage: plates → IC50 table. Prints the human report and
+/// returns the CSV a user would pass on to `kimech ki`, with the stage's status.
+pub fn dose_response_stage() -> Result<(String, Result<()>)> {
+    let name = "demo-compounds/dose-response.csv";
+    println!("\nStage 2 — dose-response plates → IC50, Hill coefficient, quality flags (Z′ per plate)");
+    println!("  $ kimech ic50 {name} --normalise\n");
+    let mut args = ic50::Args::new(name, crate::io::Format::Table);
+    args.normalise = true;
+    let (human, summary) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &args)?;
+    print!("{}", String::from_utf8_lossy(&human));
+    args.output.format = crate::io::Format::Csv;
+    let (csv, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &args)?;
+    Ok((String::from_utf8_lossy(&csv).into_owned(), summary.into_result()))
 }

@@ -214,11 +214,17 @@ pub fn run_source(source: &Source, args: &Args, out: &mut dyn Write, progress: b
     let stream = source.open()?;
     let layout = Layout::new(stream.table(), args)?;
     let mut grouper = Grouper::new(stream, layout, args, plates.as_ref());
-    let mut writer = Writer::new(args.output.format, &grouper.layout, args.enzyme.is_some());
+    let mut writer = Writer::new(args.output.format, &grouper.layout, args.enzyme.is_some(), args.confidence);
     if let Some(p) = &plates {
         writer.plates(out, &p.qc)?;
     }
+    let response_unit = if args.normalise {
+        Some("%".to_string())
+    } else {
+        grouper.stream.table().unit_text(grouper.layout.response).map(str::to_string)
+    };
     let options_for = |unit: ConcUnit| Options {
+        response_unit: response_unit.clone(),
         fix_lower: args.fix_lower,
         fix_upper: args.fix_upper,
         enzyme: args.enzyme.map(|e| unit.from_molar(e.molar)),
@@ -699,11 +705,11 @@ struct Writer {
     started: bool,
     any_result: bool,
     flags_seen: Vec<&'static str>,
-    plates_written: bool,
+    confidence: f64,
 }
 
 impl Writer {
-    fn new(format: Format, layout: &Layout, morrison: bool) -> Writer {
+    fn new(format: Format, layout: &Layout, morrison: bool, confidence: f64) -> Writer {
         Writer {
             format,
             carried_headers: layout.carried.iter().map(|c| c.2.clone()).collect(),
@@ -711,7 +717,7 @@ impl Writer {
             started: false,
             any_result: false,
             flags_seen: Vec::new(),
-            plates_written: false,
+            confidence,
         }
     }
 
@@ -719,7 +725,6 @@ impl Writer {
         if self.format == Format::Json {
             let plates = serde_json::to_string(qc).map_err(|e| Error::Serialise(e.to_string()))?;
             write_all(out, format!("{{\"plates\": {plates},\n\"results\": [\n").as_bytes())?;
-            self.plates_written = true;
             self.started = true;
         }
         Ok(())
@@ -767,7 +772,7 @@ impl Writer {
                     return Ok(());
                 }
                 self.started = true;
-                write_all(out, human_batch(&ok, self.morrison, unit).as_bytes())
+                write_all(out, human_batch(&ok, self.morrison, unit, self.confidence).as_bytes())
             }
         }
     }
@@ -870,9 +875,10 @@ fn csv_row(r: &Ic50Result, morrison: bool) -> Vec<String> {
     row
 }
 
-fn human_batch(results: &[&Ic50Result], morrison: bool, unit: ConcUnit) -> String {
+fn human_batch(results: &[&Ic50Result], morrison: bool, unit: ConcUnit, confidence: f64) -> String {
+    let level = format!("{:.0}% interval", 100.0 * confidence);
     let mut header: Vec<String> =
-        ["compound", "n", &format!("IC50 ({unit})"), "95% interval", "pIC50", "Hill", "upper", "lower", "R²"]
+        ["compound", "n", &format!("IC50 ({unit})"), &level, "pIC50", "Hill", "upper", "lower", "R²"]
             .map(String::from)
             .to_vec();
     if morrison {
