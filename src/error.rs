@@ -106,7 +106,7 @@ pub enum Error {
     #[error("fit: {0}")]
     Fit(String),
     /// Some rows or groups failed while others succeeded; the output has the good ones.
-    #[error("{failed} of {total} {what} could not be processed; see the messages above")]
+    #[error("{failed} of {total} {what} could not be processed (messages above); the results shown are for the rest")]
     Partial {
         /// How many failed.
         failed: usize,

@@ -5,7 +5,10 @@ use std::process::ExitCode;
 fn main() -> ExitCode {
     match kimech::cli::run(std::env::args_os()) {
         Ok(()) => ExitCode::SUCCESS,
-        Err(kimech::Error::Partial { .. }) => ExitCode::from(3),
+        Err(e @ kimech::Error::Partial { .. }) => {
+            eprintln!("kimech: {e}");
+            ExitCode::from(3)
+        }
         Err(kimech::Error::Usage(message)) => {
             eprintln!("{message}");
             ExitCode::from(2)

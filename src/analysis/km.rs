@@ -255,8 +255,11 @@ fn turnover(
         },
     };
     let km_unit = km.unit.clone().unwrap_or_else(|| "substrate unit".into());
-    let kcat_km =
-        Param::new(value, se_log.map(|s| s * value), interval, "wald-log", Some(format!("{kcat_unit} per {km_unit}")));
+    let kcat_km_unit = match kcat_unit.strip_prefix("1/") {
+        Some(time) => format!("1/({km_unit}*{time})"),
+        None => format!("{kcat_unit} per {km_unit}"),
+    };
+    let kcat_km = Param::new(value, se_log.map(|s| s * value), interval, "wald-log", Some(kcat_km_unit));
     (kcat, kcat_km)
 }
 

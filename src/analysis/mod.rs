@@ -3,3 +3,4 @@
 
 pub mod ic50;
 pub mod km;
+pub mod rates;

@@ -72,22 +72,38 @@ pub struct Report {
 /// Runs `kimech km`.
 pub fn run(args: &Args) -> Result<()> {
     let table = Table::read(&args.file)?;
-    let (series, units) = read_series(&table, args)?;
+    let outcome = process(&table, args)?;
+    let bytes = render(&outcome.results, args.output.format)?;
+    write_output(args.output.output.as_deref(), &bytes, &[&args.file])?;
+    finish(&outcome.failures, outcome.total, "series")
+}
+
+/// What one run produced: results for the series that could be fitted and
+/// the errors of those that could not.
+pub struct Outcome {
+    /// Results, in input order.
+    pub results: Vec<KmResult>,
+    /// One error per series that failed.
+    pub failures: Vec<Error>,
+    /// Number of series in the input.
+    pub total: usize,
+}
+
+/// Reads the series from `table` and fits each one.
+pub fn process(table: &Table, args: &Args) -> Result<Outcome> {
+    let (series, units) = read_series(table, args)?;
     let options = Options {
         weighting: args.weighting.into(),
         confidence: args.confidence,
         enzyme: args.enzyme.map(|e| Enzyme { molar: e.molar, unit: e.unit }),
         settings: FitSettings::default(),
     };
-    let total = series.len();
     let (results, failures) = analyse_all(&series, &units, &options);
-    let bytes = render(&results, args.output.format)?;
-    write_output(args.output.output.as_deref(), &bytes, &[&args.file])?;
-    finish(&failures, total, "series")
+    Ok(Outcome { results, failures, total: series.len() })
 }
 
 /// Fits every series; failures are collected, not fatal.
-pub fn analyse_all(series: &[Series], units: &Units, options: &Options) -> (Vec<KmResult>, Vec<Error>) {
+fn analyse_all(series: &[Series], units: &Units, options: &Options) -> (Vec<KmResult>, Vec<Error>) {
     let mut results = Vec::new();
     let mut failures = Vec::new();
     for s in series {
@@ -100,7 +116,7 @@ pub fn analyse_all(series: &[Series], units: &Units, options: &Options) -> (Vec<
 }
 
 /// Reads the table into series, converting substrate to one unit.
-pub fn read_series(table: &Table, args: &Args) -> Result<(Vec<Series>, Units)> {
+fn read_series(table: &Table, args: &Args) -> Result<(Vec<Series>, Units)> {
     let s_col = table.require(&SUBSTRATE)?;
     let v_col = table.require(&RATE)?;
     let series_col = table.find(&SERIES);
@@ -123,7 +139,7 @@ pub fn read_series(table: &Table, args: &Args) -> Result<(Vec<Series>, Units)> {
     for (label, rows) in groups {
         let mut s = Series {
             label,
-            origin: origin(&rows),
+            origin: super::rows_origin(&rows),
             substrate: Vec::new(),
             rate: Vec::new(),
             sd: sd_col.map(|_| Vec::new()),
@@ -158,14 +174,6 @@ pub fn read_series(table: &Table, args: &Args) -> Result<(Vec<Series>, Units)> {
     let units =
         Units { substrate: unit.map(|u| u.symbol().to_string()), rate: table.unit_text(v_col).map(str::to_string) };
     Ok((series, units))
-}
-
-fn origin(rows: &[&crate::io::input::Record]) -> String {
-    match (rows.first(), rows.last()) {
-        (Some(a), Some(b)) if a.line == b.line => format!("line {}", a.line),
-        (Some(a), Some(b)) => format!("lines {}-{}", a.line, b.line),
-        _ => "no rows".into(),
-    }
 }
 
 /// Serialises results in the chosen format.
@@ -236,6 +244,14 @@ impl From<&KmResult> for CsvRow {
     }
 }
 
+fn weighting_name(w: Weighting) -> &'static str {
+    match w {
+        Weighting::None => "none",
+        Weighting::Relative => "relative (1/rate²)",
+        Weighting::Sd => "1/sd²",
+    }
+}
+
 fn param_row(name: &str, p: &Param) -> Vec<String> {
     let end = |v: Option<f64>| v.map_or("unbounded".to_string(), |v| sig(v, 5));
     vec![
@@ -273,7 +289,7 @@ pub fn human(results: &[KmResult]) -> String {
         }
         out.push_str(&format!("{grid}\n"));
         out.push_str(&format!(
-            "n = {}, df = {}, SSE = {}, residual SD = {}, R² = {}, runs-test p = {}, {}; intervals: {} likelihood, weighting: {:?}\n",
+            "n = {}, df = {}, SSE = {}, residual SD = {}, R² = {}, runs-test p = {}, {}; intervals: {}, weighting: {}\n",
             r.n,
             r.df,
             sig(r.sse, 5),
@@ -282,7 +298,7 @@ pub fn human(results: &[KmResult]) -> String {
             r.runs_p.map_or("—".into(), |p| sig(p, 2)),
             if r.converged { "converged" } else { "NOT converged" },
             r.params.km.interval,
-            r.weighting,
+            weighting_name(r.weighting),
         ));
         let dr = &r.double_reciprocal;
         out.push_str(&format!(

@@ -12,6 +12,7 @@ use crate::io::Format;
 pub mod demo;
 pub mod ic50;
 pub mod km;
+pub mod rates;
 
 /// Enzyme-inhibitor potency and mechanism analysis.
 ///
@@ -26,6 +27,8 @@ pub struct Cli {
 
 #[derive(Debug, Subcommand)]
 enum Command {
+    /// Initial rates from progress curves (output feeds `km`).
+    Rates(rates::Args),
     /// Fit Michaelis–Menten to substrate series: Vmax, Km, kcat.
     Km(km::Args),
     /// Fit dose-response curves: IC50, pIC50, Hill coefficient, quality flags.
@@ -48,6 +51,7 @@ pub fn run(args: impl IntoIterator<Item = impl Into<OsString> + Clone>) -> Resul
         }
     };
     match cli.command {
+        Command::Rates(args) => rates::run(&args),
         Command::Km(args) => km::run(&args),
         Command::Ic50(args) => ic50::run(&args),
         Command::Demo(args) => demo::run(&args),
@@ -82,6 +86,15 @@ pub fn finish(failures: &[Error], total: usize, what: &'static str) -> Result<()
         eprintln!("kimech: {f}");
     }
     if failures.is_empty() { Ok(()) } else { Err(Error::Partial { failed: failures.len(), total, what }) }
+}
+
+/// "line 4" or "lines 4-9": where a group's rows are, for messages.
+pub fn rows_origin(rows: &[&crate::io::input::Record]) -> String {
+    match (rows.first(), rows.last()) {
+        (Some(a), Some(b)) if a.line == b.line => format!("line {}", a.line),
+        (Some(a), Some(b)) => format!("lines {}-{}", a.line, b.line),
+        _ => "no rows".into(),
+    }
 }
 
 /// The sentence every human-readable report ends with.

@@ -69,6 +69,8 @@ pub struct Table {
     pub source: String,
     /// Header cells.
     pub columns: Vec<Column>,
+    /// The line the header is on (after any leading comments).
+    pub header_line: u64,
     /// Data rows in file order.
     pub rows: Vec<Record>,
 }
@@ -99,44 +101,52 @@ impl Table {
         Table::parse(&source, &bytes, delimiter)
     }
 
-    /// Parses CSV bytes; `source` names them in errors.
+    /// Parses CSV bytes; `source` names them in errors. Comment lines (first
+    /// cell starting with `#`) and blank lines are skipped; the first other
+    /// line is the header.
     pub fn parse(source: &str, bytes: &[u8], delimiter: u8) -> Result<Table> {
         let mut reader = csv::ReaderBuilder::new()
             .delimiter(delimiter)
-            .comment(Some(b'#'))
             .trim(csv::Trim::All)
-            .has_headers(true)
-            .flexible(false)
+            .has_headers(false)
+            .flexible(true)
             .from_reader(bytes);
-        let csv_error = |e: csv::Error| Error::Csv {
-            path: source.to_string(),
-            line: e.position().map_or(0, |p| p.line()),
-            message: describe_csv_error(&e),
-        };
-        let headers = reader.headers().map_err(csv_error)?.clone();
-        let columns: Vec<Column> = headers.iter().map(Column::parse).collect();
-        if columns.iter().all(|c| c.key.is_empty()) {
-            return Err(Error::Empty { path: source.to_string() });
-        }
+        let csv_error = |line: u64, message: String| Error::Csv { path: source.to_string(), line, message };
+        let mut columns: Option<Vec<Column>> = None;
+        let mut header_line = 1;
         let mut rows = Vec::new();
         let mut record = csv::StringRecord::new();
         loop {
             match reader.read_record(&mut record) {
                 Ok(false) => break,
-                Ok(true) => {
-                    if record.iter().all(|c| c.is_empty()) {
-                        continue;
-                    }
-                    let line = record.position().map_or(0, |p| p.line());
-                    rows.push(Record { line, cells: record.iter().map(str::to_string).collect() });
-                }
-                Err(e) => return Err(csv_error(e)),
+                Ok(true) => {}
+                Err(e) => return Err(csv_error(e.position().map_or(0, |p| p.line()), describe_csv_error(&e))),
             }
+            let line = record.position().map_or(0, |p| p.line());
+            if record.iter().all(str::is_empty) || record.get(0).is_some_and(|c| c.starts_with('#')) {
+                continue;
+            }
+            let Some(header) = &columns else {
+                columns = Some(record.iter().map(Column::parse).collect());
+                header_line = line;
+                continue;
+            };
+            if record.len() != header.len() {
+                return Err(csv_error(
+                    line,
+                    format!(
+                        "this row has {} fields but the header has {}; every row needs one cell per header column (quote cells that contain the delimiter)",
+                        record.len(),
+                        header.len()
+                    ),
+                ));
+            }
+            rows.push(Record { line, cells: record.iter().map(str::to_string).collect() });
         }
-        if rows.is_empty() {
-            return Err(Error::Empty { path: source.to_string() });
+        match columns {
+            Some(columns) if !rows.is_empty() => Ok(Table { source: source.to_string(), columns, header_line, rows }),
+            _ => Err(Error::Empty { path: source.to_string() }),
         }
-        Ok(Table { source: source.to_string(), columns, rows })
     }
 
     /// Index of the column matching `spec`, if present.
@@ -200,7 +210,7 @@ impl Table {
             Some(text) => ConcUnit::parse(text).map(Some).ok_or_else(|| {
                 Error::Cell(Box::new(CellError {
                     path: self.source.clone(),
-                    line: 1,
+                    line: self.header_line,
                     column: self.columns[col].header.clone(),
                     value: text.clone(),
                     problem: "the unit in the header is not a concentration unit".into(),
@@ -260,9 +270,6 @@ impl Table {
 
 pub(crate) fn describe_csv_error(e: &csv::Error) -> String {
     match e.kind() {
-        csv::ErrorKind::UnequalLengths { expected_len, len, .. } => format!(
-            "this row has {len} fields but the header has {expected_len}; every row needs one cell per header column (quote cells that contain the delimiter)"
-        ),
         csv::ErrorKind::Utf8 { .. } => "the text is not valid UTF-8; save the file as UTF-8".to_string(),
         csv::ErrorKind::Io(io) => format!("read error: {io}"),
         _ => format!("malformed CSV: {e}"),

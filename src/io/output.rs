@@ -78,10 +78,17 @@ pub fn json_bytes<T: serde::Serialize>(value: &T) -> Result<Vec<u8>> {
     Ok(bytes)
 }
 
-/// A table for people in kimech's plain style (horizontal rules only).
+/// kimech's table look: a thin rule above and below, a dotted rule under the
+/// header, nothing between rows.
+const GRID_STYLE: comfy_table::TableStyle = comfy_table::TableStyle::new()
+    .top_border(comfy_table::LineStyle::none().fill('─').junction('─'))
+    .header_separator(comfy_table::LineStyle::none().fill('┄').junction('┄'))
+    .bottom_border(comfy_table::LineStyle::none().fill('─').junction('─'));
+
+/// A table for people in kimech's plain style.
 pub fn new_grid(header: Vec<String>) -> comfy_table::Table {
     let mut grid = comfy_table::Table::new();
-    grid.load_style(comfy_table::presets::UTF8_HORIZONTAL_ONLY);
+    grid.load_style(GRID_STYLE);
     grid.set_header(header);
     grid
 }

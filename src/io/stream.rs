@@ -36,23 +36,45 @@ impl RowStream {
         RowStream::new(&source, input, delimiter_for(path))
     }
 
-    /// Reads from any byte source; `source` names it in errors.
+    /// Reads from any byte source; `source` names it in errors. Blank
+    /// lines and comments (first cell starting with `#`) are skipped, as by
+    /// [`Table::parse`]; the first other line is the header.
     pub fn new(source: &str, input: Box<dyn Read + Send>, delimiter: u8) -> Result<RowStream> {
         let input: Box<dyn Read + Send> = Box::new(BufReader::with_capacity(1 << 16, input));
-        let mut reader = csv::ReaderBuilder::new()
+        let reader = csv::ReaderBuilder::new()
             .delimiter(delimiter)
-            .comment(Some(b'#'))
             .trim(csv::Trim::All)
-            .has_headers(true)
-            .flexible(false)
+            .has_headers(false)
+            .flexible(true)
             .from_reader(input);
-        let headers = reader.headers().map_err(|e| csv_error(source, &e))?.clone();
-        let columns: Vec<Column> = headers.iter().map(Column::parse).collect();
-        if columns.iter().all(|c| c.key.is_empty()) {
+        let table = Table { source: source.to_string(), columns: Vec::new(), header_line: 1, rows: Vec::new() };
+        let mut stream = RowStream { table, reader, record: csv::StringRecord::new(), rows: 0 };
+        if !stream.next_content()? {
             return Err(Error::Empty { path: source.to_string() });
         }
-        let table = Table { source: source.to_string(), columns, rows: Vec::new() };
-        Ok(RowStream { table, reader, record: csv::StringRecord::new(), rows: 0 })
+        stream.table.columns = stream.record.iter().map(Column::parse).collect();
+        stream.table.header_line = stream.record.position().map_or(1, |p| p.line());
+        if stream.table.columns.iter().all(|c| c.key.is_empty()) {
+            return Err(Error::Empty { path: source.to_string() });
+        }
+        Ok(stream)
+    }
+
+    /// Reads the next record that is neither blank nor a comment; false at the end.
+    fn next_content(&mut self) -> Result<bool> {
+        loop {
+            match self.reader.read_record(&mut self.record) {
+                Ok(false) => return Ok(false),
+                Ok(true) => {
+                    let r = &self.record;
+                    if r.iter().all(str::is_empty) || r.get(0).is_some_and(|c| c.starts_with('#')) {
+                        continue;
+                    }
+                    return Ok(true);
+                }
+                Err(e) => return Err(csv_error(&self.table.source, &e)),
+            }
+        }
     }
 
     /// The header (and file name) as a table without rows, for the cell accessors.
@@ -60,29 +82,31 @@ impl RowStream {
         &self.table
     }
 
-    /// Reads the next non-blank row into `row`, reusing its buffers; false at the end.
+    /// Reads the next data row into `row`, reusing its buffers; false at the end.
     /// A file with a header and no rows is [`Error::Empty`].
     pub fn next_into(&mut self, row: &mut Record) -> Result<bool> {
-        loop {
-            match self.reader.read_record(&mut self.record) {
-                Ok(false) if self.rows == 0 => return Err(Error::Empty { path: self.table.source.clone() }),
-                Ok(false) => return Ok(false),
-                Ok(true) => {
-                    if self.record.iter().all(str::is_empty) {
-                        continue;
-                    }
-                    self.rows += 1;
-                    row.line = self.record.position().map_or(0, |p| p.line());
-                    row.cells.resize_with(self.record.len(), String::new);
-                    for (cell, field) in row.cells.iter_mut().zip(self.record.iter()) {
-                        cell.clear();
-                        cell.push_str(field);
-                    }
-                    return Ok(true);
-                }
-                Err(e) => return Err(csv_error(&self.table.source, &e)),
-            }
+        if !self.next_content()? {
+            return if self.rows == 0 { Err(Error::Empty { path: self.table.source.clone() }) } else { Ok(false) };
         }
+        self.rows += 1;
+        row.line = self.record.position().map_or(0, |p| p.line());
+        let width = self.table.columns.len();
+        if self.record.len() != width {
+            return Err(Error::Csv {
+                path: self.table.source.clone(),
+                line: row.line,
+                message: format!(
+                    "this row has {} fields but the header has {width}; every row needs one cell per header column (quote cells that contain the delimiter)",
+                    self.record.len()
+                ),
+            });
+        }
+        row.cells.resize_with(width, String::new);
+        for (cell, field) in row.cells.iter_mut().zip(self.record.iter()) {
+            cell.clear();
+            cell.push_str(field);
+        }
+        Ok(true)
     }
 
     /// Bytes consumed so far (for progress).
@@ -165,15 +189,15 @@ mod tests {
 
     #[test]
     fn streams_rows_with_line_numbers_and_reuses_the_record() {
-        let text = "# note\nx (nM),y\n1,2\n3,zz\n";
+        let text = "# note\nx (nM),y\n1,2\n\n# another note\n3,zz\n";
         let mut s = RowStream::new("t.csv", Box::new(std::io::Cursor::new(text.as_bytes().to_vec())), b',').unwrap();
         let mut row = Record { line: 0, cells: Vec::new() };
         assert!(s.next_into(&mut row).unwrap());
         assert_eq!((row.line, row.cells.clone()), (3, vec!["1".to_string(), "2".to_string()]));
         assert!(s.next_into(&mut row).unwrap());
-        assert_eq!(row.line, 4);
+        assert_eq!(row.line, 6);
         let e = s.table().number(&row, 1).unwrap_err().to_string();
-        assert!(e.contains("line 4") && e.contains("zz"), "{e}");
+        assert!(e.contains("line 6") && e.contains("zz"), "{e}");
         assert!(!s.next_into(&mut row).unwrap());
     }
 

@@ -2,8 +2,10 @@
 //! analytic Jacobian and how to guess a start from data.
 
 pub mod michaelis_menten;
+pub mod polynomial;
 
 pub use michaelis_menten::MichaelisMenten;
+pub use polynomial::Polynomial;
 pub mod logistic;
 
 pub use logistic::{Dose, Logistic, Morrison};
