@@ -527,3 +527,89 @@ fn mode_writes_one_plot_per_compound_and_a_report() {
     assert_eq!(html.matches("<svg").count(), 4);
     assert!(html.contains("Dixon") && html.contains("Cornish-Bowden") && html.contains("Akaike weight"));
 }
+
+#[test]
+fn ic50_curve_is_the_fitted_logistic_with_the_ic50_marked_at_its_midpoint() {
+    use kimech::analysis::ic50::{Carried, Curve, IntervalMethod, Options, Thresholds, analyse};
+    // Ryegrass root length vs ferulic acid (Inderjit, Streibig & Olofsdotter 2002; fixtures/README.md),
+    // six rows at zero concentration included.
+    let (x, y): (Vec<f64>, Vec<f64>) = fixture_text("ryegrass.csv")
+        .lines()
+        .skip(1)
+        .map(|l| {
+            let (a, b) = l.split_once(',').unwrap();
+            (a.parse::<f64>().unwrap(), b.parse::<f64>().unwrap())
+        })
+        .unzip();
+    let curve = Curve {
+        compound: "ferulic acid".into(),
+        origin: "fixture".into(),
+        x,
+        y,
+        carried: Carried::default(),
+        read_flags: vec![],
+    };
+    let options = Options {
+        fix_lower: None,
+        fix_upper: None,
+        enzyme: None,
+        unit: kimech::units::ConcUnit::Millimolar,
+        response_unit: Some("cm".into()),
+        confidence: 0.95,
+        intervals: IntervalMethod::Wald,
+        thresholds: Thresholds::default(),
+        settings: FitSettings::default(),
+    };
+    let r = analyse(&curve, &options).unwrap();
+    let svg = kimech::plot::ic50::figure(&r, &curve, "mM", "root length (cm)", None).unwrap();
+    preview("ic50.svg", &svg.text);
+    assert!(inked_fraction(&svg.text) > 0.01);
+    let frame = svg.frames[0];
+    assert_eq!(frame.x.scale, kimech::plot::Scale::Log);
+    let drawn = curve_in(&svg.text, &frame, "#0072B2");
+    let (ic50, h, lower, upper) = (r.ic50.value, r.hill.as_ref().unwrap().value, r.lower.value, r.upper.value);
+    // y = lower + (upper − lower)/(1 + (x/IC50)^h) (DESIGN.md §4), read at a few doses through the log axis.
+    for x in [0.5, 1.0, ic50, 5.0, 20.0] {
+        let (u, expected) = frame.pixel_of(x, lower + (upper - lower) / (1.0 + (x / ic50).powf(h)));
+        assert!((y_at(&drawn, u) - expected).abs() <= 1.5, "x = {x}");
+    }
+    // The IC50 diamond (Okabe–Ito bluish green) sits at (IC50, midpoint).
+    let marks = diamonds(&svg.text, "#009E73");
+    let (u, v) = frame.pixel_of(ic50, (upper + lower) / 2.0);
+    assert!(marks.iter().any(|m| (m.0 - u).abs() <= 1.5 && (m.1 - v).abs() <= 1.5), "{marks:?} vs ({u}, {v})");
+}
+
+#[test]
+fn ic50_batch_writes_every_curve_a_grid_with_flagged_first_and_a_report() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut csv = String::from("compound,concentration (mM),response (cm)\n");
+    let text = fixture_text("ryegrass.csv");
+    let rows: Vec<&str> = text.lines().skip(1).collect();
+    // The ryegrass curve, and its rows up to 7.5 mM only: five distinct concentrations,
+    // flagged too-few-points (fewer than 6; common practice).
+    for r in &rows {
+        csv.push_str(&format!("ferulic/acid,{r}\n"));
+    }
+    for r in rows.iter().filter(|r| r.split_once(',').unwrap().0.parse::<f64>().unwrap() <= 7.5) {
+        csv.push_str(&format!("short,{r}\n"));
+    }
+    std::fs::write(dir.path().join("d.csv"), csv).unwrap();
+    // Hill ≈ 3 here; --hill-steep 4 leaves the full curve unflagged.
+    kimech(dir.path())
+        .args(["ic50", "d.csv", "--hill-steep", "4", "--plot", "p", "--report", "r.html"])
+        .assert()
+        .success();
+    let mut names: Vec<String> = std::fs::read_dir(dir.path().join("p"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().into_string().unwrap())
+        .collect();
+    names.sort();
+    assert_eq!(names, ["ic50-ferulic_acid.svg", "ic50-overview.svg", "ic50-short.svg"]);
+    let grid = std::fs::read_to_string(dir.path().join("p/ic50-overview.svg")).unwrap();
+    assert!(inked_fraction(&grid) > 0.01);
+    let (short, ferulic) = (grid.find(">\nshort\n").unwrap(), grid.find(">\nferulic/acid\n").unwrap());
+    assert!(short < ferulic, "the flagged curve comes first in the grid");
+    let html = std::fs::read_to_string(dir.path().join("r.html")).unwrap();
+    assert_self_contained(&html);
+    assert!(html.contains("too-few-points"));
+}

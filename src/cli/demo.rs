@@ -4,7 +4,7 @@
 
 use std::path::PathBuf;
 
-use super::{OutputArgs, ki, km, mode, rank, rates};
+use super::{OutputArgs, ic50, ki, km, mode, rank, rates};
 use crate::error::Result;
 use crate::io::{Format, Table};
 use crate::plot::html::{Block, Page, Section, without_caution};
@@ -14,6 +14,9 @@ const PROGRESS_CURVES: &str = include_str!("../../demo-compounds/progress-curves
 
 /// The invented rate matrix of five compounds (demo-compounds/make_rate_matrix.py).
 const RATE_MATRIX: &str = include_str!("../../demo-compounds/rate-matrix.csv");
+
+/// The invented dose-response plates (demo-compounds/make_dose_response.py).
+const DOSE_RESPONSE: &str = include_str!("../../demo-compounds/dose-response.csv");
 
 /// The invented IC50 table of a second assay at other conditions (see its header comments).
 const SECOND_ASSAY: &str = include_str!("../../demo-compounds/second-assay-ic50.csv");
@@ -42,11 +45,12 @@ pub fn run(args: &Args) -> Result<()> {
     let rate_table = rates_stage(&mut sections)?;
     let km_status = km_stage(&rate_table, &mut sections);
     let mode_status = mode_stage(&mut sections);
+    let (_ic50_csv, ic50_status) = dose_response_stage_into(&mut sections)?;
     let ki_status = ki_rank_stage(&mut sections);
     let path = args.report.clone().unwrap_or_else(|| PathBuf::from(DEFAULT_REPORT));
     write_report(&path, sections)?;
     println!("\nReport written to {}", path.display());
-    km_status.and(mode_status).and(ki_status)
+    km_status.and(mode_status).and(ic50_status).and(ki_status)
 }
 
 /// Writes the demo's report page.
@@ -141,7 +145,28 @@ fn mode_stage(sections: &mut Vec<Section>) -> Result<()> {
     super::finish(&outcome.failures, outcome.total, "compounds")
 }
 
-/// Stages 4 and 5: IC50 tables → Ki → ranking.
+/// Stage 4: dose-response plates → IC50 table. Prints the human report and
+/// returns the CSV a user would pass on to `kimech ki`, with the stage's status.
+pub fn dose_response_stage() -> Result<(String, Result<()>)> {
+    dose_response_stage_into(&mut Vec::new())
+}
+
+/// [`dose_response_stage`], adding the report section (table and thumbnails).
+pub fn dose_response_stage_into(sections: &mut Vec<Section>) -> Result<(String, Result<()>)> {
+    let name = "demo-compounds/dose-response.csv";
+    println!("\nStage 4 — dose-response plates → IC50, Hill coefficient, quality flags (Z′ per plate)");
+    println!("  $ kimech ic50 {name} --normalise\n");
+    let mut args = ic50::Args::new(name, Format::Table);
+    args.normalise = true;
+    let (human, summary, pictures) = ic50::run_bytes_with_pictures(name, DOSE_RESPONSE.as_bytes(), &args)?;
+    print!("{}", String::from_utf8_lossy(&human));
+    sections.push(pictures.section(&format!("kimech ic50 {name} --normalise"))?);
+    args.output.format = Format::Csv;
+    let (csv, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &args)?;
+    Ok((String::from_utf8_lossy(&csv).into_owned(), summary.into_result()))
+}
+
+/// Stages 5 and 6: IC50 tables → Ki → ranking.
 fn ki_rank_stage(sections: &mut Vec<Section>) -> Result<()> {
     let second = "demo-compounds/second-assay-ic50.csv";
     ki_and_rank_into(&[(second, SECOND_ASSAY, ki_args(second))], sections)

@@ -10,6 +10,7 @@ use crate::error::{Error, Result};
 use crate::io::Format;
 
 pub mod demo;
+pub mod ic50;
 pub mod ki;
 pub mod km;
 pub mod mode;
@@ -39,6 +40,8 @@ enum Command {
     Rank(rank::Args),
     /// Say how a compound inhibits: global fits of five rate laws to an [S]×[I] rate matrix.
     Mode(mode::Args),
+    /// Fit dose-response curves: IC50, pIC50, Hill coefficient, quality flags.
+    Ic50(ic50::Args),
     /// Run the whole chain on the bundled invented demo scenario.
     Demo(demo::Args),
 }
@@ -61,6 +64,7 @@ pub fn run(args: impl IntoIterator<Item = impl Into<OsString> + Clone>) -> Resul
         Command::Km(args) => km::run(&args),
         Command::Ki(args) => ki::run(&args),
         Command::Rank(args) => rank::run(&args),
+        Command::Ic50(args) => ic50::run(&args),
         Command::Demo(args) => demo::run(&args),
         Command::Mode(args) => mode::run(&args),
     }

@@ -219,11 +219,21 @@ pub fn dose_panel(curve: DoseCurve) -> XyChart {
     // Zero-concentration wells sit half a decade left of the lowest dose.
     let zero_at = c_min / 10f64.sqrt();
     let has_zero = curve.points.iter().any(|p| p.0 <= 0.0);
-    let x = Axis::log(format!("concentration{}", unit(&curve.unit)));
+    let lo = if has_zero { zero_at } else { c_min };
+    // A bound's arrow points past the tested range: leave it room.
+    let (mut a, mut b) = (lo, c_max);
+    match curve.ic50.and_then(|m| m.4) {
+        Some(Direction::Above) => b *= 6.0,
+        Some(Direction::Below) => a /= 6.0,
+        None => {}
+    }
+    let mut x = Axis::log(format!("concentration{}", unit(&curve.unit)));
+    if a > 0.0 && b > a && a.is_finite() && b.is_finite() {
+        x = x.fixed(a / 1.4, b * 1.4);
+    }
     let mut chart = XyChart::new(curve.title, x, Axis::linear(curve.response));
     chart.subtitle = Some(curve.subtitle);
     chart.flagged = curve.flagged;
-    let lo = if has_zero { zero_at } else { c_min };
     if let Some(f) = curve.fit {
         chart.layers.push(Layer::Function {
             label: Some("fit".into()),

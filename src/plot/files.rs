@@ -45,24 +45,40 @@ pub fn safe_stem(id: &str) -> String {
     if RESERVED.contains(&base.as_str()) { format!("_{stem}") } else { stem }
 }
 
+/// Hands out file names `prefix-stem.svg`, unique ignoring case, one at a
+/// time (for runs that write plots as they go).
+#[derive(Debug, Clone, Default)]
+pub struct Names {
+    prefix: String,
+    taken: HashSet<String>,
+}
+
+impl Names {
+    /// Names starting with `prefix`.
+    pub fn new(prefix: &str) -> Names {
+        Names { prefix: prefix.to_string(), taken: HashSet::new() }
+    }
+
+    /// The next name for `id` (`prefix.svg` when there is none).
+    pub fn next(&mut self, id: Option<&str>) -> String {
+        let base = match id {
+            Some(id) => format!("{}-{}", self.prefix, safe_stem(id)),
+            None => self.prefix.clone(),
+        };
+        let mut name = base.clone();
+        let mut k = 2;
+        while !self.taken.insert(name.to_ascii_lowercase()) {
+            name = format!("{base}-{k}");
+            k += 1;
+        }
+        format!("{name}.svg")
+    }
+}
+
 /// File names `prefix-stem.svg` for each id, unique ignoring case.
 pub fn unique_names(prefix: &str, ids: &[Option<&str>]) -> Vec<String> {
-    let mut taken = HashSet::new();
-    ids.iter()
-        .map(|id| {
-            let base = match id {
-                Some(id) => format!("{prefix}-{}", safe_stem(id)),
-                None => prefix.to_string(),
-            };
-            let mut name = base.clone();
-            let mut k = 2;
-            while !taken.insert(name.to_ascii_lowercase()) {
-                name = format!("{base}-{k}");
-                k += 1;
-            }
-            format!("{name}.svg")
-        })
-        .collect()
+    let mut names = Names::new(prefix);
+    ids.iter().map(|id| names.next(*id)).collect()
 }
 
 /// Writes each (file name, SVG) into `dir`, creating it if needed. Names must
