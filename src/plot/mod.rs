@@ -7,7 +7,8 @@
 //! pixels, so tests can check that what is drawn is what was fitted.
 //!
 //! Layers: [`axis`] (ranges, ticks, labels), [`style`] (palette and look),
-//! [`xy`] (the panel), one module per command ([`km`]) saying which panels its
+//! [`xy`] (the panel), [`charts`] (builders on plain data), one module per
+//! command ([`km`], [`mode`], [`ic50`], [`rank`]) saying which panels its
 //! results make and what its report section holds,
 //! [`html`] (the report page) and [`files`] (safe file names in `--plot DIR`).
 

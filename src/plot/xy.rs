@@ -693,7 +693,7 @@ fn draw_estimate<'a, DB: DrawingBackend + 'a>(
     let mut dashed_parts = Vec::new();
     match lo {
         Some(l) => solid_parts.push(seg(l, x)),
-        None if bound != Some(Direction::Above) && bound.is_none() => dashed_parts.push(seg(xr.lo, x)),
+        None if bound.is_none() => dashed_parts.push(seg(xr.lo, x)),
         None => {}
     }
     match hi {
