@@ -2,5 +2,6 @@
 //! Nothing here reads files or prints; the `cli` layer does that.
 
 pub mod km;
+pub mod mode;
 pub mod rank;
 pub mod rates;

@@ -2,7 +2,7 @@
 //! stage's output is parsed as the next stage's input, exactly as a user
 //! would pipe the commands.
 
-use super::{OutputArgs, ki, km, rank, rates};
+use super::{OutputArgs, ki, km, mode, rank, rates};
 use crate::error::Result;
 use crate::io::{Format, Table};
 
@@ -11,6 +11,9 @@ const PROGRESS_CURVES: &str = include_str!("../../demo-compounds/progress-curves
 
 /// The invented IC50 table of a second assay at other conditions (see its header comments).
 const SECOND_ASSAY: &str = include_str!("../../demo-compounds/second-assay-ic50.csv");
+
+/// The invented rate matrix of five compounds (demo-compounds/make_rate_matrix.py).
+const RATE_MATRIX: &str = include_str!("../../demo-compounds/rate-matrix.csv");
 
 /// Run every stage on the invented demo scenario and print a summary.
 #[derive(Debug, Clone, clap::Args)]
@@ -26,8 +29,9 @@ pub fn run(_args: &Args) -> Result<()> {
     println!("and fictional compounds KX-101 … (see demo-compounds/README.md). Nothing here is real data.\n");
     let rate_table = rates_stage()?;
     let km_status = km_stage(&rate_table);
+    let mode_status = mode_stage();
     let ki_status = ki_rank_stage();
-    km_status.and(ki_status)
+    km_status.and(mode_status).and(ki_status)
 }
 
 /// Stage 1: progress curves → initial rates; returns the rates as the table `km` reads.
@@ -67,7 +71,7 @@ fn km_stage(rate_table: &Table) -> Result<()> {
     super::finish(&outcome.failures, outcome.total, "series")
 }
 
-/// Stages 3 and 4: IC50 tables → Ki → ranking.
+/// Stages 4 and 5: IC50 tables → Ki → ranking.
 fn ki_rank_stage() -> Result<()> {
     let second = "demo-compounds/second-assay-ic50.csv";
     ki_and_rank(&[(second, SECOND_ASSAY, ki_args(second))])
@@ -136,4 +140,25 @@ pub fn ki_args(name: &str) -> ki::Args {
         confidence: 0.95,
         output: stdout_table(),
     }
+}
+
+/// Stage 2: the [S]×[I] rate matrix of five invented compounds → mechanism, Ki, α.
+fn mode_stage() -> Result<()> {
+    println!("\nStage 3 — [S]×[I] rate matrices → mechanism, Ki, α (five invented compounds, one per mechanism)");
+    println!("  $ kimech mode demo-compounds/rate-matrix.csv\n");
+    let path = "demo-compounds/rate-matrix.csv";
+    let table = crate::io::Table::parse(path, RATE_MATRIX.as_bytes(), b',')?;
+    let args = mode::Args {
+        file: path.into(),
+        substrate_unit: None,
+        inhibitor_unit: None,
+        weighting: km::WeightingArg::None,
+        criterion: mode::CriterionArg::Aicc,
+        alpha_level: 0.05,
+        confidence: 0.95,
+        output: stdout_table(),
+    };
+    let (results, failures, total) = mode::analyse_table(&table, &args)?;
+    print!("{}", mode::human(&results));
+    super::finish(&failures, total, "compounds")
 }

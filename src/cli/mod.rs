@@ -12,6 +12,7 @@ use crate::io::Format;
 pub mod demo;
 pub mod ki;
 pub mod km;
+pub mod mode;
 pub mod rank;
 pub mod rates;
 
@@ -32,6 +33,8 @@ enum Command {
     Rates(rates::Args),
     /// Fit Michaelis–Menten to substrate series: Vmax, Km, kcat.
     Km(km::Args),
+    /// Say how a compound inhibits: global fits of five rate laws to an [S]×[I] rate matrix.
+    Mode(mode::Args),
     /// Convert IC50 values to Ki with the relation, mechanism and assumption checks behind each.
     Ki(ki::Args),
     /// Aggregate, rank and export Ki results: the registry table.
@@ -59,6 +62,7 @@ pub fn run(args: impl IntoIterator<Item = impl Into<OsString> + Clone>) -> Resul
         Command::Ki(args) => ki::run(&args),
         Command::Rank(args) => rank::run(&args),
         Command::Demo(args) => demo::run(&args),
+        Command::Mode(args) => mode::run(&args),
     }
 }
 
