@@ -34,12 +34,12 @@ enum Command {
     Rates(rates::Args),
     /// Fit Michaelis–Menten to substrate series: Vmax, Km, kcat.
     Km(km::Args),
+    /// Say how a compound inhibits: global fits of five rate laws to an [S]×[I] rate matrix.
+    Mode(mode::Args),
     /// Convert IC50 values to Ki with the relation, mechanism and assumption checks behind each.
     Ki(ki::Args),
     /// Aggregate, rank and export Ki results: the registry table.
     Rank(rank::Args),
-    /// Say how a compound inhibits: global fits of five rate laws to an [S]×[I] rate matrix.
-    Mode(mode::Args),
     /// Fit dose-response curves: IC50, pIC50, Hill coefficient, quality flags.
     Ic50(ic50::Args),
     /// Run the whole chain on the bundled invented demo scenario.

@@ -30,9 +30,14 @@ pub fn write_output(path: Option<&Path>, bytes: &[u8], inputs: &[&str]) -> Resul
             .map_err(|source| Error::Write { path: PathBuf::from("<stdout>"), source });
     };
     refuse_inputs(path, inputs)?;
+    let write_error = |source| Error::Write { path: path.to_path_buf(), source };
+    // A device or pipe (`-o /dev/null`, a FIFO) is written in place: renaming a
+    // temporary file over it would replace the device with a plain file.
+    if std::fs::metadata(path).is_ok_and(|m| !m.is_file() && !m.is_dir()) {
+        return std::fs::write(path, bytes).map_err(write_error);
+    }
     let file_name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_else(|| "output".into());
     let temp = path.with_file_name(format!(".{file_name}.{}.tmp", std::process::id()));
-    let write_error = |source| Error::Write { path: path.to_path_buf(), source };
     std::fs::write(&temp, bytes).map_err(write_error)?;
     std::fs::rename(&temp, path).map_err(|source| {
         let _ = std::fs::remove_file(&temp);
@@ -127,6 +132,23 @@ mod tests {
         assert_eq!(sig(3308.26504, 6), "3308.27");
         assert_eq!(sig(0.0641213, 4), "0.06412");
         assert_eq!(sig(1.5e-9, 3), "1.50e-9");
+    }
+
+    #[test]
+    fn writes_to_a_pipe_in_place_without_replacing_it() {
+        // A FIFO stands in for /dev/null: renaming over either would replace it with a file.
+        use std::os::unix::fs::FileTypeExt;
+        let dir = tempfile::tempdir().unwrap();
+        let fifo = dir.path().join("pipe");
+        let made = std::process::Command::new("mkfifo").arg(&fifo).status().unwrap();
+        assert!(made.success());
+        let reader = {
+            let fifo = fifo.clone();
+            std::thread::spawn(move || std::fs::read(fifo).unwrap())
+        };
+        write_output(Some(&fifo), b"through the pipe", &[]).unwrap();
+        assert_eq!(reader.join().unwrap(), b"through the pipe");
+        assert!(std::fs::metadata(&fifo).unwrap().file_type().is_fifo());
     }
 
     #[test]
