@@ -450,3 +450,23 @@ fn demo_plates_come_out_with_the_planted_flags() {
     let text = String::from_utf8(demo.stdout).unwrap();
     assert!(text.contains("kimech ic50 demo-compounds/dose-response.csv --normalise") && text.contains("KX-130"));
 }
+
+/// --normalise reads the file twice; from stdin it is spooled first.
+#[test]
+fn normalise_works_from_stdin() {
+    let mut text = String::from("plate,compound,concentration (nM),response,control\n");
+    text.push_str(&plate_rows("P1", "KX-A", 100.0, 100.0, true));
+    let out = kimech().args(["ic50", "-", "--normalise", "--format", "csv"]).write_stdin(text).output().unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.lines().nth(1).is_some_and(|l| l.starts_with("KX-A,")), "{text}");
+}
+
+#[test]
+fn morrison_with_a_fixed_lower_asymptote_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = write(&dir, "m.csv", &format!("compound,concentration (nM),response\n{}", good_rows("KX-1", 80.0, "")));
+    let out = kimech().args(["ic50", &path, "--enzyme", "2 nM", "--fix-lower", "0"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--fix-lower"));
+}

@@ -16,7 +16,7 @@ use rayon::prelude::*;
 
 use super::{CAUTION, OutputArgs, parse_confidence, parse_flag_concentration};
 use crate::analysis::ic50::{Carried, Curve, Ic50Result, IntervalMethod, Options, PlateQc, Thresholds, Wells, analyse};
-use crate::error::{CellError, Error, Result};
+use crate::error::{Error, Result};
 use crate::io::input::Record;
 use crate::io::output::{neutralise_formula, new_grid, sig};
 use crate::io::stream::{OutputSink, RowStream};
@@ -50,7 +50,8 @@ pub struct Args {
     /// Turn raw signal into % activity from each plate's control wells; reports Z′ per plate.
     #[arg(long)]
     pub normalise: bool,
-    /// Total active enzyme, e.g. "2 nM": fit Morrison's tight-binding equation (apparent Ki and IC50).
+    /// Total active enzyme, e.g. "2 nM": fit Morrison's tight-binding equation (apparent Ki and
+    /// IC50); the response must be % activity or background-subtracted (zero at full inhibition).
     #[arg(long, value_name = "CONC", value_parser = parse_flag_concentration)]
     pub enzyme: Option<ConcentrationArg>,
     /// Confidence level of the intervals.
@@ -208,6 +209,7 @@ impl Summary {
 /// Reads, fits and writes everything from `source` to `out`; messages about
 /// failed compounds go to stderr as they are met (in input order).
 pub fn run_source(source: &Source, args: &Args, out: &mut dyn Write, progress: bool) -> Result<Summary> {
+    check_options(args)?;
     let thresholds = args.thresholds();
     let mut summary = Summary::default();
     let plates = if args.normalise { Some(read_controls(source, &thresholds, &mut summary)?) } else { None };
@@ -259,6 +261,31 @@ pub fn run_source(source: &Source, args: &Args, out: &mut dyn Write, progress: b
     }
     writer.finish(out, plates.as_ref().map(|p| p.qc.as_slice()))?;
     Ok(summary)
+}
+
+/// Option combinations that cannot mean what the user wants.
+fn check_options(args: &Args) -> Result<()> {
+    if let (Some(lower), Some(_)) = (args.fix_lower, args.enzyme) {
+        return Err(Error::Option {
+            option: "--fix-lower".into(),
+            value: lower.to_string(),
+            problem: "the Morrison model (--enzyme) has no lower asymptote; inhibition is complete at saturation"
+                .into(),
+            expected: "drop --fix-lower, and give % activity (--normalise) or background-subtracted signal".into(),
+        });
+    }
+    if args.min_concentrations < 2 || args.min_z_prime >= 1.0 || args.min_z_prime.is_nan() || args.hill_shallow < 0.0 {
+        return Err(Error::Option {
+            option: "thresholds".into(),
+            value: format!(
+                "--min-concentrations {}, --min-z-prime {}, --hill-shallow {}",
+                args.min_concentrations, args.min_z_prime, args.hill_shallow
+            ),
+            problem: "a threshold is outside its meaningful range".into(),
+            expected: "use --min-concentrations ≥ 2, --min-z-prime < 1 and --hill-shallow ≥ 0".into(),
+        });
+    }
+    Ok(())
 }
 
 fn fit_batch(batch: Vec<Result<Curve>>, options: &Options) -> Vec<Result<Ic50Result>> {
@@ -610,15 +637,7 @@ fn with_compound(e: Error, compound: &str) -> Error {
             cell.problem = format!("compound '{compound}': {}", cell.problem);
             Error::Cell(cell)
         }
-        Error::NoUnit { .. } | Error::Data { .. } => e,
-        other => Error::Cell(Box::new(CellError {
-            path: String::new(),
-            line: 0,
-            column: String::new(),
-            value: String::new(),
-            problem: format!("compound '{compound}': {other}"),
-            expected: String::new(),
-        })),
+        other => other,
     }
 }
 
