@@ -470,3 +470,40 @@ fn morrison_with_a_fixed_lower_asymptote_is_refused() {
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("--fix-lower"));
 }
+
+/// Profile-likelihood IC50 interval (Bates & Watts 1988, §6.1): at each end
+/// the SSE minimised over the other parameters equals SSE_min·(1 + F(0.95; 1, df)/df).
+#[test]
+fn profile_interval_ends_sit_on_the_f_threshold() {
+    use kimech::fit::{Data, fit};
+    use kimech::models::{Dose, Logistic};
+    let (x, y) = ryegrass();
+    let mut o = options();
+    o.unit = ConcUnit::Millimolar;
+    o.intervals = IntervalMethod::Profile;
+    let r = analyse(&curve("ferulic acid", x.clone(), y.clone()), &o).unwrap();
+    assert_eq!(r.ic50.interval, "profile");
+    let data = Data::unweighted(x.iter().map(|v| Dose::new(*v)).collect(), y);
+    let best = fit(&Logistic, &data, &[None, None, None, None], &FitSettings::default());
+    let f = kimech::fit::intervals::f_quantile(0.95, 1, best.df).unwrap();
+    let threshold = best.sse * (1.0 + f / best.df as f64);
+    for end in [r.ic50.low.unwrap(), r.ic50.high.unwrap()] {
+        let held = fit(&Logistic, &data, &[Some(end), None, None, None], &FitSettings::default());
+        assert!(rel(held.sse, threshold) < 1e-6, "SSE at {end}: {} vs {threshold}", held.sse);
+    }
+    assert!(r.ic50.low.unwrap() < r.ic50.value && r.ic50.value < r.ic50.high.unwrap());
+}
+
+#[test]
+fn a_file_without_any_concentration_unit_stops_with_one_message() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut text = String::from("compound,concentration,response\n");
+    text.push_str(&good_rows("KX-1", 80.0, ""));
+    text.push_str(&good_rows("KX-2", 80.0, ""));
+    let path = write(&dir, "nounit.csv", &text);
+    let out = kimech().args(["ic50", &path]).output().unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(stderr.matches("no concentration unit").count(), 1, "{stderr}");
+    assert!(stderr.contains("--concentration-unit"));
+}

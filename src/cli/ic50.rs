@@ -245,9 +245,16 @@ pub fn run_source(source: &Source, args: &Args, out: &mut dyn Write, progress: b
         let (next, results) = rayon::join(|| grouper.next_batch(batch_size), || fit_batch(current, &options));
         summary.total += results.len();
         writer.batch(out, &results, unit)?;
-        for e in results.iter().filter_map(|r| r.as_ref().err()) {
-            eprintln!("kimech: {e}");
-            summary.failed += 1;
+        for result in results {
+            match result {
+                // A missing unit is a property of the file, not of one compound: stop once.
+                Err(e @ Error::NoUnit { .. }) => return Err(e),
+                Err(e) => {
+                    eprintln!("kimech: {e}");
+                    summary.failed += 1;
+                }
+                Ok(_) => {}
+            }
         }
         bar.update(grouper.stream.bytes_read());
         current = next?;
