@@ -926,10 +926,14 @@ fn human_batch(results: &[&Ic50Result], morrison: bool, unit: ConcUnit, confiden
             Qualifier::Equal => format!("{:.2}", r.pic50),
             q => format!("{} {:.2}", q.reversed().symbol(), r.pic50),
         };
-        let slope = if morrison {
-            r.ki_app.as_ref().map_or("—".into(), |k| sig(k.value, 4))
-        } else {
-            r.hill.as_ref().map_or("—".into(), |h| sig(h.value, 3))
+        // Out of range, the slope and Ki,app are not measured: show the bound or nothing.
+        let slope = match (morrison, r.qualifier) {
+            (true, q) => r.ki_app.as_ref().map_or("—".into(), |k| match q {
+                Qualifier::Equal => sig(k.value, 4),
+                q => format!("{} {}", q.symbol(), sig(k.value, 4)),
+            }),
+            (false, Qualifier::Equal) => r.hill.as_ref().map_or("—".into(), |h| sig(h.value, 3)),
+            (false, _) => "—".into(),
         };
         grid.add_row(vec![
             r.compound.clone(),
@@ -944,7 +948,13 @@ fn human_batch(results: &[&Ic50Result], morrison: bool, unit: ConcUnit, confiden
             r.flags.join(", "),
         ]);
     }
-    let method = results.first().map_or("", |r| if morrison { "Morrison (known Et)" } else { r.model });
+    let method = results.first().map_or("", |r| {
+        if morrison {
+            "Morrison (known Et); Ki,app is the apparent constant, before any mechanism correction (kimech ki applies it)"
+        } else {
+            r.model
+        }
+    });
     format!("{grid}\nmodel: {method}; IC50 interval: {}\n\n", results.first().map_or("", |r| r.ic50.interval))
 }
 
