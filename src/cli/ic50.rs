@@ -242,10 +242,13 @@ pub fn run_source(source: &Source, args: &Args, out: &mut dyn Write, progress: b
     while !current.is_empty() {
         let unit = grouper.unit.unwrap_or(ConcUnit::Molar);
         let options = options_for(unit);
-        let (next, results) = rayon::join(|| grouper.next_batch(batch_size), || fit_batch(current, &options));
+        let format = args.output.format;
+        let morrison = args.enzyme.is_some();
+        let (next, results) =
+            rayon::join(|| grouper.next_batch(batch_size), || fit_batch(current, &options, format, morrison));
         summary.total += results.len();
         writer.batch(out, &results, unit)?;
-        for result in results {
+        for (result, _) in results {
             match result {
                 // A missing unit is a property of the file, not of one compound: stop once.
                 Err(e @ Error::NoUnit { .. }) => return Err(e),
@@ -295,8 +298,43 @@ fn check_options(args: &Args) -> Result<()> {
     Ok(())
 }
 
-fn fit_batch(batch: Vec<Result<Curve>>, options: &Options) -> Vec<Result<Ic50Result>> {
-    batch.into_par_iter().map(|item| item.and_then(|curve| analyse(&curve, options))).collect()
+/// A fitted compound and its CSV or JSON line, rendered on the worker thread
+/// (formatting two dozen numbers per curve is too much to leave to the one
+/// thread that writes).
+type Fitted = (Result<Ic50Result>, String);
+
+fn fit_batch(batch: Vec<Result<Curve>>, options: &Options, format: Format, morrison: bool) -> Vec<Fitted> {
+    batch
+        .into_par_iter()
+        .map(|item| {
+            let result = item.and_then(|curve| analyse(&curve, options));
+            let line = match (&result, format) {
+                (Ok(r), Format::Csv) => csv_line(r, morrison),
+                (Ok(r), Format::Json) => serde_json::to_string(r).unwrap_or_default(),
+                _ => String::new(),
+            };
+            (result, line)
+        })
+        .collect()
+}
+
+/// One CSV record: fields quoted (RFC 4180) when they hold a comma, quote or line break.
+fn csv_line(r: &Ic50Result, morrison: bool) -> String {
+    let mut line = String::with_capacity(400);
+    for (k, field) in csv_row(r, morrison).iter().enumerate() {
+        if k > 0 {
+            line.push(',');
+        }
+        if field.contains([',', '"', '\n', '\r']) {
+            line.push('"');
+            line.push_str(&field.replace('"', "\"\""));
+            line.push('"');
+        } else {
+            line.push_str(field);
+        }
+    }
+    line.push('\n');
+    line
 }
 
 /// Column positions and the names of carried columns.
@@ -756,8 +794,9 @@ impl Writer {
         Ok(())
     }
 
-    fn batch(&mut self, out: &mut dyn Write, results: &[Result<Ic50Result>], unit: ConcUnit) -> Result<()> {
-        let ok: Vec<&Ic50Result> = results.iter().filter_map(|r| r.as_ref().ok()).collect();
+    fn batch(&mut self, out: &mut dyn Write, results: &[Fitted], unit: ConcUnit) -> Result<()> {
+        let ok: Vec<&Ic50Result> = results.iter().filter_map(|r| r.0.as_ref().ok()).collect();
+        let lines = results.iter().filter(|r| r.0.is_ok()).map(|r| r.1.as_str());
         for r in &ok {
             for f in &r.flags {
                 if !self.flags_seen.contains(f) {
@@ -772,26 +811,26 @@ impl Writer {
                     self.started = true;
                 }
                 let mut text = String::new();
-                for r in ok {
+                for line in lines {
                     if self.any_result {
                         text.push_str(",\n");
                     }
                     self.any_result = true;
-                    text.push_str(&serde_json::to_string(r).map_err(|e| Error::Serialise(e.to_string()))?);
+                    text.push_str(line);
                 }
                 write_all(out, text.as_bytes())
             }
             Format::Csv => {
-                let mut w = csv::WriterBuilder::new().has_headers(false).from_writer(Vec::new());
+                let mut text = String::new();
                 if !self.started {
+                    let mut w = csv::WriterBuilder::new().has_headers(false).from_writer(Vec::new());
                     w.write_record(self.csv_header(unit)).map_err(|e| Error::Serialise(e.to_string()))?;
+                    text = String::from_utf8_lossy(&w.into_inner().map_err(|e| Error::Serialise(e.to_string()))?)
+                        .into_owned();
                     self.started = true;
                 }
-                for r in ok {
-                    w.write_record(csv_row(r, self.morrison)).map_err(|e| Error::Serialise(e.to_string()))?;
-                }
-                let bytes = w.into_inner().map_err(|e| Error::Serialise(e.to_string()))?;
-                write_all(out, &bytes)
+                lines.for_each(|l| text.push_str(l));
+                write_all(out, text.as_bytes())
             }
             Format::Table => {
                 if ok.is_empty() {
