@@ -10,6 +10,7 @@
 
 pub mod analysis;
 pub mod cli;
+pub mod convert;
 pub mod error;
 pub mod fit;
 pub mod io;

@@ -13,5 +13,7 @@ fn demo_runs_every_stage_and_ends_with_the_caution() {
         .success()
         .stdout(predicate::str::contains("Stage 1 — progress curves → initial rates"))
         .stdout(predicate::str::contains("Michaelis–Menten fit — series batch-A"))
+        .stdout(predicate::str::contains("IC50 → Ki"))
+        .stdout(predicate::str::contains("Ranking by pKi"))
         .stdout(predicate::str::contains("research estimates"));
 }

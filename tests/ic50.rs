@@ -383,6 +383,8 @@ fn csv_output_carries_columns_and_writes_bounds_with_their_qualifier() {
     assert_eq!(c.qualifier, Qualifier::Greater);
     assert!(rel(c.molar, 1e-5) < 1e-12);
     assert_eq!(table.text(&table.rows[0], col("target")), "VRD7");
+    assert_eq!(table.text(weak, col("hill")), "", "no slope for a curve beyond the range");
+    assert!(!table.text(&table.rows[0], col("hill")).is_empty());
     assert_eq!(table.text(&table.rows[0], col("substrate (uM)")), "20");
 }
 

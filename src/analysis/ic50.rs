@@ -414,7 +414,7 @@ fn cached_t(confidence: f64, df: usize) -> Option<f64> {
 /// assay's precision) instead of the engine's 1e-15, which at a million
 /// curves costs iterations that change nothing that is reported.
 pub fn screening_settings() -> FitSettings {
-    FitSettings { ftol: 1e-10, xtol: 1e-10, gtol: 1e-12, patience: 200 }
+    FitSettings { ftol: 1e-10, xtol: 1e-10, gtol: 1e-12, patience: 200, polish: false }
 }
 
 fn fixed_param(value: f64, flag: &str) -> Param {

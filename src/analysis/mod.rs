@@ -3,4 +3,6 @@
 
 pub mod ic50;
 pub mod km;
+pub mod mode;
+pub mod rank;
 pub mod rates;

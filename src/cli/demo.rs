@@ -2,15 +2,21 @@
 //! stage's output is parsed as the next stage's input, exactly as a user
 //! would pipe the commands.
 
-use super::{OutputArgs, ic50, km, rates};
+use super::{OutputArgs, ic50, ki, km, mode, rank, rates};
 use crate::error::Result;
 use crate::io::{Format, Table};
 
 /// Invented progress curves (see demo-compounds/README.md).
 const PROGRESS_CURVES: &str = include_str!("../../demo-compounds/progress-curves.csv");
 
+/// The invented IC50 table of a second assay at other conditions (see its header comments).
+const SECOND_ASSAY: &str = include_str!("../../demo-compounds/second-assay-ic50.csv");
+
 /// The invented dose-response plates (demo-compounds/make_dose_response.py).
 const DOSE_RESPONSE: &str = include_str!("../../demo-compounds/dose-response.csv");
+
+/// The invented rate matrix of five compounds (demo-compounds/make_rate_matrix.py).
+const RATE_MATRIX: &str = include_str!("../../demo-compounds/rate-matrix.csv");
 
 /// Run every stage on the invented demo scenario and print a summary.
 #[derive(Debug, Clone, clap::Args)]
@@ -26,8 +32,10 @@ pub fn run(_args: &Args) -> Result<()> {
     println!("and fictional compounds KX-101 … (see demo-compounds/README.md). Nothing here is real data.\n");
     let rate_table = rates_stage()?;
     let km_status = km_stage(&rate_table);
-    let (_ic50_csv, ic50_status) = dose_response_stage()?;
-    km_status.and(ic50_status)
+    let mode_status = mode_stage();
+    let (ic50_csv, ic50_status) = dose_response_stage()?;
+    let ki_status = ki_rank_stage(&ic50_csv);
+    km_status.and(mode_status).and(ic50_status).and(ki_status)
 }
 
 /// Stage 1: progress curves → initial rates; returns the rates as the table `km` reads.
@@ -67,12 +75,22 @@ fn km_stage(rate_table: &Table) -> Result<()> {
     super::finish(&outcome.failures, outcome.total, "series")
 }
 
-/// Stage 3: dose-response plates → IC50 table. Prints the human report and
+/// The file name the dose-response stage's CSV is shown under.
+const IC50_CSV: &str = "dose-response-ic50.csv";
+
+/// Stages 5 and 6: IC50 tables (the plates' and a second assay's) → Ki → ranking.
+fn ki_rank_stage(ic50_csv: &str) -> Result<()> {
+    let second = "demo-compounds/second-assay-ic50.csv";
+    ki_and_rank(&[(IC50_CSV, ic50_csv, ki_args(IC50_CSV)), (second, SECOND_ASSAY, ki_args(second))])
+}
+
+/// Stage 4: dose-response plates → IC50 table. Prints the human report and
 /// returns the CSV a user would pass on to `kimech ki`, with the stage's status.
 pub fn dose_response_stage() -> Result<(String, Result<()>)> {
     let name = "demo-compounds/dose-response.csv";
-    println!("\nStage 3 — dose-response plates → IC50, Hill coefficient, quality flags (Z′ per plate)");
-    println!("  $ kimech ic50 {name} --normalise\n");
+    println!("\nStage 4 — dose-response plates → IC50, Hill coefficient, quality flags (Z′ per plate)");
+    println!("  $ kimech ic50 {name} --normalise");
+    println!("  $ kimech ic50 {name} --normalise --format csv -o {IC50_CSV}\n");
     let mut args = ic50::Args::new(name, Format::Table);
     args.normalise = true;
     let (human, summary) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &args)?;
@@ -80,4 +98,90 @@ pub fn dose_response_stage() -> Result<(String, Result<()>)> {
     args.output.format = Format::Csv;
     let (csv, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &args)?;
     Ok((String::from_utf8_lossy(&csv).into_owned(), summary.into_result()))
+}
+
+/// The `ki` and `rank` stages: each IC50 table (name, CSV text, `ki` options) goes through
+/// `kimech ki` and its CSV output, and all of them together through `kimech rank`,
+/// exactly as a user would pipe them.
+pub fn ki_and_rank(tables: &[(&str, &str, ki::Args)]) -> Result<()> {
+    let mut ki_csv = Vec::new();
+    let mut failures = Vec::new();
+    let mut total = 0;
+    for (name, text, args) in tables {
+        println!("\nStage — IC50 table → Ki (conditions from the table's columns)");
+        println!("  $ kimech ki {name}\n");
+        let table = crate::io::Table::parse(name, text.as_bytes(), b',')?;
+        let (rows, carried, row_failures) = ki::convert_table(&table, args)?;
+        print!("{}", ki::human(&rows));
+        total += rows.len();
+        failures.extend(row_failures);
+        ki_csv.push((
+            format!("{}-ki.csv", name.trim_end_matches(".csv")),
+            ki::render(&rows, &carried, crate::io::Format::Csv)?,
+        ));
+    }
+    let names: Vec<&str> = ki_csv.iter().map(|(n, _)| n.as_str()).collect();
+    println!("\nStage — Ki → one ranked, flagged, registry-ready table (selectivity against VRD3)");
+    for ((n, _), (name, _, _)) in ki_csv.iter().zip(tables) {
+        println!("  $ kimech ki {name} --format csv -o {n}");
+    }
+    println!("  $ kimech rank {} --versus VRD3\n", names.join(" "));
+    let mut entries = Vec::new();
+    for (n, bytes) in &ki_csv {
+        let table = crate::io::Table::parse(n, bytes, b',')?;
+        let (e, f) = rank::read_entries(&table, None)?;
+        entries.extend(e);
+        failures.extend(f);
+    }
+    let options = crate::analysis::rank::Options { versus: Some("VRD3".into()), confidence: 0.95 };
+    let ranked = crate::analysis::rank::aggregate(&entries, &options);
+    print!(
+        "{}",
+        String::from_utf8_lossy(&rank::render(&ranked, crate::units::ConcUnit::Nanomolar, crate::io::Format::Table)?)
+    );
+    println!("(`kimech rank … --format csv` writes the same rows as the registry export; columns in README.md.)");
+    super::finish(&failures, total, "rows")
+}
+
+/// `kimech ki NAME` with every default: conditions come from the table.
+pub fn ki_args(name: &str) -> ki::Args {
+    ki::Args {
+        file: name.to_string(),
+        substrate: None,
+        km: None,
+        km_se: None,
+        enzyme: None,
+        mechanism: crate::convert::Mechanism::Unknown,
+        alpha: None,
+        assay: crate::convert::Assay::Enzyme,
+        ligand: None,
+        kd: None,
+        unit: crate::units::ConcUnit::Nanomolar,
+        ic50_unit: None,
+        conc_unit: None,
+        hill_tolerance: 0.5,
+        confidence: 0.95,
+        output: stdout_table(),
+    }
+}
+
+/// Stage 2: the [S]×[I] rate matrix of five invented compounds → mechanism, Ki, α.
+fn mode_stage() -> Result<()> {
+    println!("\nStage 3 — [S]×[I] rate matrices → mechanism, Ki, α (five invented compounds, one per mechanism)");
+    println!("  $ kimech mode demo-compounds/rate-matrix.csv\n");
+    let path = "demo-compounds/rate-matrix.csv";
+    let table = crate::io::Table::parse(path, RATE_MATRIX.as_bytes(), b',')?;
+    let args = mode::Args {
+        file: path.into(),
+        substrate_unit: None,
+        inhibitor_unit: None,
+        weighting: km::WeightingArg::None,
+        criterion: mode::CriterionArg::Aicc,
+        alpha_level: 0.05,
+        confidence: 0.95,
+        output: stdout_table(),
+    };
+    let (results, failures, total) = mode::analyse_table(&table, &args)?;
+    print!("{}", mode::human(&results));
+    super::finish(&failures, total, "compounds")
 }

@@ -922,9 +922,11 @@ fn csv_row(r: &Ic50Result, morrison: bool) -> Vec<String> {
         r.ic50.interval.to_string(),
         num(r.pic50),
     ];
-    match &r.hill {
-        Some(h) => row.extend(param_cells(h)),
-        None => row.extend(std::iter::repeat_n(String::new(), 4)),
+    // A slope fitted to a curve without its middle is not a measurement; leave
+    // it out of the table the next step reads (JSON keeps it, with the qualifier).
+    match (&r.hill, r.qualifier) {
+        (Some(h), Qualifier::Equal) => row.extend(param_cells(h)),
+        _ => row.extend(std::iter::repeat_n(String::new(), 4)),
     }
     row.extend(param_cells(&r.upper));
     row.extend(param_cells(&r.lower));

@@ -67,12 +67,15 @@ pub struct FitSettings {
     pub gtol: f64,
     /// Evaluation budget, in multiples of (free parameters + 1).
     pub patience: usize,
+    /// Finish with Gauss–Newton steps for the last digits of the optimum
+    /// (off for profile refits, which only need the SSE).
+    pub polish: bool,
 }
 
 impl Default for FitSettings {
     /// Tight enough to reproduce NIST certified values to their last digits.
     fn default() -> Self {
-        FitSettings { ftol: 1e-15, xtol: 1e-15, gtol: 1e-15, patience: 400 }
+        FitSettings { ftol: 1e-15, xtol: 1e-15, gtol: 1e-15, patience: 400, polish: true }
     }
 }
 
@@ -220,7 +223,9 @@ pub fn fit_from<M: Model>(
             best = Some(run);
         }
     }
-    if let Some(run) = best.take() {
+    if settings.polish
+        && let Some(run) = best.take()
+    {
         best = Some(polish(model, data, fixed, run));
     }
     let (theta, sse, termination) = match best {

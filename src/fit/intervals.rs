@@ -105,7 +105,10 @@ pub fn profile<M: Model>(
         return Interval::NOT_DETERMINED;
     }
     let threshold = fit.sse * (1.0 + f / fit.df as f64);
-    let profiler = Profiler::new(model, data, fit, j, threshold, settings);
+    // Each refit only has to place the SSE against a threshold several percent
+    // above the minimum: the Gauss–Newton finish buys nothing here.
+    let settings = FitSettings { polish: false, ..*settings };
+    let profiler = Profiler::new(model, data, fit, j, threshold, &settings);
     Interval { low: profiler.side(-1.0), high: profiler.side(1.0) }
 }
 
@@ -139,8 +142,17 @@ impl<'a, M: Model> Profiler<'a, M> {
         let mut fixed: Vec<Option<f64>> =
             self.fit.fixed.iter().zip(&self.fit.theta).map(|(f, t)| f.then_some(*t)).collect();
         fixed[self.j] = Some(self.scale.to_natural(u));
-        let starts = [self.warm.borrow().clone(), self.fit.theta.clone()];
-        let refit = fit_from(self.model, self.data, &starts, &fixed, self.settings);
+        // The previous refit is the natural start; the optimum itself is the
+        // fallback when that start has wandered off.
+        let warm = [self.warm.borrow().clone()];
+        let mut refit = fit_from(self.model, self.data, &warm, &fixed, self.settings);
+        if !refit.converged() {
+            let fallback =
+                fit_from(self.model, self.data, std::slice::from_ref(&self.fit.theta), &fixed, self.settings);
+            if fallback.sse < refit.sse || refit.sse.is_nan() {
+                refit = fallback;
+            }
+        }
         if refit.sse.is_finite() {
             *self.warm.borrow_mut() = refit.theta;
         }

@@ -1,6 +1,7 @@
 //! Rate laws and curve models: each knows its parameters, its value, its
 //! analytic Jacobian and how to guess a start from data.
 
+pub mod inhibition;
 pub mod michaelis_menten;
 pub mod polynomial;
 
