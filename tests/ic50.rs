@@ -383,6 +383,8 @@ fn csv_output_carries_columns_and_writes_bounds_with_their_qualifier() {
     assert_eq!(c.qualifier, Qualifier::Greater);
     assert!(rel(c.molar, 1e-5) < 1e-12);
     assert_eq!(table.text(&table.rows[0], col("target")), "VRD7");
+    assert_eq!(table.text(weak, col("hill")), "", "no slope for a curve beyond the range");
+    assert!(!table.text(&table.rows[0], col("hill")).is_empty());
     assert_eq!(table.text(&table.rows[0], col("substrate (uM)")), "20");
 }
 
@@ -449,4 +451,61 @@ fn demo_plates_come_out_with_the_planted_flags() {
     let demo = kimech().arg("demo").output().unwrap();
     let text = String::from_utf8(demo.stdout).unwrap();
     assert!(text.contains("kimech ic50 demo-compounds/dose-response.csv --normalise") && text.contains("KX-130"));
+}
+
+/// --normalise reads the file twice; from stdin it is spooled first.
+#[test]
+fn normalise_works_from_stdin() {
+    let mut text = String::from("plate,compound,concentration (nM),response,control\n");
+    text.push_str(&plate_rows("P1", "KX-A", 100.0, 100.0, true));
+    let out = kimech().args(["ic50", "-", "--normalise", "--format", "csv"]).write_stdin(text).output().unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.lines().nth(1).is_some_and(|l| l.starts_with("KX-A,")), "{text}");
+}
+
+#[test]
+fn morrison_with_a_fixed_lower_asymptote_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = write(&dir, "m.csv", &format!("compound,concentration (nM),response\n{}", good_rows("KX-1", 80.0, "")));
+    let out = kimech().args(["ic50", &path, "--enzyme", "2 nM", "--fix-lower", "0"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--fix-lower"));
+}
+
+/// Profile-likelihood IC50 interval (Bates & Watts 1988, §6.1): at each end
+/// the SSE minimised over the other parameters equals SSE_min·(1 + F(0.95; 1, df)/df).
+#[test]
+fn profile_interval_ends_sit_on_the_f_threshold() {
+    use kimech::fit::{Data, fit};
+    use kimech::models::{Dose, Logistic};
+    let (x, y) = ryegrass();
+    let mut o = options();
+    o.unit = ConcUnit::Millimolar;
+    o.intervals = IntervalMethod::Profile;
+    let r = analyse(&curve("ferulic acid", x.clone(), y.clone()), &o).unwrap();
+    assert_eq!(r.ic50.interval, "profile");
+    let data = Data::unweighted(x.iter().map(|v| Dose::new(*v)).collect(), y);
+    let best = fit(&Logistic, &data, &[None, None, None, None], &FitSettings::default());
+    let f = kimech::fit::intervals::f_quantile(0.95, 1, best.df).unwrap();
+    let threshold = best.sse * (1.0 + f / best.df as f64);
+    for end in [r.ic50.low.unwrap(), r.ic50.high.unwrap()] {
+        let held = fit(&Logistic, &data, &[Some(end), None, None, None], &FitSettings::default());
+        assert!(rel(held.sse, threshold) < 1e-6, "SSE at {end}: {} vs {threshold}", held.sse);
+    }
+    assert!(r.ic50.low.unwrap() < r.ic50.value && r.ic50.value < r.ic50.high.unwrap());
+}
+
+#[test]
+fn a_file_without_any_concentration_unit_stops_with_one_message() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut text = String::from("compound,concentration,response\n");
+    text.push_str(&good_rows("KX-1", 80.0, ""));
+    text.push_str(&good_rows("KX-2", 80.0, ""));
+    let path = write(&dir, "nounit.csv", &text);
+    let out = kimech().args(["ic50", &path]).output().unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(stderr.matches("no concentration unit").count(), 1, "{stderr}");
+    assert!(stderr.contains("--concentration-unit"));
 }

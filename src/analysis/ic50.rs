@@ -275,6 +275,16 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     }
     let mut flags = Vec::new();
     if !determined(&fit, &curve.y) {
+        // The first start may have slid into a degenerate valley another start avoids.
+        let all = fit_small(&model, &data, &model.starts(&data), &fixed, &options.settings);
+        if all.converged() && determined(&all, &curve.y) {
+            fit = all;
+        }
+    }
+    if both_free && fit.theta[Logistic::HILL] < 0.0 {
+        mirror(&mut fit);
+    }
+    if !determined(&fit, &curve.y) {
         // No transition inside the tested range: the slope is not determined and
         // the free fit degenerates (h → 0, an asymptote running away). Hold h = 1
         // (common practice) so that the IC50 can at least be placed, and say so.

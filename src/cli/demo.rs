@@ -45,8 +45,8 @@ pub fn run(args: &Args) -> Result<()> {
     let rate_table = rates_stage(&mut sections)?;
     let km_status = km_stage(&rate_table, &mut sections);
     let mode_status = mode_stage(&mut sections);
-    let (_ic50_csv, ic50_status) = dose_response_stage_into(&mut sections)?;
-    let ki_status = ki_rank_stage(&mut sections);
+    let (ic50_csv, ic50_status) = dose_response_stage_into(&mut sections)?;
+    let ki_status = ki_rank_stage(&ic50_csv, &mut sections);
     let path = args.report.clone().unwrap_or_else(|| PathBuf::from(DEFAULT_REPORT));
     write_report(&path, sections)?;
     println!("\nReport written to {}", path.display());
@@ -155,7 +155,8 @@ pub fn dose_response_stage() -> Result<(String, Result<()>)> {
 pub fn dose_response_stage_into(sections: &mut Vec<Section>) -> Result<(String, Result<()>)> {
     let name = "demo-compounds/dose-response.csv";
     println!("\nStage 4 — dose-response plates → IC50, Hill coefficient, quality flags (Z′ per plate)");
-    println!("  $ kimech ic50 {name} --normalise\n");
+    println!("  $ kimech ic50 {name} --normalise");
+    println!("  $ kimech ic50 {name} --normalise --format csv -o {IC50_CSV}\n");
     let mut args = ic50::Args::new(name, Format::Table);
     args.normalise = true;
     let (human, summary, pictures) = ic50::run_bytes_with_pictures(name, DOSE_RESPONSE.as_bytes(), &args)?;
@@ -166,10 +167,13 @@ pub fn dose_response_stage_into(sections: &mut Vec<Section>) -> Result<(String, 
     Ok((String::from_utf8_lossy(&csv).into_owned(), summary.into_result()))
 }
 
-/// Stages 5 and 6: IC50 tables → Ki → ranking.
-fn ki_rank_stage(sections: &mut Vec<Section>) -> Result<()> {
+/// The file name the dose-response stage's CSV is shown under.
+const IC50_CSV: &str = "dose-response-ic50.csv";
+
+/// Stages 5 and 6: IC50 tables (the plates' and a second assay's) → Ki → ranking.
+fn ki_rank_stage(ic50_csv: &str, sections: &mut Vec<Section>) -> Result<()> {
     let second = "demo-compounds/second-assay-ic50.csv";
-    ki_and_rank_into(&[(second, SECOND_ASSAY, ki_args(second))], sections)
+    ki_and_rank_into(&[(IC50_CSV, ic50_csv, ki_args(IC50_CSV)), (second, SECOND_ASSAY, ki_args(second))], sections)
 }
 
 /// The `ki` and `rank` stages: each IC50 table (name, CSV text, `ki` options) goes through

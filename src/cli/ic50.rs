@@ -16,7 +16,7 @@ use rayon::prelude::*;
 
 use super::{CAUTION, OutputArgs, parse_confidence, parse_flag_concentration};
 use crate::analysis::ic50::{Carried, Curve, Ic50Result, IntervalMethod, Options, PlateQc, Thresholds, Wells, analyse};
-use crate::error::{CellError, Error, Result};
+use crate::error::{Error, Result};
 use crate::io::input::Record;
 use crate::io::output::{neutralise_formula, new_grid, sig};
 use crate::io::stream::{OutputSink, RowStream};
@@ -50,7 +50,8 @@ pub struct Args {
     /// Turn raw signal into % activity from each plate's control wells; reports Z′ per plate.
     #[arg(long)]
     pub normalise: bool,
-    /// Total active enzyme, e.g. "2 nM": fit Morrison's tight-binding equation (apparent Ki and IC50).
+    /// Total active enzyme, e.g. "2 nM": fit Morrison's tight-binding equation (apparent Ki and
+    /// IC50); the response must be % activity or background-subtracted (zero at full inhibition).
     #[arg(long, value_name = "CONC", value_parser = parse_flag_concentration)]
     pub enzyme: Option<ConcentrationArg>,
     /// Confidence level of the intervals.
@@ -302,6 +303,7 @@ pub fn run_source_with(
     progress: bool,
     mut pictures: Option<&mut Pictures>,
 ) -> Result<Summary> {
+    check_options(args)?;
     let thresholds = args.thresholds();
     let mut summary = Summary::default();
     let plates = if args.normalise { Some(read_controls(source, &thresholds, &mut summary)?) } else { None };
@@ -342,13 +344,12 @@ pub fn run_source_with(
             Some(_) => current.iter().map(|c| c.as_ref().ok().cloned()).collect(),
             None => Vec::new(),
         };
-        let (next, results) = rayon::join(|| grouper.next_batch(batch_size), || fit_batch(current, &options));
+        let format = args.output.format;
+        let morrison = args.enzyme.is_some();
+        let (next, results) =
+            rayon::join(|| grouper.next_batch(batch_size), || fit_batch(current, &options, format, morrison));
         summary.total += results.len();
         writer.batch(out, &results, unit)?;
-        for e in results.iter().filter_map(|r| r.as_ref().err()) {
-            eprintln!("kimech: {e}");
-            summary.failed += 1;
-        }
         if let Some(pics) = pictures.as_deref_mut() {
             pics.gallery.unit = unit.symbol().to_string();
             pics.gallery.et = options.enzyme;
@@ -357,12 +358,23 @@ pub fn run_source_with(
                 Some(u) => format!("response ({u})"),
                 None => "response (unit not given)".into(),
             };
-            for (curve, r) in kept.into_iter().zip(&results) {
+            for (curve, (r, _)) in kept.into_iter().zip(&results) {
                 match (curve, r) {
                     (Some(c), Ok(r)) => pics.add(c, r.clone())?,
                     (_, Err(e)) => pics.failures.push(e.to_string()),
                     (None, Ok(_)) => {}
                 }
+            }
+        }
+        for (result, _) in results {
+            match result {
+                // A missing unit is a property of the file, not of one compound: stop once.
+                Err(e @ Error::NoUnit { .. }) => return Err(e),
+                Err(e) => {
+                    eprintln!("kimech: {e}");
+                    summary.failed += 1;
+                }
+                Ok(_) => {}
             }
         }
         bar.update(grouper.stream.bytes_read());
@@ -379,8 +391,68 @@ pub fn run_source_with(
     Ok(summary)
 }
 
-fn fit_batch(batch: Vec<Result<Curve>>, options: &Options) -> Vec<Result<Ic50Result>> {
-    batch.into_par_iter().map(|item| item.and_then(|curve| analyse(&curve, options))).collect()
+/// Option combinations that cannot mean what the user wants.
+fn check_options(args: &Args) -> Result<()> {
+    if let (Some(lower), Some(_)) = (args.fix_lower, args.enzyme) {
+        return Err(Error::Option {
+            option: "--fix-lower".into(),
+            value: lower.to_string(),
+            problem: "the Morrison model (--enzyme) has no lower asymptote; inhibition is complete at saturation"
+                .into(),
+            expected: "drop --fix-lower, and give % activity (--normalise) or background-subtracted signal".into(),
+        });
+    }
+    if args.min_concentrations < 2 || args.min_z_prime >= 1.0 || args.min_z_prime.is_nan() || args.hill_shallow < 0.0 {
+        return Err(Error::Option {
+            option: "thresholds".into(),
+            value: format!(
+                "--min-concentrations {}, --min-z-prime {}, --hill-shallow {}",
+                args.min_concentrations, args.min_z_prime, args.hill_shallow
+            ),
+            problem: "a threshold is outside its meaningful range".into(),
+            expected: "use --min-concentrations ≥ 2, --min-z-prime < 1 and --hill-shallow ≥ 0".into(),
+        });
+    }
+    Ok(())
+}
+
+/// A fitted compound and its CSV or JSON line, rendered on the worker thread
+/// (formatting two dozen numbers per curve is too much to leave to the one
+/// thread that writes).
+type Fitted = (Result<Ic50Result>, String);
+
+fn fit_batch(batch: Vec<Result<Curve>>, options: &Options, format: Format, morrison: bool) -> Vec<Fitted> {
+    batch
+        .into_par_iter()
+        .map(|item| {
+            let result = item.and_then(|curve| analyse(&curve, options));
+            let line = match (&result, format) {
+                (Ok(r), Format::Csv) => csv_line(r, morrison),
+                (Ok(r), Format::Json) => serde_json::to_string(r).unwrap_or_default(),
+                _ => String::new(),
+            };
+            (result, line)
+        })
+        .collect()
+}
+
+/// One CSV record: fields quoted (RFC 4180) when they hold a comma, quote or line break.
+fn csv_line(r: &Ic50Result, morrison: bool) -> String {
+    let mut line = String::with_capacity(400);
+    for (k, field) in csv_row(r, morrison).iter().enumerate() {
+        if k > 0 {
+            line.push(',');
+        }
+        if field.contains([',', '"', '\n', '\r']) {
+            line.push('"');
+            line.push_str(&field.replace('"', "\"\""));
+            line.push('"');
+        } else {
+            line.push_str(field);
+        }
+    }
+    line.push('\n');
+    line
 }
 
 /// Column positions and the names of carried columns.
@@ -728,15 +800,7 @@ fn with_compound(e: Error, compound: &str) -> Error {
             cell.problem = format!("compound '{compound}': {}", cell.problem);
             Error::Cell(cell)
         }
-        Error::NoUnit { .. } | Error::Data { .. } => e,
-        other => Error::Cell(Box::new(CellError {
-            path: String::new(),
-            line: 0,
-            column: String::new(),
-            value: String::new(),
-            problem: format!("compound '{compound}': {other}"),
-            expected: String::new(),
-        })),
+        other => other,
     }
 }
 
@@ -848,8 +912,9 @@ impl Writer {
         Ok(())
     }
 
-    fn batch(&mut self, out: &mut dyn Write, results: &[Result<Ic50Result>], unit: ConcUnit) -> Result<()> {
-        let ok: Vec<&Ic50Result> = results.iter().filter_map(|r| r.as_ref().ok()).collect();
+    fn batch(&mut self, out: &mut dyn Write, results: &[Fitted], unit: ConcUnit) -> Result<()> {
+        let ok: Vec<&Ic50Result> = results.iter().filter_map(|r| r.0.as_ref().ok()).collect();
+        let lines = results.iter().filter(|r| r.0.is_ok()).map(|r| r.1.as_str());
         for r in &ok {
             for f in &r.flags {
                 if !self.flags_seen.contains(f) {
@@ -864,26 +929,26 @@ impl Writer {
                     self.started = true;
                 }
                 let mut text = String::new();
-                for r in ok {
+                for line in lines {
                     if self.any_result {
                         text.push_str(",\n");
                     }
                     self.any_result = true;
-                    text.push_str(&serde_json::to_string(r).map_err(|e| Error::Serialise(e.to_string()))?);
+                    text.push_str(line);
                 }
                 write_all(out, text.as_bytes())
             }
             Format::Csv => {
-                let mut w = csv::WriterBuilder::new().has_headers(false).from_writer(Vec::new());
+                let mut text = String::new();
                 if !self.started {
+                    let mut w = csv::WriterBuilder::new().has_headers(false).from_writer(Vec::new());
                     w.write_record(self.csv_header(unit)).map_err(|e| Error::Serialise(e.to_string()))?;
+                    text = String::from_utf8_lossy(&w.into_inner().map_err(|e| Error::Serialise(e.to_string()))?)
+                        .into_owned();
                     self.started = true;
                 }
-                for r in ok {
-                    w.write_record(csv_row(r, self.morrison)).map_err(|e| Error::Serialise(e.to_string()))?;
-                }
-                let bytes = w.into_inner().map_err(|e| Error::Serialise(e.to_string()))?;
-                write_all(out, &bytes)
+                lines.for_each(|l| text.push_str(l));
+                write_all(out, text.as_bytes())
             }
             Format::Table => {
                 if ok.is_empty() {
@@ -975,9 +1040,11 @@ fn csv_row(r: &Ic50Result, morrison: bool) -> Vec<String> {
         r.ic50.interval.to_string(),
         num(r.pic50),
     ];
-    match &r.hill {
-        Some(h) => row.extend(param_cells(h)),
-        None => row.extend(std::iter::repeat_n(String::new(), 4)),
+    // A slope fitted to a curve without its middle is not a measurement; leave
+    // it out of the table the next step reads (JSON keeps it, with the qualifier).
+    match (&r.hill, r.qualifier) {
+        (Some(h), Qualifier::Equal) => row.extend(param_cells(h)),
+        _ => row.extend(std::iter::repeat_n(String::new(), 4)),
     }
     row.extend(param_cells(&r.upper));
     row.extend(param_cells(&r.lower));
@@ -1018,10 +1085,14 @@ fn human_batch(results: &[&Ic50Result], morrison: bool, unit: ConcUnit, confiden
             Qualifier::Equal => format!("{:.2}", r.pic50),
             q => format!("{} {:.2}", q.reversed().symbol(), r.pic50),
         };
-        let slope = if morrison {
-            r.ki_app.as_ref().map_or("—".into(), |k| sig(k.value, 4))
-        } else {
-            r.hill.as_ref().map_or("—".into(), |h| sig(h.value, 3))
+        // Out of range, the slope and Ki,app are not measured: show the bound or nothing.
+        let slope = match (morrison, r.qualifier) {
+            (true, q) => r.ki_app.as_ref().map_or("—".into(), |k| match q {
+                Qualifier::Equal => sig(k.value, 4),
+                q => format!("{} {}", q.symbol(), sig(k.value, 4)),
+            }),
+            (false, Qualifier::Equal) => r.hill.as_ref().map_or("—".into(), |h| sig(h.value, 3)),
+            (false, _) => "—".into(),
         };
         grid.add_row(vec![
             r.compound.clone(),
@@ -1036,7 +1107,13 @@ fn human_batch(results: &[&Ic50Result], morrison: bool, unit: ConcUnit, confiden
             r.flags.join(", "),
         ]);
     }
-    let method = results.first().map_or("", |r| if morrison { "Morrison (known Et)" } else { r.model });
+    let method = results.first().map_or("", |r| {
+        if morrison {
+            "Morrison (known Et); Ki,app is the apparent constant, before any mechanism correction (kimech ki applies it)"
+        } else {
+            r.model
+        }
+    });
     format!("{grid}\nmodel: {method}; IC50 interval: {}\n\n", results.first().map_or("", |r| r.ic50.interval))
 }
 
