@@ -251,6 +251,7 @@ pub fn dose_panel(curve: DoseCurve) -> XyChart {
             at: (x, y),
             low,
             high,
+            interval: bound.is_none() && (low.is_some() || high.is_some()),
             bound,
             drop_line: true,
         });
@@ -283,12 +284,19 @@ pub struct Ranked {
 /// Rows top to bottom in the given order, values along x.
 pub fn ranking_panel(title: &str, value_label: &str, rows: &[Ranked]) -> XyChart {
     let n = rows.len();
-    // Room for the arrows of bounds: a fifth of the span beyond the outermost values.
-    let ends = rows.iter().flat_map(|r| [Some(r.value), r.low, r.high]).flatten().filter(|v| v.is_finite());
-    let (lo, hi) = ends.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| (a.min(v), b.max(v)));
-    let pad = if lo.is_finite() { ((hi - lo) * 0.2).max(0.5) } else { 1.0 };
-    let x =
-        if lo.is_finite() { Axis::linear(value_label).fixed(lo - pad, hi + pad) } else { Axis::linear(value_label) };
+    // The axis follows the estimates, not the intervals: one very wide interval
+    // (two repeats that disagree) would squeeze every other row into a point.
+    // Ends beyond the axis are drawn dashed to its edge and counted in a note.
+    let values = rows.iter().map(|r| r.value).filter(|v| v.is_finite());
+    let (vmin, vmax) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| (a.min(v), b.max(v)));
+    let span = if vmin.is_finite() { (vmax - vmin).max(1.0) } else { 1.0 };
+    let (lo, hi) = (vmin - 0.35 * span - 0.4, vmax + 0.35 * span + 0.4);
+    let x = if vmin.is_finite() { Axis::linear(value_label).fixed(lo, hi) } else { Axis::linear(value_label) };
+    let inside = |v: Option<f64>| v.filter(|v| *v >= lo && *v <= hi);
+    let clipped = rows
+        .iter()
+        .filter(|r| r.low.is_some() && inside(r.low).is_none() || r.high.is_some() && inside(r.high).is_none())
+        .count();
     let mut chart = XyChart::new(title, x, Axis::categories("", n));
     // Category 0 is drawn at the bottom; list the first row at the top.
     chart.y_categories = Some(rows.iter().rev().map(|r| r.label.clone()).collect());
@@ -310,11 +318,15 @@ pub fn ranking_panel(title: &str, value_label: &str, rows: &[Ranked]) -> XyChart
             label,
             series,
             at: (r.value, y),
-            low: r.low,
-            high: r.high,
+            low: inside(r.low),
+            high: inside(r.high),
+            interval: r.bound.is_none() && (r.low.is_some() || r.high.is_some()),
             bound: r.bound,
             drop_line: false,
         });
+    }
+    if clipped > 0 {
+        chart.notes.push(format!("{clipped} interval(s) run beyond the axis: drawn dashed to its edge."));
     }
     chart
 }

@@ -76,7 +76,8 @@ pub enum Layer {
         label: Option<String>,
     },
     /// A point estimate with a horizontal interval (IC50 with its interval,
-    /// pKi in a ranking). A missing end runs to the panel edge, dashed.
+    /// pKi in a ranking). With `interval`, a missing end means the interval
+    /// runs beyond the axis (or has no bound) and is drawn dashed to the edge.
     Estimate {
         /// Legend text.
         label: Option<String>,
@@ -88,6 +89,8 @@ pub enum Layer {
         low: Option<f64>,
         /// Upper end of the interval.
         high: Option<f64>,
+        /// Whether there is an interval to draw at all.
+        interval: bool,
         /// The value is a bound, not an estimate: drawn open with an arrow
         /// pointing where the true value lies.
         bound: Option<Direction>,
@@ -641,8 +644,9 @@ fn draw_layer<'a, DB: DrawingBackend + 'a>(
                 ctx.draw_series(std::iter::once(line)).map_err(drawing_error)?;
             }
         }
-        Layer::Estimate { series, at, low, high, bound, drop_line, .. } => {
-            draw_estimate(ctx, *series, *at, (*low, *high), *bound, *drop_line, xr, yr)?
+        Layer::Estimate { series, at, low, high, interval, bound, drop_line, .. } => {
+            let ends = if *interval { Some((*low, *high)) } else { None };
+            draw_estimate(ctx, *series, *at, ends, *bound, *drop_line, xr, yr)?
         }
     }
     Ok(())
@@ -672,7 +676,7 @@ fn draw_estimate<'a, DB: DrawingBackend + 'a>(
     ctx: &mut Ctx<'a, DB>,
     series: usize,
     at: (f64, f64),
-    (low, high): (Option<f64>, Option<f64>),
+    ends: Option<(Option<f64>, Option<f64>)>,
     bound: Option<Direction>,
     drop_line: bool,
     xr: AxisRange,
@@ -686,6 +690,9 @@ fn draw_estimate<'a, DB: DrawingBackend + 'a>(
     }
     let solid = c.stroke_width(2);
     // The interval: solid between known ends, dashed to the edge where an end is missing.
+    let Some((low, high)) = ends else {
+        return draw_point(ctx, series, (x, y), bound);
+    };
     let lo = low.map(|v| v.clamp(xr.lo, xr.hi));
     let hi = high.map(|v| v.clamp(xr.lo, xr.hi));
     let seg = |a: f64, b: f64| [(a, y), (b, y)];
@@ -711,6 +718,19 @@ fn draw_estimate<'a, DB: DrawingBackend + 'a>(
         let cap = EmptyElement::at((end, y)) + PathElement::new(vec![(0, -5), (0, 5)], solid);
         ctx.draw_series(std::iter::once(cap)).map_err(drawing_error)?;
     }
+    draw_point(ctx, series, (x, y), bound)
+}
+
+/// The marker of an estimate: a diamond, or for a bound an open circle with
+/// an arrow towards where the value lies.
+fn draw_point<'a, DB: DrawingBackend + 'a>(
+    ctx: &mut Ctx<'a, DB>,
+    series: usize,
+    (x, y): (f64, f64),
+    bound: Option<Direction>,
+) -> Result<(), String> {
+    let c = style::colour(series);
+    let solid = c.stroke_width(2);
     match bound {
         None => {
             draw_markers(ctx, &[(x, y)], Shape::Diamond, c)?;
