@@ -1,6 +1,7 @@
 //! The numerical core of each command: plain inputs in, result structs out.
 //! Nothing here reads files or prints; the `cli` layer does that.
 
+pub mod ic50;
 pub mod km;
 pub mod mode;
 pub mod rank;

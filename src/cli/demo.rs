@@ -2,7 +2,7 @@
 //! stage's output is parsed as the next stage's input, exactly as a user
 //! would pipe the commands.
 
-use super::{OutputArgs, ki, km, mode, rank, rates};
+use super::{OutputArgs, ic50, ki, km, mode, rank, rates};
 use crate::error::Result;
 use crate::io::{Format, Table};
 
@@ -11,6 +11,9 @@ const PROGRESS_CURVES: &str = include_str!("../../demo-compounds/progress-curves
 
 /// The invented IC50 table of a second assay at other conditions (see its header comments).
 const SECOND_ASSAY: &str = include_str!("../../demo-compounds/second-assay-ic50.csv");
+
+/// The invented dose-response plates (demo-compounds/make_dose_response.py).
+const DOSE_RESPONSE: &str = include_str!("../../demo-compounds/dose-response.csv");
 
 /// The invented rate matrix of five compounds (demo-compounds/make_rate_matrix.py).
 const RATE_MATRIX: &str = include_str!("../../demo-compounds/rate-matrix.csv");
@@ -30,8 +33,9 @@ pub fn run(_args: &Args) -> Result<()> {
     let rate_table = rates_stage()?;
     let km_status = km_stage(&rate_table);
     let mode_status = mode_stage();
-    let ki_status = ki_rank_stage();
-    km_status.and(mode_status).and(ki_status)
+    let (ic50_csv, ic50_status) = dose_response_stage()?;
+    let ki_status = ki_rank_stage(&ic50_csv);
+    km_status.and(mode_status).and(ic50_status).and(ki_status)
 }
 
 /// Stage 1: progress curves → initial rates; returns the rates as the table `km` reads.
@@ -71,10 +75,29 @@ fn km_stage(rate_table: &Table) -> Result<()> {
     super::finish(&outcome.failures, outcome.total, "series")
 }
 
-/// Stages 4 and 5: IC50 tables → Ki → ranking.
-fn ki_rank_stage() -> Result<()> {
+/// The file name the dose-response stage's CSV is shown under.
+const IC50_CSV: &str = "dose-response-ic50.csv";
+
+/// Stages 5 and 6: IC50 tables (the plates' and a second assay's) → Ki → ranking.
+fn ki_rank_stage(ic50_csv: &str) -> Result<()> {
     let second = "demo-compounds/second-assay-ic50.csv";
-    ki_and_rank(&[(second, SECOND_ASSAY, ki_args(second))])
+    ki_and_rank(&[(IC50_CSV, ic50_csv, ki_args(IC50_CSV)), (second, SECOND_ASSAY, ki_args(second))])
+}
+
+/// Stage 4: dose-response plates → IC50 table. Prints the human report and
+/// returns the CSV a user would pass on to `kimech ki`, with the stage's status.
+pub fn dose_response_stage() -> Result<(String, Result<()>)> {
+    let name = "demo-compounds/dose-response.csv";
+    println!("\nStage 4 — dose-response plates → IC50, Hill coefficient, quality flags (Z′ per plate)");
+    println!("  $ kimech ic50 {name} --normalise");
+    println!("  $ kimech ic50 {name} --normalise --format csv -o {IC50_CSV}\n");
+    let mut args = ic50::Args::new(name, Format::Table);
+    args.normalise = true;
+    let (human, summary) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &args)?;
+    print!("{}", String::from_utf8_lossy(&human));
+    args.output.format = Format::Csv;
+    let (csv, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &args)?;
+    Ok((String::from_utf8_lossy(&csv).into_owned(), summary.into_result()))
 }
 
 /// The `ki` and `rank` stages: each IC50 table (name, CSV text, `ki` options) goes through

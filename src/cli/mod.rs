@@ -10,6 +10,7 @@ use crate::error::{Error, Result};
 use crate::io::Format;
 
 pub mod demo;
+pub mod ic50;
 pub mod ki;
 pub mod km;
 pub mod mode;
@@ -33,6 +34,8 @@ enum Command {
     Rates(rates::Args),
     /// Fit Michaelis–Menten to substrate series: Vmax, Km, kcat.
     Km(km::Args),
+    /// Fit dose-response curves: IC50, pIC50, Hill coefficient, quality flags.
+    Ic50(ic50::Args),
     /// Say how a compound inhibits: global fits of five rate laws to an [S]×[I] rate matrix.
     Mode(mode::Args),
     /// Convert IC50 values to Ki with the relation, mechanism and assumption checks behind each.
@@ -59,6 +62,7 @@ pub fn run(args: impl IntoIterator<Item = impl Into<OsString> + Clone>) -> Resul
     match cli.command {
         Command::Rates(args) => rates::run(&args),
         Command::Km(args) => km::run(&args),
+        Command::Ic50(args) => ic50::run(&args),
         Command::Ki(args) => ki::run(&args),
         Command::Rank(args) => rank::run(&args),
         Command::Demo(args) => demo::run(&args),

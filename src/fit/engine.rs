@@ -33,7 +33,7 @@ pub enum Termination {
 }
 
 impl Termination {
-    fn from_lm(reason: &TerminationReason) -> Self {
+    pub(super) fn from_lm(reason: &TerminationReason) -> Self {
         match reason {
             TerminationReason::Converged { .. } => Termination::Converged,
             TerminationReason::Orthogonal => Termination::Stationary,
@@ -311,7 +311,7 @@ fn polish<M: Model>(model: &M, data: &Data<M::Point>, fixed: &[Option<f64>], mut
     run
 }
 
-fn weighted_sse<M: Model>(model: &M, data: &Data<M::Point>, theta: &[f64]) -> f64 {
+pub(super) fn weighted_sse<M: Model>(model: &M, data: &Data<M::Point>, theta: &[f64]) -> f64 {
     data.x
         .iter()
         .zip(&data.y)
@@ -323,7 +323,7 @@ fn weighted_sse<M: Model>(model: &M, data: &Data<M::Point>, theta: &[f64]) -> f6
         .sum()
 }
 
-fn summarise<M: Model>(
+pub(super) fn summarise<M: Model>(
     model: &M,
     data: &Data<M::Point>,
     theta: Vec<f64>,

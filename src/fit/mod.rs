@@ -11,9 +11,11 @@
 
 mod engine;
 pub mod intervals;
+mod small;
 pub mod stats;
 
 pub use engine::{Fit, FitSettings, Termination, fit, fit_from};
+pub use small::fit_small;
 
 /// How a parameter is represented inside the minimiser.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

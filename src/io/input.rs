@@ -40,7 +40,7 @@ pub struct Column {
 }
 
 impl Column {
-    fn parse(header: &str) -> Column {
+    pub(crate) fn parse(header: &str) -> Column {
         let h = header.trim().trim_start_matches('\u{feff}');
         let (name, unit_text) = match h.find(['(', '[']) {
             Some(open) if h.ends_with(')') || h.ends_with(']') => {
@@ -268,7 +268,7 @@ impl Table {
     }
 }
 
-fn describe_csv_error(e: &csv::Error) -> String {
+pub(crate) fn describe_csv_error(e: &csv::Error) -> String {
     match e.kind() {
         csv::ErrorKind::Utf8 { .. } => "the text is not valid UTF-8; save the file as UTF-8".to_string(),
         csv::ErrorKind::Io(io) => format!("read error: {io}"),

@@ -2,6 +2,7 @@
 
 pub mod input;
 pub mod output;
+pub mod stream;
 
 pub use input::{ColumnSpec, Table};
 pub use output::{Format, neutralise_formula, write_output};

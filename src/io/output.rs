@@ -45,7 +45,7 @@ pub fn write_output(path: Option<&Path>, bytes: &[u8], inputs: &[&str]) -> Resul
     })
 }
 
-fn refuse_inputs(path: &Path, inputs: &[&str]) -> Result<()> {
+pub(crate) fn refuse_inputs(path: &Path, inputs: &[&str]) -> Result<()> {
     let Ok(target) = path.canonicalize() else {
         return Ok(()); // does not exist yet, so it is no input
     };

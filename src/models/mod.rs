@@ -7,3 +7,6 @@ pub mod polynomial;
 
 pub use michaelis_menten::MichaelisMenten;
 pub use polynomial::Polynomial;
+pub mod logistic;
+
+pub use logistic::{Dose, Logistic, Morrison};

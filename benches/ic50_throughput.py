@@ -1,0 +1,164 @@
+#!/usr/bin/env python3
+"""Throughput benchmark: `kimech ic50` against a scipy.optimize.curve_fit loop.
+
+Generates N synthetic 10-point dose-response curves (SIMULATED, fixed seed:
+3-fold dilutions from 10 uM, IC50 log-uniform in 3-3000 nM, Hill uniform in
+0.7-1.5, upper 100, lower uniform in -5..10, gaussian noise SD 3), fits them
+all with kimech (all cores, then one thread on a subset for the per-core
+figure) and a subset with scipy's curve_fit (same model, parameterised on
+log IC50, data-driven p0, default settings: the usual way people fit 4PL in
+Python), checks that the IC50s agree on the subset, and prints curves per
+second for both and the ratio per core. kimech is timed with /usr/bin/time -v
+(wall clock and peak resident memory).
+
+Usage (from the repo root, after `cargo build --release`):
+    python3 benches/ic50_throughput.py --n 1000000
+Options: --n, --scipy-n (default 2000), --single-n (default 100000),
+--kimech PATH (default $CARGO_TARGET_DIR or target, release/kimech),
+--keep DIR (keep the generated files there).
+"""
+import argparse
+import csv
+import os
+import re
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+from scipy.optimize import curve_fit
+
+SEED = 20261202
+CONC = 10000.0 / 3.0 ** np.arange(10)  # nM, 10 uM down to 0.5 nM
+
+
+def generate(path, n, rng):
+    """Writes n curves; returns the true IC50s."""
+    ic50 = np.exp(rng.uniform(np.log(3.0), np.log(3000.0), n))
+    hill = rng.uniform(0.7, 1.5, n)
+    lower = rng.uniform(-5.0, 10.0, n)
+    upper = np.full(n, 100.0)
+    y = lower[:, None] + (upper - lower)[:, None] / (1 + (CONC[None, :] / ic50[:, None]) ** hill[:, None])
+    y += rng.normal(0.0, 3.0, y.shape)
+    conc_text = [f"{c:.6g}" for c in CONC]
+    with open(path, "w") as f:
+        f.write("compound,concentration (nM),response\n")
+        chunk = []
+        for i in range(n):
+            name = f"C{i:07d}"
+            chunk.append("".join(f"{name},{c},{v:.4f}\n" for c, v in zip(conc_text, y[i])))
+            if len(chunk) >= 10000:
+                f.write("".join(chunk))
+                chunk.clear()
+        f.write("".join(chunk))
+    return y
+
+
+def logistic(x, log_ic50, hill, lower, upper):
+    return lower + (upper - lower) / (1 + np.exp(hill * (np.log(x) - log_ic50)))
+
+
+def scipy_fits(y, count):
+    out = np.full((count, 4), np.nan)
+    start = time.perf_counter()
+    for i in range(count):
+        yi = y[i]
+        p0 = (np.log(np.sqrt(CONC.min() * CONC.max())), 1.0, yi.min(), yi.max())
+        try:
+            p, _ = curve_fit(logistic, CONC, yi, p0=p0, maxfev=10000)
+            out[i] = p
+        except RuntimeError:
+            pass
+    return out, time.perf_counter() - start
+
+
+def run_kimech(kimech, data, out, threads=None):
+    env = dict(os.environ)
+    if threads:
+        env["RAYON_NUM_THREADS"] = str(threads)
+    cmd = ["/usr/bin/time", "-v", str(kimech), "ic50", str(data), "--format", "csv", "-o", str(out)]
+    p = subprocess.run(cmd, env=env, capture_output=True, text=True)
+    if p.returncode not in (0, 3):
+        sys.exit(f"kimech failed ({p.returncode}):\n{p.stderr[-2000:]}")
+    wall = re.search(r"Elapsed \(wall clock\) time.*: (?:(\d+):)?(\d+):([\d.]+)", p.stderr)
+    h, m, s = (float(g) if g else 0.0 for g in wall.groups())
+    rss = int(re.search(r"Maximum resident set size \(kbytes\): (\d+)", p.stderr).group(1))
+    return 3600 * h + 60 * m + s, rss / 1024.0
+
+
+def read_ic50(path, count):
+    got = {}
+    with open(path) as f:
+        reader = csv.reader(f)
+        header = next(reader)
+        ci, qi = header.index("compound"), header.index("qualifier")
+        cols = [header.index(c) for c in ("ic50 (nM)", "hill", "lower", "upper")]
+        for row in reader:
+            k = int(row[ci][1:])
+            if k < count and row[qi] == "=":
+                got[k] = [float(row[c]) for c in cols]
+    return got
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--n", type=int, default=100000)
+    ap.add_argument("--scipy-n", type=int, default=2000)
+    ap.add_argument("--single-n", type=int, default=100000)
+    target = Path(os.environ.get("CARGO_TARGET_DIR", "target"))
+    ap.add_argument("--kimech", default=str(target / "release" / "kimech"))
+    ap.add_argument("--keep", default=None)
+    a = ap.parse_args()
+    rng = np.random.default_rng(SEED)
+    work = Path(a.keep) if a.keep else Path(tempfile.mkdtemp(prefix="kimech-bench-"))
+    work.mkdir(parents=True, exist_ok=True)
+    data, out = work / "curves.csv", work / "ic50.csv"
+    t0 = time.perf_counter()
+    y = generate(data, a.n, rng)
+    print(f"generated {a.n} curves x 10 points ({data.stat().st_size / 1e6:.0f} MB) in {time.perf_counter() - t0:.1f} s")
+
+    wall, rss = run_kimech(a.kimech, data, out)
+    cores = os.cpu_count()
+    print(f"kimech, {cores} threads: {a.n} curves in {wall:.2f} s = {a.n / wall:,.0f} curves/s, peak RSS {rss:.0f} MB")
+
+    single_n = min(a.single_n, a.n)
+    single_data = work / "single.csv"
+    with open(data) as src, open(single_data, "w") as dst:
+        for i, line in enumerate(src):
+            if i > single_n * 10:
+                break
+            dst.write(line)
+    wall1, _ = run_kimech(a.kimech, single_data, work / "single-out.csv", threads=1)
+    per_core = single_n / wall1
+    print(f"kimech, 1 thread: {single_n} curves in {wall1:.2f} s = {per_core:,.0f} curves/s")
+
+    count = min(a.scipy_n, a.n)
+    ref, secs = scipy_fits(y, count)
+    scipy_rate = count / secs
+    print(f"scipy curve_fit loop, 1 core: {count} curves in {secs:.2f} s = {scipy_rate:,.0f} curves/s")
+
+    got = read_ic50(out, count)
+    keys = [k for k in range(count) if k in got and np.all(np.isfinite(ref[k]))]
+    rel = np.array([abs(got[k][0] - np.exp(ref[k][0])) / np.exp(ref[k][0]) for k in keys])
+    agree = float(np.mean(rel < 1e-4)) if len(rel) else 0.0
+    print(f"IC50 agreement on {len(keys)} curves fitted by both: median rel. diff {np.median(rel):.1e}, "
+          f"{100 * agree:.1f}% within 1e-4")
+    # Where they differ, which found the lower sum of squares?
+    ours_better = theirs_better = 0
+    for k, r in zip(keys, rel):
+        if r >= 1e-4:
+            ic50, hill, lower, upper = got[k]
+            sse_k = float(np.sum((y[k] - logistic(CONC, np.log(ic50), hill, lower, upper)) ** 2))
+            sse_s = float(np.sum((y[k] - logistic(CONC, *ref[k])) ** 2))
+            ours_better += sse_k < sse_s * (1 - 1e-9)
+            theirs_better += sse_s < sse_k * (1 - 1e-9)
+    print(f"  where they differ: kimech lower SSE on {ours_better}, scipy lower SSE on {theirs_better}")
+    print(f"ratio per core (kimech 1 thread / scipy): {per_core / scipy_rate:,.0f}x")
+    if agree < 0.99:
+        sys.exit("IC50s disagree with scipy on more than 1% of curves")
+
+
+if __name__ == "__main__":
+    main()

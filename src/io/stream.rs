@@ -1,0 +1,218 @@
+//! Streaming input and output for files too large to hold in memory
+//! (screening campaigns with millions of rows).
+//!
+//! [`RowStream`] reads the same CSV dialect as [`Table::read`] (comments,
+//! trimming, header units, delimiter by extension) one row at a time into a
+//! reused [`Record`], and exposes a header-only [`Table`] so that the very
+//! same cell accessors (`number`, `concentration`, their error messages)
+//! apply. [`OutputSink`] writes to stdout, or to a temporary sibling of the
+//! target that is renamed into place on [`OutputSink::commit`], like
+//! [`super::write_output`] but without holding the whole output.
+
+use std::io::{BufReader, BufWriter, Read, Write};
+use std::path::{Path, PathBuf};
+
+use super::input::{Column, Record, Table, describe_csv_error};
+use crate::error::{Error, Result};
+
+/// Rows of a CSV, one at a time.
+pub struct RowStream {
+    table: Table,
+    reader: csv::Reader<Box<dyn Read + Send>>,
+    record: csv::StringRecord,
+    rows: u64,
+}
+
+impl RowStream {
+    /// Opens `path` (`-` for stdin).
+    pub fn open(path: &str) -> Result<RowStream> {
+        let source = if path == "-" { "<stdin>".to_string() } else { path.to_string() };
+        let input: Box<dyn Read + Send> = if path == "-" {
+            Box::new(std::io::stdin())
+        } else {
+            let file = std::fs::File::open(path).map_err(|e| Error::Read { path: source.clone(), source: e })?;
+            Box::new(file)
+        };
+        RowStream::new(&source, input, delimiter_for(path))
+    }
+
+    /// Reads from any byte source; `source` names it in errors. Blank
+    /// lines and comments (first cell starting with `#`) are skipped, as by
+    /// [`Table::parse`]; the first other line is the header.
+    pub fn new(source: &str, input: Box<dyn Read + Send>, delimiter: u8) -> Result<RowStream> {
+        let input: Box<dyn Read + Send> = Box::new(BufReader::with_capacity(1 << 16, input));
+        let reader = csv::ReaderBuilder::new()
+            .delimiter(delimiter)
+            .trim(csv::Trim::All)
+            .has_headers(false)
+            .flexible(true)
+            .from_reader(input);
+        let table = Table { source: source.to_string(), columns: Vec::new(), header_line: 1, rows: Vec::new() };
+        let mut stream = RowStream { table, reader, record: csv::StringRecord::new(), rows: 0 };
+        if !stream.next_content()? {
+            return Err(Error::Empty { path: source.to_string() });
+        }
+        stream.table.columns = stream.record.iter().map(Column::parse).collect();
+        stream.table.header_line = stream.record.position().map_or(1, |p| p.line());
+        if stream.table.columns.iter().all(|c| c.key.is_empty()) {
+            return Err(Error::Empty { path: source.to_string() });
+        }
+        Ok(stream)
+    }
+
+    /// Reads the next record that is neither blank nor a comment; false at the end.
+    fn next_content(&mut self) -> Result<bool> {
+        loop {
+            match self.reader.read_record(&mut self.record) {
+                Ok(false) => return Ok(false),
+                Ok(true) => {
+                    let r = &self.record;
+                    if r.iter().all(str::is_empty) || r.get(0).is_some_and(|c| c.starts_with('#')) {
+                        continue;
+                    }
+                    return Ok(true);
+                }
+                Err(e) => return Err(csv_error(&self.table.source, &e)),
+            }
+        }
+    }
+
+    /// The header (and file name) as a table without rows, for the cell accessors.
+    pub fn table(&self) -> &Table {
+        &self.table
+    }
+
+    /// Reads the next data row into `row`, reusing its buffers; false at the end.
+    /// A file with a header and no rows is [`Error::Empty`].
+    pub fn next_into(&mut self, row: &mut Record) -> Result<bool> {
+        if !self.next_content()? {
+            return if self.rows == 0 { Err(Error::Empty { path: self.table.source.clone() }) } else { Ok(false) };
+        }
+        self.rows += 1;
+        row.line = self.record.position().map_or(0, |p| p.line());
+        let width = self.table.columns.len();
+        if self.record.len() != width {
+            return Err(Error::Csv {
+                path: self.table.source.clone(),
+                line: row.line,
+                message: format!(
+                    "this row has {} fields but the header has {width}; every row needs one cell per header column (quote cells that contain the delimiter)",
+                    self.record.len()
+                ),
+            });
+        }
+        row.cells.resize_with(width, String::new);
+        for (cell, field) in row.cells.iter_mut().zip(self.record.iter()) {
+            cell.clear();
+            cell.push_str(field);
+        }
+        Ok(true)
+    }
+
+    /// Bytes consumed so far (for progress).
+    pub fn bytes_read(&self) -> u64 {
+        self.reader.position().byte()
+    }
+}
+
+fn csv_error(source: &str, e: &csv::Error) -> Error {
+    Error::Csv { path: source.to_string(), line: e.position().map_or(0, |p| p.line()), message: describe_csv_error(e) }
+}
+
+/// Tab for `.tsv`/`.tab`, comma otherwise (as [`Table::read`]).
+pub fn delimiter_for(path: &str) -> u8 {
+    if path.ends_with(".tsv") || path.ends_with(".tab") { b'\t' } else { b',' }
+}
+
+/// Output written as it is produced: stdout, or a file that appears only
+/// when complete.
+pub struct OutputSink {
+    writer: BufWriter<Box<dyn Write + Send>>,
+    temp: Option<(PathBuf, PathBuf)>,
+}
+
+impl OutputSink {
+    /// Stdout when `path` is `None` or `-`; else a temporary sibling of
+    /// `path`, refused if `path` is one of `inputs`.
+    pub fn create(path: Option<&Path>, inputs: &[&str]) -> Result<OutputSink> {
+        let Some(path) = path.filter(|p| p.as_os_str() != "-") else {
+            return Ok(OutputSink { writer: BufWriter::new(Box::new(std::io::stdout())), temp: None });
+        };
+        super::output::refuse_inputs(path, inputs)?;
+        let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_else(|| "output".into());
+        let temp = path.with_file_name(format!(".{name}.{}.tmp", std::process::id()));
+        let file = std::fs::File::create(&temp).map_err(|source| Error::Write { path: path.to_path_buf(), source })?;
+        Ok(OutputSink { writer: BufWriter::new(Box::new(file)), temp: Some((temp, path.to_path_buf())) })
+    }
+
+    /// The error for a failed write to this sink.
+    pub fn error(&self, source: std::io::Error) -> Error {
+        let path = self.temp.as_ref().map_or_else(|| PathBuf::from("<stdout>"), |(_, p)| p.clone());
+        Error::Write { path, source }
+    }
+
+    /// Flushes and, for a file, renames it into place.
+    pub fn commit(mut self) -> Result<()> {
+        self.writer.flush().map_err(|e| self.error(e))?;
+        if let Some((temp, path)) = self.temp.take() {
+            std::fs::rename(&temp, &path).map_err(|source| {
+                let _ = std::fs::remove_file(&temp);
+                Error::Write { path, source }
+            })?;
+        }
+        Ok(())
+    }
+}
+
+impl Write for OutputSink {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        self.writer.write(buf)
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        self.writer.flush()
+    }
+}
+
+impl Drop for OutputSink {
+    /// An output never committed (an error happened) leaves no file behind.
+    fn drop(&mut self) {
+        if let Some((temp, _)) = self.temp.take() {
+            let _ = std::fs::remove_file(temp);
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn streams_rows_with_line_numbers_and_reuses_the_record() {
+        let text = "# note\nx (nM),y\n1,2\n\n# another note\n3,zz\n";
+        let mut s = RowStream::new("t.csv", Box::new(std::io::Cursor::new(text.as_bytes().to_vec())), b',').unwrap();
+        let mut row = Record { line: 0, cells: Vec::new() };
+        assert!(s.next_into(&mut row).unwrap());
+        assert_eq!((row.line, row.cells.clone()), (3, vec!["1".to_string(), "2".to_string()]));
+        assert!(s.next_into(&mut row).unwrap());
+        assert_eq!(row.line, 6);
+        let e = s.table().number(&row, 1).unwrap_err().to_string();
+        assert!(e.contains("line 6") && e.contains("zz"), "{e}");
+        assert!(!s.next_into(&mut row).unwrap());
+    }
+
+    #[test]
+    fn uncommitted_output_leaves_no_file() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("out.csv");
+        {
+            let mut sink = OutputSink::create(Some(&path), &[]).unwrap();
+            sink.write_all(b"half").unwrap();
+        }
+        assert!(!path.exists());
+        let mut sink = OutputSink::create(Some(&path), &[]).unwrap();
+        sink.write_all(b"whole").unwrap();
+        sink.commit().unwrap();
+        assert_eq!(std::fs::read_to_string(&path).unwrap(), "whole");
+    }
+}
