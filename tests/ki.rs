@@ -578,3 +578,28 @@ fn the_human_report_states_method_mechanism_and_caution() {
     assert_eq!(out.status.code(), Some(2));
     assert!(std::fs::read_to_string(&path).unwrap().starts_with("compound,ic50"));
 }
+
+#[test]
+fn dose_response_flags_that_undermine_the_conversion_are_carried_into_ki() {
+    // Cheng & Prusoff (1973) assume complete inhibition: a partial inhibitor's
+    // IC50 converts to a number that is not a Ki of a full inhibitor.
+    let csv = "compound,ic50 (nM),substrate (uM),km (uM),mechanism,flags\n\
+               partial,100,10,10,competitive,partial-inhibition;hill-shallow\n\
+               clean,100,10,10,competitive,\n";
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("ic50.csv");
+    std::fs::write(&path, csv).unwrap();
+    let out = kimech().arg("ki").arg(&path).args(["--format", "json"]).output().unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let doc: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let flags = |i: usize| {
+        doc["results"][i]["flags"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|f| f.as_str().unwrap().to_string())
+            .collect::<Vec<_>>()
+    };
+    assert!(flags(0).contains(&"partial-inhibition".to_string()), "{:?}", flags(0));
+    assert!(!flags(1).contains(&"partial-inhibition".to_string()), "{:?}", flags(1));
+}

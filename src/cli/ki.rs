@@ -323,6 +323,7 @@ fn convert_row(
     match outcome {
         Ok(conversion) => {
             fill(&mut row, &conversion, args.unit);
+            add_curve_flags(&mut row, table, record);
             (row, None)
         }
         Err(e) => {
@@ -365,6 +366,39 @@ fn fill(row: &mut KiRow, c: &Conversion, unit: ConcUnit) {
     row.messages = c.flags.iter().map(|w| w.message.clone()).collect();
     row.range = c.range.map(|(lo, hi)| Range { low: out(lo), high: out(hi), unit: unit.symbol().into() });
     row.interval_method = c.interval_method;
+}
+
+/// Flags of the dose-response fit (the `flags` column `kimech ic50` writes)
+/// that undermine the conversion itself: Cheng–Prusoff assumes a complete,
+/// well-defined inhibition curve (Cheng & Prusoff 1973).
+const CURVE_FLAGS_THAT_MATTER: [(&str, &str, &str); 4] = [
+    (
+        "partial-inhibition",
+        "partial-inhibition",
+        "the dose-response curve levels off above zero activity: the Cheng–Prusoff relations assume complete inhibition, so this constant is not a Ki of a full inhibitor",
+    ),
+    ("poor-fit", "ic50-poor-fit", "the dose-response fit was poor, so the IC50 behind this constant is unreliable"),
+    (
+        "not-converged",
+        "ic50-not-converged",
+        "the dose-response fit did not converge, so the IC50 behind this constant is unreliable",
+    ),
+    (
+        "hill-fixed",
+        "ic50-hill-fixed",
+        "the Hill coefficient was held at 1 in the dose-response fit, so the IC50 leans on that assumption",
+    ),
+];
+
+fn add_curve_flags(row: &mut KiRow, table: &Table, record: &Record) {
+    let Some(col) = table.find(&ColumnSpec::new("flags", &[])) else { return };
+    let upstream: Vec<&str> = table.text(record, col).split([';', ',', ' ']).filter(|f| !f.is_empty()).collect();
+    for (upstream_code, code, message) in CURVE_FLAGS_THAT_MATTER {
+        if upstream.contains(&upstream_code) && !row.flags.contains(&code) {
+            row.flags.push(code);
+            row.messages.push(message.to_string());
+        }
+    }
 }
 
 /// Reads the measurement and conditions of one row; the first bad cell is the row's error.

@@ -31,9 +31,7 @@ pub fn write_output(path: Option<&Path>, bytes: &[u8], inputs: &[&str]) -> Resul
     };
     refuse_inputs(path, inputs)?;
     let write_error = |source| Error::Write { path: path.to_path_buf(), source };
-    // A device or pipe (`-o /dev/null`, a FIFO) is written in place: renaming a
-    // temporary file over it would replace the device with a plain file.
-    if std::fs::metadata(path).is_ok_and(|m| !m.is_file() && !m.is_dir()) {
+    if is_special_file(path) {
         return std::fs::write(path, bytes).map_err(write_error);
     }
     let file_name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_else(|| "output".into());
@@ -43,6 +41,12 @@ pub fn write_output(path: Option<&Path>, bytes: &[u8], inputs: &[&str]) -> Resul
         let _ = std::fs::remove_file(&temp);
         write_error(source)
     })
+}
+
+/// A device or pipe (`-o /dev/null`, a FIFO) must be written in place:
+/// renaming a temporary file over it would replace it with a plain file.
+pub(crate) fn is_special_file(path: &Path) -> bool {
+    std::fs::metadata(path).is_ok_and(|m| !m.is_file() && !m.is_dir())
 }
 
 pub(crate) fn refuse_inputs(path: &Path, inputs: &[&str]) -> Result<()> {

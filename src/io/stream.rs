@@ -139,6 +139,13 @@ impl OutputSink {
             return Ok(OutputSink { writer: BufWriter::new(Box::new(std::io::stdout())), temp: None });
         };
         super::output::refuse_inputs(path, inputs)?;
+        if super::output::is_special_file(path) {
+            let device = std::fs::OpenOptions::new()
+                .write(true)
+                .open(path)
+                .map_err(|source| Error::Write { path: path.to_path_buf(), source })?;
+            return Ok(OutputSink { writer: BufWriter::new(Box::new(device)), temp: None });
+        }
         let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_else(|| "output".into());
         let temp = path.with_file_name(format!(".{name}.{}.tmp", std::process::id()));
         let file = std::fs::File::create(&temp).map_err(|source| Error::Write { path: path.to_path_buf(), source })?;
