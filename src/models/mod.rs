@@ -2,10 +2,11 @@
 //! analytic Jacobian and how to guess a start from data.
 
 pub mod inhibition;
-pub mod logistic;
 pub mod michaelis_menten;
 pub mod polynomial;
 
-pub use logistic::{Dose, Logistic, Morrison};
 pub use michaelis_menten::MichaelisMenten;
 pub use polynomial::Polynomial;
+pub mod logistic;
+
+pub use logistic::{Dose, Logistic, Morrison};
