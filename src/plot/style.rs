@@ -100,3 +100,34 @@ pub fn shape(i: usize) -> Shape {
 pub fn hex(c: RGBColor) -> String {
     format!("#{:02X}{:02X}{:02X}", c.0, c.1, c.2)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Grey level of a colour (ITU-R BT.709 luma weights).
+    fn grey(c: RGBColor) -> f64 {
+        0.2126 * c.0 as f64 + 0.7152 * c.1 as f64 + 0.0722 * c.2 as f64
+    }
+
+    #[test]
+    fn series_stay_apart_in_colour_and_in_grey() {
+        for i in 0..8 {
+            for j in 0..i {
+                assert_ne!(hex(colour(i)), hex(colour(j)));
+                // Printed in grey, two series may look alike (orange and sky blue do:
+                // 163 vs 163); their markers must then differ, and all eight do.
+                assert_ne!(
+                    shape(i),
+                    shape(j),
+                    "series {i} and {j} (grey {:.0} / {:.0})",
+                    grey(colour(i)),
+                    grey(colour(j))
+                );
+            }
+        }
+        // The palette is Okabe & Ito's (2008): spot-check two of its published values.
+        assert_eq!(hex(colour(0)), "#0072B2");
+        assert_eq!(hex(colour(1)), "#D55E00");
+    }
+}
