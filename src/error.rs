@@ -102,6 +102,14 @@ pub enum Error {
     /// Results could not be serialised (a bug: every result type is serialisable).
     #[error("could not serialise the results: {0}")]
     Serialise(String),
+    /// A chart could not be drawn (a bug, or a value the chart cannot place).
+    #[error("could not draw {what}: {problem}")]
+    Plot {
+        /// The chart.
+        what: String,
+        /// What went wrong, from the drawing library.
+        problem: String,
+    },
     /// The numerical engine was asked something impossible (a caller bug or degenerate data).
     #[error("fit: {0}")]
     Fit(String),

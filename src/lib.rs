@@ -15,6 +15,7 @@ pub mod error;
 pub mod fit;
 pub mod io;
 pub mod models;
+pub mod plot;
 pub mod report;
 pub mod units;
 

@@ -90,6 +90,44 @@ pub struct KmResult {
     pub double_reciprocal: DoubleReciprocal,
     /// Warnings with stable codes.
     pub warnings: Vec<Warning>,
+    /// The observations, kept for pictures; not serialised.
+    #[serde(skip)]
+    pub observations: Observations,
+    /// Covariance of (Vmax, Km) on the natural scale, scaled by s²; for the
+    /// confidence band of the curve. Not serialised.
+    #[serde(skip)]
+    pub covariance: Option<[[f64; 2]; 2]>,
+}
+
+/// The data a series was fitted to, in the reporting units.
+#[derive(Debug, Clone, Default)]
+pub struct Observations {
+    /// Substrate concentrations.
+    pub substrate: Vec<f64>,
+    /// Observed rates.
+    pub rate: Vec<f64>,
+}
+
+impl KmResult {
+    /// The fitted rate v̂(S) = Vmax·S/(Km + S).
+    pub fn rate_at(&self, s: f64) -> f64 {
+        self.params.vmax.value * s / (self.params.km.value + s)
+    }
+
+    /// A pointwise confidence interval for the mean rate at `s`, by the delta
+    /// method: v̂ ± t(df)·√(gᵀ C g) with g = ∂v/∂(Vmax, Km) and C the scaled
+    /// covariance (Bates & Watts, *Nonlinear Regression Analysis and Its
+    /// Applications*, 1988, §2.3.2). `None` when the covariance is missing.
+    pub fn rate_band(&self, s: f64) -> Option<(f64, f64)> {
+        let c = self.covariance?;
+        let (vmax, km) = (self.params.vmax.value, self.params.km.value);
+        let g = [s / (km + s), -vmax * s / ((km + s) * (km + s))];
+        let var = g[0] * g[0] * c[0][0] + 2.0 * g[0] * g[1] * c[0][1] + g[1] * g[1] * c[1][1];
+        let t = crate::fit::intervals::t_quantile(self.confidence, self.df)?;
+        let half = t * var.max(0.0).sqrt();
+        let v = self.rate_at(s);
+        (half.is_finite()).then_some((v - half, v + half))
+    }
 }
 
 /// Estimated constants of one series.
@@ -182,6 +220,8 @@ pub fn analyse(series: &Series, units: &Units, options: &Options) -> Result<KmRe
         params: KmParams { vmax: vmax_p, km: km_p, kcat, kcat_km },
         double_reciprocal: DoubleReciprocal { slope: km / vmax, y_intercept: 1.0 / vmax, x_intercept: -1.0 / km },
         warnings,
+        observations: Observations { substrate: series.substrate.clone(), rate: series.rate.clone() },
+        covariance: best.covariance.as_ref().map(|c| [[c[(0, 0)], c[(0, 1)]], [c[(1, 0)], c[(1, 1)]]]),
     })
 }
 

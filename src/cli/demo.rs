@@ -2,44 +2,82 @@
 //! stage's output is parsed as the next stage's input, exactly as a user
 //! would pipe the commands.
 
+use std::path::PathBuf;
+
 use super::{OutputArgs, ic50, ki, km, mode, rank, rates};
 use crate::error::Result;
 use crate::io::{Format, Table};
+use crate::plot::html::{Block, Page, Section, without_caution};
 
 /// Invented progress curves (see demo-compounds/README.md).
 const PROGRESS_CURVES: &str = include_str!("../../demo-compounds/progress-curves.csv");
 
-/// The invented IC50 table of a second assay at other conditions (see its header comments).
-const SECOND_ASSAY: &str = include_str!("../../demo-compounds/second-assay-ic50.csv");
+/// The invented rate matrix of five compounds (demo-compounds/make_rate_matrix.py).
+const RATE_MATRIX: &str = include_str!("../../demo-compounds/rate-matrix.csv");
 
 /// The invented dose-response plates (demo-compounds/make_dose_response.py).
 const DOSE_RESPONSE: &str = include_str!("../../demo-compounds/dose-response.csv");
 
-/// The invented rate matrix of five compounds (demo-compounds/make_rate_matrix.py).
-const RATE_MATRIX: &str = include_str!("../../demo-compounds/rate-matrix.csv");
+/// The invented IC50 table of a second assay at other conditions (see its header comments).
+const SECOND_ASSAY: &str = include_str!("../../demo-compounds/second-assay-ic50.csv");
 
-/// Run every stage on the invented demo scenario and print a summary.
+/// Where the report goes when `--report` is not given.
+const DEFAULT_REPORT: &str = "kimech-demo-report.html";
+
+/// Run every stage on the invented demo scenario, print a summary and write
+/// an HTML report with the tables and charts.
 #[derive(Debug, Clone, clap::Args)]
-pub struct Args {}
+pub struct Args {
+    /// Write the HTML report here (default: kimech-demo-report.html in the current directory).
+    #[arg(long, value_name = "FILE")]
+    pub report: Option<PathBuf>,
+}
 
 fn stdout_table() -> OutputArgs {
     OutputArgs { format: Format::Table, output: None }
 }
 
 /// Runs the demo.
-pub fn run(_args: &Args) -> Result<()> {
+pub fn run(args: &Args) -> Result<()> {
     println!("kimech demo — an invented scenario: the fictional enzyme veridase-7 (VRD7)");
     println!("and fictional compounds KX-101 … (see demo-compounds/README.md). Nothing here is real data.\n");
-    let rate_table = rates_stage()?;
-    let km_status = km_stage(&rate_table);
-    let mode_status = mode_stage();
-    let (ic50_csv, ic50_status) = dose_response_stage()?;
-    let ki_status = ki_rank_stage(&ic50_csv);
+    let mut sections = Vec::new();
+    let rate_table = rates_stage(&mut sections)?;
+    let km_status = km_stage(&rate_table, &mut sections);
+    let mode_status = mode_stage(&mut sections);
+    let (ic50_csv, ic50_status) = dose_response_stage_into(&mut sections)?;
+    let ki_status = ki_rank_stage(&ic50_csv, &mut sections);
+    let path = args.report.clone().unwrap_or_else(|| PathBuf::from(DEFAULT_REPORT));
+    write_report(&path, sections)?;
+    println!("\nReport written to {}", path.display());
     km_status.and(mode_status).and(ic50_status).and(ki_status)
 }
 
+/// Writes the demo's report page.
+fn write_report(path: &std::path::Path, sections: Vec<Section>) -> Result<()> {
+    let page = Page {
+        title: "kimech demo report — veridase-7 (VRD7)".into(),
+        intro: vec![
+            "An invented scenario: the fictional enzyme veridase-7 (VRD7) and fictional compounds KX-101 …; nothing here is real data.".into(),
+            "Each section shows the command that produced it, its tables, warnings and charts.".into(),
+        ],
+        sections,
+        caution: super::CAUTION.to_string(),
+    };
+    crate::io::write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[])
+}
+
+/// A section holding a command's human output as it is.
+fn text_section(heading: &str, command: &str, text: &str) -> Section {
+    Section {
+        heading: heading.into(),
+        command: Some(command.into()),
+        blocks: vec![Block::Preformatted(without_caution(text))],
+    }
+}
+
 /// Stage 1: progress curves → initial rates; returns the rates as the table `km` reads.
-fn rates_stage() -> Result<Table> {
+fn rates_stage(sections: &mut Vec<Section>) -> Result<Table> {
     println!("Stage 1 — progress curves → initial rates");
     println!("  $ kimech rates demo-compounds/progress-curves.csv --format csv -o rates.csv\n");
     let input = Table::parse("demo-compounds/progress-curves.csv", PROGRESS_CURVES.as_bytes(), b',')?;
@@ -52,14 +90,20 @@ fn rates_stage() -> Result<Table> {
         output: stdout_table(),
     };
     let outcome = rates::process(&input, &args)?;
-    print!("{}", String::from_utf8_lossy(&rates::render(&outcome, Format::Table)?));
+    let text = String::from_utf8_lossy(&rates::render(&outcome, Format::Table)?).into_owned();
+    print!("{text}");
     println!();
+    sections.push(text_section(
+        "Initial rates",
+        "kimech rates demo-compounds/progress-curves.csv --format csv -o rates.csv",
+        &text,
+    ));
     super::finish(&outcome.failures, outcome.total, "curves")?;
     Table::parse("rates.csv", &rates::render(&outcome, Format::Csv)?, b',')
 }
 
 /// Stage 2: initial rates → Km, Vmax, kcat.
-fn km_stage(rate_table: &Table) -> Result<()> {
+fn km_stage(rate_table: &Table, sections: &mut Vec<Section>) -> Result<()> {
     println!("Stage 2 — initial rates → Km, Vmax, kcat");
     println!("  $ kimech km rates.csv --enzyme \"5 nM\"\n");
     let args = km::Args {
@@ -69,41 +113,78 @@ fn km_stage(rate_table: &Table) -> Result<()> {
         weighting: km::WeightingArg::None,
         confidence: 0.95,
         output: stdout_table(),
+        pictures: super::PictureArgs::default(),
     };
     let outcome = km::process(rate_table, &args)?;
     print!("{}", km::human(&outcome.results));
+    sections.push(crate::plot::km::section(&outcome.results, &outcome.failures, &km::command_line(&args))?);
     super::finish(&outcome.failures, outcome.total, "series")
 }
 
-/// The file name the dose-response stage's CSV is shown under.
-const IC50_CSV: &str = "dose-response-ic50.csv";
-
-/// Stages 5 and 6: IC50 tables (the plates' and a second assay's) → Ki → ranking.
-fn ki_rank_stage(ic50_csv: &str) -> Result<()> {
-    let second = "demo-compounds/second-assay-ic50.csv";
-    ki_and_rank(&[(IC50_CSV, ic50_csv, ki_args(IC50_CSV)), (second, SECOND_ASSAY, ki_args(second))])
+/// Stage 3: the [S]×[I] rate matrix of five invented compounds → mechanism, Ki, α.
+fn mode_stage(sections: &mut Vec<Section>) -> Result<()> {
+    println!("\nStage 3 — [S]×[I] rate matrices → mechanism, Ki, α (five invented compounds, one per mechanism)");
+    println!("  $ kimech mode demo-compounds/rate-matrix.csv\n");
+    let path = "demo-compounds/rate-matrix.csv";
+    let table = crate::io::Table::parse(path, RATE_MATRIX.as_bytes(), b',')?;
+    let args = mode::Args {
+        file: path.into(),
+        substrate_unit: None,
+        inhibitor_unit: None,
+        weighting: km::WeightingArg::None,
+        criterion: mode::CriterionArg::Aicc,
+        alpha_level: 0.05,
+        confidence: 0.95,
+        output: stdout_table(),
+        pictures: super::PictureArgs::default(),
+    };
+    let outcome = mode::analyse_with_matrices(&table, &args)?;
+    let results: Vec<_> = outcome.pairs.iter().map(|(r, _)| r.clone()).collect();
+    print!("{}", mode::human(&results));
+    sections.push(mode::report_section(&outcome, &format!("kimech mode {path}"))?);
+    super::finish(&outcome.failures, outcome.total, "compounds")
 }
 
 /// Stage 4: dose-response plates → IC50 table. Prints the human report and
 /// returns the CSV a user would pass on to `kimech ki`, with the stage's status.
 pub fn dose_response_stage() -> Result<(String, Result<()>)> {
+    dose_response_stage_into(&mut Vec::new())
+}
+
+/// [`dose_response_stage`], adding the report section (table and thumbnails).
+pub fn dose_response_stage_into(sections: &mut Vec<Section>) -> Result<(String, Result<()>)> {
     let name = "demo-compounds/dose-response.csv";
     println!("\nStage 4 — dose-response plates → IC50, Hill coefficient, quality flags (Z′ per plate)");
     println!("  $ kimech ic50 {name} --normalise");
     println!("  $ kimech ic50 {name} --normalise --format csv -o {IC50_CSV}\n");
     let mut args = ic50::Args::new(name, Format::Table);
     args.normalise = true;
-    let (human, summary) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &args)?;
+    let (human, summary, pictures) = ic50::run_bytes_with_pictures(name, DOSE_RESPONSE.as_bytes(), &args)?;
     print!("{}", String::from_utf8_lossy(&human));
+    sections.push(pictures.section(&format!("kimech ic50 {name} --normalise"))?);
     args.output.format = Format::Csv;
     let (csv, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &args)?;
     Ok((String::from_utf8_lossy(&csv).into_owned(), summary.into_result()))
+}
+
+/// The file name the dose-response stage's CSV is shown under.
+const IC50_CSV: &str = "dose-response-ic50.csv";
+
+/// Stages 5 and 6: IC50 tables (the plates' and a second assay's) → Ki → ranking.
+fn ki_rank_stage(ic50_csv: &str, sections: &mut Vec<Section>) -> Result<()> {
+    let second = "demo-compounds/second-assay-ic50.csv";
+    ki_and_rank_into(&[(IC50_CSV, ic50_csv, ki_args(IC50_CSV)), (second, SECOND_ASSAY, ki_args(second))], sections)
 }
 
 /// The `ki` and `rank` stages: each IC50 table (name, CSV text, `ki` options) goes through
 /// `kimech ki` and its CSV output, and all of them together through `kimech rank`,
 /// exactly as a user would pipe them.
 pub fn ki_and_rank(tables: &[(&str, &str, ki::Args)]) -> Result<()> {
+    ki_and_rank_into(tables, &mut Vec::new())
+}
+
+/// [`ki_and_rank`], adding a report section per stage (the ranking with its charts).
+pub fn ki_and_rank_into(tables: &[(&str, &str, ki::Args)], sections: &mut Vec<Section>) -> Result<()> {
     let mut ki_csv = Vec::new();
     let mut failures = Vec::new();
     let mut total = 0;
@@ -112,7 +193,9 @@ pub fn ki_and_rank(tables: &[(&str, &str, ki::Args)]) -> Result<()> {
         println!("  $ kimech ki {name}\n");
         let table = crate::io::Table::parse(name, text.as_bytes(), b',')?;
         let (rows, carried, row_failures) = ki::convert_table(&table, args)?;
-        print!("{}", ki::human(&rows));
+        let human = ki::human(&rows);
+        print!("{human}");
+        sections.push(text_section(&format!("Ki from {name}"), &format!("kimech ki {name}"), &human));
         total += rows.len();
         failures.extend(row_failures);
         ki_csv.push((
@@ -135,10 +218,10 @@ pub fn ki_and_rank(tables: &[(&str, &str, ki::Args)]) -> Result<()> {
     }
     let options = crate::analysis::rank::Options { versus: Some("VRD3".into()), confidence: 0.95 };
     let ranked = crate::analysis::rank::aggregate(&entries, &options);
-    print!(
-        "{}",
-        String::from_utf8_lossy(&rank::render(&ranked, crate::units::ConcUnit::Nanomolar, crate::io::Format::Table)?)
-    );
+    let unit = crate::units::ConcUnit::Nanomolar;
+    print!("{}", String::from_utf8_lossy(&rank::render(&ranked, unit, crate::io::Format::Table)?));
+    let command = format!("kimech rank {} --versus VRD3", names.join(" "));
+    sections.push(crate::plot::rank::section(&ranked, unit, &failures, &command)?);
     println!("(`kimech rank … --format csv` writes the same rows as the registry export; columns in README.md.)");
     super::finish(&failures, total, "rows")
 }
@@ -163,25 +246,4 @@ pub fn ki_args(name: &str) -> ki::Args {
         confidence: 0.95,
         output: stdout_table(),
     }
-}
-
-/// Stage 2: the [S]×[I] rate matrix of five invented compounds → mechanism, Ki, α.
-fn mode_stage() -> Result<()> {
-    println!("\nStage 3 — [S]×[I] rate matrices → mechanism, Ki, α (five invented compounds, one per mechanism)");
-    println!("  $ kimech mode demo-compounds/rate-matrix.csv\n");
-    let path = "demo-compounds/rate-matrix.csv";
-    let table = crate::io::Table::parse(path, RATE_MATRIX.as_bytes(), b',')?;
-    let args = mode::Args {
-        file: path.into(),
-        substrate_unit: None,
-        inhibitor_unit: None,
-        weighting: km::WeightingArg::None,
-        criterion: mode::CriterionArg::Aicc,
-        alpha_level: 0.05,
-        confidence: 0.95,
-        output: stdout_table(),
-    };
-    let (results, failures, total) = mode::analyse_table(&table, &args)?;
-    print!("{}", mode::human(&results));
-    super::finish(&failures, total, "compounds")
 }

@@ -87,6 +87,9 @@ pub struct Args {
     /// Output format and destination.
     #[command(flatten)]
     pub output: OutputArgs,
+    /// Pictures (one SVG per compound and a thumbnail grid) and the HTML report.
+    #[command(flatten)]
+    pub pictures: super::PictureArgs,
 }
 
 impl Args {
@@ -110,6 +113,7 @@ impl Args {
             min_z_prime: 0.5,
             batch_size: 2048,
             output: OutputArgs { format, output: None },
+            pictures: super::PictureArgs::default(),
         }
     }
 
@@ -181,9 +185,88 @@ pub fn run(args: &Args) -> Result<()> {
         Source::Path(args.file.clone())
     };
     let mut sink = OutputSink::create(args.output.output.as_deref(), &[&args.file])?;
-    let summary = run_source(&source, args, &mut sink, true)?;
+    let wanted = args.pictures.plot.is_some() || args.pictures.report.is_some();
+    let mut pictures = wanted.then(|| Pictures::new(args));
+    let summary = run_source_with(&source, args, &mut sink, true, pictures.as_mut())?;
     sink.commit()?;
+    if let Some(p) = &pictures {
+        p.finish(args)?;
+    }
     summary.into_result()
+}
+
+/// Thumbnails shown in the grid and the report at most (flagged first).
+const GALLERY_CAP: usize = 60;
+/// Compounds listed in the report's table at most.
+const REPORT_ROWS: usize = 500;
+
+/// What `--plot` and `--report` collect while the curves stream past: every
+/// curve's SVG is written into the plot directory as it is fitted; a capped
+/// gallery is kept for the grid and the report.
+pub struct Pictures {
+    /// Thumbnails and table rows.
+    pub gallery: crate::plot::ic50::Gallery,
+    /// The plate table (with `--normalise`).
+    pub plates: Option<String>,
+    /// Messages of compounds that failed.
+    pub failures: Vec<String>,
+    names: crate::plot::files::Names,
+    plot_dir: Option<PathBuf>,
+    input: String,
+}
+
+impl Pictures {
+    /// Empty, for the run `args` describe.
+    pub fn new(args: &Args) -> Pictures {
+        let mut names = crate::plot::files::Names::new("ic50");
+        // Reserved first, so a compound named "overview" cannot take the grid's name.
+        let _ = names.next(Some("overview"));
+        Pictures {
+            gallery: crate::plot::ic50::Gallery::new(GALLERY_CAP, REPORT_ROWS),
+            plates: None,
+            failures: Vec::new(),
+            names,
+            plot_dir: args.pictures.plot.clone(),
+            input: args.file.clone(),
+        }
+    }
+
+    /// Adds a fitted curve: its SVG goes to the plot directory now.
+    fn add(&mut self, curve: Curve, r: Ic50Result) -> Result<()> {
+        if let Some(dir) = &self.plot_dir {
+            let g = &self.gallery;
+            let svg = crate::plot::ic50::figure(&r, &curve, &g.unit, &g.response, g.et)?;
+            let name = self.names.next(Some(&r.compound));
+            crate::plot::files::write_plots(dir, &[(name, svg.text)], &[&self.input])?;
+        }
+        self.gallery.add(curve, r);
+        Ok(())
+    }
+
+    /// Writes the grid into the plot directory and the report page.
+    fn finish(&self, args: &Args) -> Result<()> {
+        if let Some(dir) = &self.plot_dir
+            && !self.gallery.shown().is_empty()
+        {
+            let grid = self.gallery.grid()?;
+            crate::plot::files::write_plots(dir, &[("ic50-overview.svg".into(), grid.text)], &[&args.file])?;
+        }
+        if let Some(path) = &args.pictures.report {
+            let page = crate::plot::html::Page {
+                title: format!("kimech ic50 — {}", args.file),
+                intro: vec![format!("Dose-response fits of {} compound(s) from {}.", self.gallery.total, args.file)],
+                sections: vec![self.section(&format!("kimech ic50 {}", args.file))?],
+                caution: CAUTION.to_string(),
+            };
+            crate::io::write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[&args.file])?;
+        }
+        Ok(())
+    }
+
+    /// The report section of what was collected.
+    pub fn section(&self, command: &str) -> Result<crate::plot::html::Section> {
+        crate::plot::ic50::section(&self.gallery, self.plates.as_deref(), &self.failures, command)
+    }
 }
 
 /// What a run did, for the exit status.
@@ -209,6 +292,17 @@ impl Summary {
 /// Reads, fits and writes everything from `source` to `out`; messages about
 /// failed compounds go to stderr as they are met (in input order).
 pub fn run_source(source: &Source, args: &Args, out: &mut dyn Write, progress: bool) -> Result<Summary> {
+    run_source_with(source, args, out, progress, None)
+}
+
+/// [`run_source`], also handing every fitted curve to `pictures`.
+pub fn run_source_with(
+    source: &Source,
+    args: &Args,
+    out: &mut dyn Write,
+    progress: bool,
+    mut pictures: Option<&mut Pictures>,
+) -> Result<Summary> {
     check_options(args)?;
     let thresholds = args.thresholds();
     let mut summary = Summary::default();
@@ -219,6 +313,9 @@ pub fn run_source(source: &Source, args: &Args, out: &mut dyn Write, progress: b
     let mut writer = Writer::new(args.output.format, &grouper.layout, args.enzyme.is_some(), args.confidence);
     if let Some(p) = &plates {
         writer.plates(out, &p.qc)?;
+        if let Some(pics) = pictures.as_deref_mut() {
+            pics.plates = Some(human_plates(&p.qc));
+        }
     }
     let response_unit = if args.normalise {
         Some("%".to_string())
@@ -242,12 +339,33 @@ pub fn run_source(source: &Source, args: &Args, out: &mut dyn Write, progress: b
     while !current.is_empty() {
         let unit = grouper.unit.unwrap_or(ConcUnit::Molar);
         let options = options_for(unit);
+        // Pictures need the curves after the fit: keep a copy only when asked.
+        let kept: Vec<Option<Curve>> = match pictures {
+            Some(_) => current.iter().map(|c| c.as_ref().ok().cloned()).collect(),
+            None => Vec::new(),
+        };
         let format = args.output.format;
         let morrison = args.enzyme.is_some();
         let (next, results) =
             rayon::join(|| grouper.next_batch(batch_size), || fit_batch(current, &options, format, morrison));
         summary.total += results.len();
         writer.batch(out, &results, unit)?;
+        if let Some(pics) = pictures.as_deref_mut() {
+            pics.gallery.unit = unit.symbol().to_string();
+            pics.gallery.et = options.enzyme;
+            pics.gallery.response = match &response_unit {
+                Some(u) if u == "%" => "activity (%)".into(),
+                Some(u) => format!("response ({u})"),
+                None => "response (unit not given)".into(),
+            };
+            for (curve, (r, _)) in kept.into_iter().zip(&results) {
+                match (curve, r) {
+                    (Some(c), Ok(r)) => pics.add(c, r.clone())?,
+                    (_, Err(e)) => pics.failures.push(e.to_string()),
+                    (None, Ok(_)) => {}
+                }
+            }
+        }
         for (result, _) in results {
             match result {
                 // A missing unit is a property of the file, not of one compound: stop once.
@@ -1048,4 +1166,12 @@ pub fn run_bytes(name: &str, bytes: &'static [u8], args: &Args) -> Result<(Vec<u
     let mut out = Vec::new();
     let summary = run_source(&Source::Bytes(bytes, name.to_string()), args, &mut out, false)?;
     Ok((out, summary))
+}
+
+/// [`run_bytes`], also collecting the pictures (for the demo's report).
+pub fn run_bytes_with_pictures(name: &str, bytes: &'static [u8], args: &Args) -> Result<(Vec<u8>, Summary, Pictures)> {
+    let mut out = Vec::new();
+    let mut pictures = Pictures::new(args);
+    let summary = run_source_with(&Source::Bytes(bytes, name.to_string()), args, &mut out, false, Some(&mut pictures))?;
+    Ok((out, summary, pictures))
 }

@@ -4,7 +4,7 @@ use std::collections::HashMap;
 
 use serde::Serialize;
 
-use super::{CAUTION, OutputArgs, finish, parse_confidence, parse_flag_concentration};
+use super::{CAUTION, OutputArgs, PictureArgs, finish, parse_confidence, parse_flag_concentration};
 use crate::analysis::km::{Enzyme, KmResult, Options, Series, Units, analyse};
 use crate::error::{Error, Result};
 use crate::fit::{FitSettings, Weighting};
@@ -39,6 +39,9 @@ pub struct Args {
     /// Output format and destination.
     #[command(flatten)]
     pub output: OutputArgs,
+    /// Pictures and the HTML report.
+    #[command(flatten)]
+    pub pictures: PictureArgs,
 }
 
 /// `--weighting` values.
@@ -75,7 +78,54 @@ pub fn run(args: &Args) -> Result<()> {
     let outcome = process(&table, args)?;
     let bytes = render(&outcome.results, args.output.format)?;
     write_output(args.output.output.as_deref(), &bytes, &[&args.file])?;
+    write_pictures(&outcome, args)?;
     finish(&outcome.failures, outcome.total, "series")
+}
+
+/// Writes `--plot` SVGs (one per series) and the `--report` page.
+fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
+    if let Some(dir) = &args.pictures.plot {
+        let ids: Vec<Option<&str>> = outcome.results.iter().map(|r| r.series.as_deref()).collect();
+        let names = crate::plot::files::unique_names("km", &ids);
+        let mut files = Vec::with_capacity(names.len());
+        for (name, r) in names.into_iter().zip(&outcome.results) {
+            files.push((name, crate::plot::km::series_figure(r)?.text));
+        }
+        crate::plot::files::write_plots(dir, &files, &[&args.file])?;
+    }
+    if let Some(path) = &args.pictures.report {
+        let section = crate::plot::km::section(&outcome.results, &outcome.failures, &command_line(args))?;
+        let page = crate::plot::html::Page {
+            title: format!("kimech km — {}", args.file),
+            intro: vec![format!("Michaelis–Menten fits of {} series from {}.", outcome.total, args.file)],
+            sections: vec![section],
+            caution: CAUTION.to_string(),
+        };
+        write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[&args.file])?;
+    }
+    Ok(())
+}
+
+/// The command line that reproduces this run's numbers, for the report.
+pub fn command_line(args: &Args) -> String {
+    let mut line = format!("kimech km {}", args.file);
+    if let Some(u) = args.substrate_unit {
+        line.push_str(&format!(" --substrate-unit {}", u.symbol()));
+    }
+    if let Some(e) = &args.enzyme {
+        let value = format!("{:.6}", e.unit.from_molar(e.molar));
+        let value = value.trim_end_matches('0').trim_end_matches('.');
+        line.push_str(&format!(" --enzyme \"{value} {}\"", e.unit.symbol()));
+    }
+    match args.weighting {
+        WeightingArg::None => {}
+        WeightingArg::Relative => line.push_str(" --weighting relative"),
+        WeightingArg::Sd => line.push_str(" --weighting sd"),
+    }
+    if (args.confidence - 0.95).abs() > 1e-12 {
+        line.push_str(&format!(" --confidence {}", args.confidence));
+    }
+    line
 }
 
 /// What one run produced: results for the series that could be fitted and

@@ -81,6 +81,17 @@ pub struct OutputArgs {
     pub output: Option<PathBuf>,
 }
 
+/// Picture options of the commands that fit curves.
+#[derive(Debug, Clone, Default, clap::Args)]
+pub struct PictureArgs {
+    /// Write one SVG chart per series or compound into this directory (created if missing).
+    #[arg(long, value_name = "DIR")]
+    pub plot: Option<PathBuf>,
+    /// Write a self-contained HTML report (tables, warnings and charts) to this file.
+    #[arg(long, value_name = "FILE")]
+    pub report: Option<PathBuf>,
+}
+
 /// Parses a confidence level strictly between 0 and 1.
 pub fn parse_confidence(text: &str) -> std::result::Result<f64, String> {
     let c: f64 = text.parse().map_err(|_| format!("'{text}' is not a number; use e.g. 0.95"))?;

@@ -51,6 +51,9 @@ pub struct Args {
     /// Output format and destination.
     #[command(flatten)]
     pub output: OutputArgs,
+    /// Pictures (one SVG per compound) and the HTML report.
+    #[command(flatten)]
+    pub pictures: super::PictureArgs,
 }
 
 /// Parses a significance level strictly between 0 and 1.
@@ -87,10 +90,68 @@ pub struct Report {
 /// Runs `kimech mode`.
 pub fn run(args: &Args) -> Result<()> {
     let table = Table::read(&args.file)?;
-    let (results, failures, total) = analyse_table(&table, args)?;
+    let outcome = analyse_with_matrices(&table, args)?;
+    let results: Vec<ModeResult> = outcome.pairs.iter().map(|(r, _)| r.clone()).collect();
     let bytes = render(&results, args.output.format)?;
     write_output(args.output.output.as_deref(), &bytes, &[&args.file])?;
-    finish(&failures, total, "compounds")
+    write_pictures(&outcome, args)?;
+    finish(&outcome.failures, outcome.total, "compounds")
+}
+
+/// A run's results, each with the matrix it was fitted to (for pictures).
+pub struct Outcome {
+    /// (result, matrix) per analysed compound, in input order.
+    pub pairs: Vec<(ModeResult, Matrix)>,
+    /// Units of the matrices.
+    pub units: Units,
+    /// Compounds that could not be read or analysed.
+    pub failures: Vec<Error>,
+    /// Compounds in the input.
+    pub total: usize,
+}
+
+/// [`analyse_table`], keeping each compound's matrix beside its result.
+pub fn analyse_with_matrices(table: &Table, args: &Args) -> Result<Outcome> {
+    let (matrices, units, mut failures) = read_matrices(table, args)?;
+    let total = matrices.len() + failures.len();
+    let opts = options(args);
+    let mut pairs = Vec::new();
+    for m in matrices {
+        match analyse(&m, &units, &opts) {
+            Ok(r) => pairs.push((r, m)),
+            Err(e) => failures.push(e),
+        }
+    }
+    Ok(Outcome { pairs, units, failures, total })
+}
+
+/// The report section of a run: per compound its text block and figure.
+pub fn report_section(outcome: &Outcome, command: &str) -> Result<crate::plot::html::Section> {
+    let pairs: Vec<(&ModeResult, &Matrix)> = outcome.pairs.iter().map(|(r, m)| (r, m)).collect();
+    crate::plot::mode::section(&pairs, &outcome.units, block, &outcome.failures, command)
+}
+
+/// Writes `--plot` SVGs (one per compound) and the `--report` page.
+fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
+    if let Some(dir) = &args.pictures.plot {
+        let ids: Vec<Option<&str>> = outcome.pairs.iter().map(|(r, _)| r.compound.as_deref()).collect();
+        let names = crate::plot::files::unique_names("mode", &ids);
+        let mut files = Vec::with_capacity(names.len());
+        for (name, (r, m)) in names.into_iter().zip(&outcome.pairs) {
+            files.push((name, crate::plot::mode::figure(r, m, &outcome.units)?.text));
+        }
+        crate::plot::files::write_plots(dir, &files, &[&args.file])?;
+    }
+    if let Some(path) = &args.pictures.report {
+        let page = crate::plot::html::Page {
+            title: format!("kimech mode — {}", args.file),
+            intro: vec![format!("Inhibition mechanism of {} compound(s) from {}.", outcome.total, args.file)],
+            sections: vec![report_section(outcome, &format!("kimech mode {}", args.file))?],
+            caution: CAUTION.to_string(),
+        };
+        write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[&args.file])?;
+    }
+    Ok(())
 }
 
 /// The analysis options the arguments ask for.

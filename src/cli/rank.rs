@@ -87,6 +87,9 @@ pub struct Args {
     /// Output format and destination (csv is the registry export).
     #[command(flatten)]
     pub output: OutputArgs,
+    /// Pictures (one SVG per target) and the HTML report.
+    #[command(flatten)]
+    pub pictures: super::PictureArgs,
 }
 
 /// The JSON document: `{"unit": …, "results": [...]}`; Ki values in mol/L
@@ -129,7 +132,36 @@ pub fn run(args: &Args) -> Result<()> {
     let bytes = render(&rows, args.unit, args.output.format)?;
     let inputs: Vec<&str> = args.files.iter().map(String::as_str).collect();
     write_output(args.output.output.as_deref(), &bytes, &inputs)?;
+    write_pictures(&rows, &failures, args, &inputs)?;
     finish(&failures, total, "rows")
+}
+
+/// Writes `--plot` SVGs (one per target and endpoint) and the `--report` page.
+fn write_pictures(rows: &[RankRow], failures: &[Error], args: &Args, inputs: &[&str]) -> Result<()> {
+    if let Some(dir) = &args.pictures.plot {
+        let groups = crate::plot::rank::groups(rows);
+        let ids: Vec<String> = groups.iter().map(|((t, e), _)| format!("{t}-{e}")).collect();
+        let names = crate::plot::files::unique_names("rank", &ids.iter().map(|s| Some(s.as_str())).collect::<Vec<_>>());
+        let mut files = Vec::with_capacity(names.len());
+        for (name, ((target, endpoint), group)) in names.into_iter().zip(&groups) {
+            files.push((name, crate::plot::rank::group_figure(target, endpoint, group)?.text));
+        }
+        crate::plot::files::write_plots(dir, &files, inputs)?;
+    }
+    if let Some(path) = &args.pictures.report {
+        let mut command = format!("kimech rank {}", args.files.join(" "));
+        if let Some(v) = &args.versus {
+            command.push_str(&format!(" --versus {v}"));
+        }
+        let page = crate::plot::html::Page {
+            title: format!("kimech rank — {}", args.files.join(", ")),
+            intro: vec![format!("{} ranked rows from {}.", rows.len(), args.files.join(", "))],
+            sections: vec![crate::plot::rank::section(rows, args.unit, failures, &command)?],
+            caution: super::CAUTION.to_string(),
+        };
+        write_output(Some(path), crate::plot::html::render(&page).as_bytes(), inputs)?;
+    }
+    Ok(())
 }
 
 /// The version string written into every export.

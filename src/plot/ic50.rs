@@ -1,0 +1,201 @@
+//! Pictures and the report section for `kimech ic50`: each curve on a
+//! log-concentration axis with its fit, the IC50 marked with its interval
+//! (or drawn as a bound when it lies outside the tested range), qualifier
+//! and flags in the title; for a batch, a grid of thumbnails with the
+//! flagged curves first.
+
+use super::charts::{DoseCurve, dose_panel};
+use super::html::{Block, Section};
+use super::xy::{Direction, XyChart};
+use super::{PANEL, Svg, THUMBNAIL};
+use crate::analysis::ic50::{Curve, Ic50Result};
+use crate::error::Result;
+use crate::fit::Model;
+use crate::io::output::sig;
+use crate::models::logistic::{Dose, Logistic, Morrison};
+use crate::units::Qualifier;
+
+/// The fitted response y(x) of a result, when its constants describe the
+/// fit (a bounded IC50 is the bound, not the fitted value: no curve then).
+fn fitted(r: &Ic50Result, et: Option<f64>) -> Option<Box<dyn Fn(f64) -> f64>> {
+    if r.qualifier.is_bound() || !r.converged {
+        return None;
+    }
+    match (r.model, et) {
+        ("morrison", Some(et)) => {
+            let theta = [r.ki_app.as_ref()?.value, r.upper.value];
+            Some(Box::new(move |x| Morrison { et }.value(&theta, &x)))
+        }
+        ("logistic", _) => {
+            let theta = [r.ic50.value, r.hill.as_ref()?.value, r.lower.value, r.upper.value];
+            Some(Box::new(move |x| Logistic.value(&theta, &Dose::new(x))))
+        }
+        _ => None,
+    }
+}
+
+fn direction(q: Qualifier) -> Option<Direction> {
+    match q {
+        Qualifier::Greater | Qualifier::AtLeast => Some(Direction::Above),
+        Qualifier::Less | Qualifier::AtMost => Some(Direction::Below),
+        _ => None,
+    }
+}
+
+/// "IC50 = 0.31 uM (0.25–0.38)", or "IC50 > 10 uM" for a bound.
+fn ic50_text(r: &Ic50Result, unit: &str) -> String {
+    let p = &r.ic50;
+    if r.qualifier.is_bound() {
+        return format!("IC50 {} {} {unit}", r.qualifier, sig(p.value, 3));
+    }
+    let end = |v: Option<f64>| v.map_or("unbounded".into(), |v| sig(v, 3));
+    format!("IC50 = {} {unit} ({}–{})", sig(p.value, 3), end(p.low), end(p.high))
+}
+
+/// The panel of one curve.
+pub fn panel(r: &Ic50Result, curve: &Curve, unit: &str, response: &str, et: Option<f64>) -> XyChart {
+    let f = fitted(r, et);
+    let mid = (r.upper.value + r.lower.value) / 2.0;
+    let y_at_ic50 = f.as_ref().map_or(mid, |f| f(r.ic50.value));
+    let hill = r.hill.as_ref().map_or(String::new(), |h| format!(" · Hill {}", sig(h.value, 2)));
+    let flags = if r.flags.is_empty() { String::new() } else { format!(" · flags: {}", r.flags.join(", ")) };
+    let mut chart = dose_panel(DoseCurve {
+        title: r.compound.clone(),
+        subtitle: format!("{}{hill}{flags}", ic50_text(r, unit)),
+        flagged: !r.flags.is_empty(),
+        points: curve.x.iter().cloned().zip(curve.y.iter().cloned()).collect(),
+        fit: f,
+        ic50: Some((r.ic50.value, y_at_ic50, r.ic50.low, r.ic50.high, direction(r.qualifier))),
+        unit: Some(unit.to_string()),
+        response: response.to_string(),
+    });
+    if r.qualifier.is_bound() {
+        chart
+            .notes
+            .push("The IC50 lies outside the tested range: it is drawn as a bound, with no fitted curve.".into());
+    }
+    chart
+}
+
+/// One curve's SVG.
+pub fn figure(r: &Ic50Result, curve: &Curve, unit: &str, response: &str, et: Option<f64>) -> Result<Svg> {
+    super::chart(&panel(r, curve, unit, response, et), PANEL)
+}
+
+/// Thumbnails of many curves, flagged ones first (then in input order),
+/// three to a row.
+pub fn grid(items: &[(&Ic50Result, &Curve)], unit: &str, response: &str, et: Option<f64>) -> Result<Svg> {
+    let mut order: Vec<usize> = (0..items.len()).collect();
+    order.sort_by_key(|&k| items[k].0.flags.is_empty());
+    let panels: Vec<XyChart> = order.iter().map(|&k| panel(items[k].0, items[k].1, unit, response, et)).collect();
+    super::figure(&panels, 3, THUMBNAIL, "the dose-response thumbnails")
+}
+
+/// Thumbnails kept during a run for the grid and the report: the flagged
+/// curves and the others, each up to `cap`, plus a summary row per result
+/// (up to `max_rows`) for the report's table.
+#[derive(Debug, Clone)]
+pub struct Gallery {
+    /// Most thumbnails shown.
+    pub cap: usize,
+    /// Most table rows kept.
+    pub max_rows: usize,
+    /// Flagged curves kept, in input order.
+    pub flagged: Vec<(Curve, Ic50Result)>,
+    /// Unflagged curves kept, in input order.
+    pub plain: Vec<(Curve, Ic50Result)>,
+    /// Results seen.
+    pub total: usize,
+    /// Flagged results seen.
+    pub total_flagged: usize,
+    /// Report table rows.
+    pub rows: Vec<Vec<String>>,
+    /// Concentration unit symbol.
+    pub unit: String,
+    /// Response axis title.
+    pub response: String,
+    /// Total enzyme in the concentration unit (Morrison fits).
+    pub et: Option<f64>,
+}
+
+impl Gallery {
+    /// An empty gallery.
+    pub fn new(cap: usize, max_rows: usize) -> Gallery {
+        Gallery {
+            cap,
+            max_rows,
+            flagged: Vec::new(),
+            plain: Vec::new(),
+            total: 0,
+            total_flagged: 0,
+            rows: Vec::new(),
+            unit: String::new(),
+            response: "response".into(),
+            et: None,
+        }
+    }
+
+    /// Adds one fitted curve.
+    pub fn add(&mut self, curve: Curve, r: Ic50Result) {
+        self.total += 1;
+        if self.rows.len() < self.max_rows {
+            let hill = r.hill.as_ref().map_or("—".into(), |h| sig(h.value, 3));
+            self.rows.push(vec![r.compound.clone(), ic50_text(&r, &self.unit), hill, r.flags.join(" ")]);
+        }
+        let list = if r.flags.is_empty() { &mut self.plain } else { &mut self.flagged };
+        if !r.flags.is_empty() {
+            self.total_flagged += 1;
+        }
+        if list.len() < self.cap {
+            list.push((curve, r));
+        }
+    }
+
+    /// The thumbnails to show: flagged first, at most `cap`.
+    pub fn shown(&self) -> Vec<(&Ic50Result, &Curve)> {
+        self.flagged.iter().chain(&self.plain).take(self.cap).map(|(c, r)| (r, c)).collect()
+    }
+
+    /// The grid of thumbnails.
+    pub fn grid(&self) -> Result<Svg> {
+        grid(&self.shown(), &self.unit, &self.response, self.et)
+    }
+}
+
+/// The report section of an ic50 run: a summary table, the plate table when
+/// there is one, and the thumbnail grid (flagged first).
+pub fn section(gallery: &Gallery, plates: Option<&str>, failures: &[String], command: &str) -> Result<Section> {
+    let mut blocks = Vec::new();
+    if let Some(p) = plates {
+        blocks.push(Block::Preformatted(super::html::without_caution(p)));
+    }
+    let header = ["compound", "IC50 (interval)", "Hill", "flags"].map(String::from).to_vec();
+    blocks.push(Block::Table(super::html::Table { header, rows: gallery.rows.clone() }));
+    if gallery.rows.len() < gallery.total {
+        blocks.push(Block::Paragraph(format!(
+            "The table shows the first {} of {} compounds; the command's CSV output has all of them.",
+            gallery.rows.len(),
+            gallery.total
+        )));
+    }
+    let shown = gallery.shown();
+    if !shown.is_empty() {
+        let omitted = gallery.total - shown.len();
+        let more = if omitted > 0 {
+            format!(" {omitted} more curves are not drawn here; --plot DIR writes every one.")
+        } else {
+            String::new()
+        };
+        blocks.push(Block::Figure {
+            svg: gallery.grid()?.text,
+            caption: format!(
+                "{} of {} curves on a log-concentration axis, the flagged ones first ({} flagged; flags in their subtitles). Diamonds: IC50 with its interval; open markers with arrows: an IC50 outside the tested range, drawn as a bound.{more}",
+                shown.len(),
+                gallery.total,
+                gallery.total_flagged
+            ),
+        });
+    }
+    blocks.push(Block::Failures(failures.to_vec()));
+    Ok(Section { heading: "IC50".into(), command: Some(command.to_string()), blocks })
+}
