@@ -5,7 +5,7 @@ mod common;
 use predicates::prelude::*;
 
 #[test]
-fn demo_runs_every_stage_and_ends_with_the_caution() {
+fn demo_runs_every_stage_states_the_caution_and_writes_its_report() {
     let dir = tempfile::tempdir().unwrap();
     common::kimech(dir.path())
         .arg("demo")
@@ -15,5 +15,8 @@ fn demo_runs_every_stage_and_ends_with_the_caution() {
         .stdout(predicate::str::contains("Michaelis–Menten fit — series batch-A"))
         .stdout(predicate::str::contains("IC50 → Ki"))
         .stdout(predicate::str::contains("Ranking by pKi"))
-        .stdout(predicate::str::contains("research estimates"));
+        .stdout(predicate::str::contains("research estimates"))
+        .stdout(predicate::str::contains("Report written to kimech-demo-report.html"));
+    let report = std::fs::read_to_string(dir.path().join("kimech-demo-report.html")).unwrap();
+    assert!(report.contains("<svg") && report.contains("research estimates"));
 }
