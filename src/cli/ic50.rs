@@ -14,7 +14,7 @@ use std::path::PathBuf;
 
 use rayon::prelude::*;
 
-use super::{CAUTION, OutputArgs, parse_confidence, parse_flag_concentration};
+use super::{CAUTION, OutputArgs, parse_flag_concentration, parse_fraction};
 use crate::analysis::ic50::{Carried, Curve, Ic50Result, IntervalMethod, Options, PlateQc, Thresholds, Wells, analyse};
 use crate::error::{Error, Result};
 use crate::io::input::Record;
@@ -55,7 +55,7 @@ pub struct Args {
     #[arg(long, value_name = "CONC", value_parser = parse_flag_concentration)]
     pub enzyme: Option<ConcentrationArg>,
     /// Confidence level of the intervals.
-    #[arg(long, default_value_t = 0.95, value_parser = parse_confidence)]
+    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
     pub confidence: f64,
     /// IC50 interval: wald (on ln IC50, fast) or profile (likelihood, several refits per curve).
     #[arg(long, value_enum, default_value_t = IntervalMethod::Wald)]

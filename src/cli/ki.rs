@@ -10,7 +10,7 @@
 
 use serde::Serialize;
 
-use super::{CAUTION, OutputArgs, finish, parse_confidence, parse_flag_concentration};
+use super::{CAUTION, OutputArgs, finish, parse_flag_concentration, parse_fraction};
 use crate::convert::{self, Assay, Conditions, Conversion, Measurement, Mechanism, MechanismSource, Settings};
 use crate::error::{Error, Result};
 use crate::io::input::Record;
@@ -109,7 +109,7 @@ pub struct Args {
     #[arg(long, default_value_t = 0.5, value_name = "NUMBER")]
     pub hill_tolerance: f64,
     /// Confidence level of the Ki interval (the IC50 interval is taken to be at this level).
-    #[arg(long, default_value_t = 0.95, value_parser = parse_confidence)]
+    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
     pub confidence: f64,
     /// Output format and destination.
     #[command(flatten)]

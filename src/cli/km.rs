@@ -4,7 +4,7 @@ use std::collections::HashMap;
 
 use serde::Serialize;
 
-use super::{CAUTION, OutputArgs, PictureArgs, finish, parse_confidence, parse_flag_concentration};
+use super::{CAUTION, OutputArgs, PictureArgs, finish, parse_flag_concentration, parse_fraction};
 use crate::analysis::km::{Enzyme, KmResult, Options, Series, Units, analyse};
 use crate::error::{Error, Result};
 use crate::fit::{FitSettings, Weighting};
@@ -34,7 +34,7 @@ pub struct Args {
     #[arg(long, value_enum, default_value_t = WeightingArg::None)]
     pub weighting: WeightingArg,
     /// Confidence level of the intervals.
-    #[arg(long, default_value_t = 0.95, value_parser = parse_confidence)]
+    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
     pub confidence: f64,
     /// Output format and destination.
     #[command(flatten)]
@@ -302,16 +302,33 @@ fn weighting_name(w: Weighting) -> &'static str {
     }
 }
 
-fn param_row(name: &str, p: &Param) -> Vec<String> {
-    let end = |v: Option<f64>| v.map_or("unbounded".to_string(), |v| sig(v, 5));
-    vec![
-        name.to_string(),
-        sig(p.value, 6),
-        p.se.map_or("—".into(), |s| sig(s, 3)),
-        end(p.low),
-        end(p.high),
-        p.unit.clone().unwrap_or_default(),
-    ]
+/// The column headers of the parameter table, shared with the HTML report.
+pub fn param_header(confidence: f64) -> Vec<String> {
+    let level = format!("{:.0}%", confidence * 100.0);
+    ["parameter", "estimate", "SE", &format!("{level} low"), &format!("{level} high"), "unit", "interval"]
+        .map(String::from)
+        .to_vec()
+}
+
+/// One parameter as table cells (estimate, SE, interval ends, unit, interval method),
+/// and every parameter of a result in reporting order; shared with the HTML report.
+pub fn param_rows(r: &KmResult) -> Vec<Vec<String>> {
+    let cells = |name: &str, p: &Param| {
+        let end = |v: Option<f64>| v.map_or("unbounded".to_string(), |v| sig(v, 5));
+        vec![
+            name.to_string(),
+            sig(p.value, 6),
+            p.se.map_or("—".into(), |s| sig(s, 3)),
+            end(p.low),
+            end(p.high),
+            p.unit.clone().unwrap_or_default(),
+            p.interval.to_string(),
+        ]
+    };
+    let mut rows = vec![cells("Vmax", &r.params.vmax), cells("Km", &r.params.km)];
+    rows.extend(r.params.kcat.as_ref().map(|k| cells("kcat", k)));
+    rows.extend(r.params.kcat_km.as_ref().map(|k| cells("kcat/Km", k)));
+    rows
 }
 
 /// The human-readable report.
@@ -323,19 +340,9 @@ pub fn human(results: &[KmResult]) -> String {
             .as_deref()
             .map_or("Michaelis–Menten fit".to_string(), |s| format!("Michaelis–Menten fit — series {s}"));
         out.push_str(&format!("{title}\n"));
-        let level = r.confidence * 100.0;
-        let mut grid = new_grid(
-            ["parameter", "estimate", "SE", &format!("{level:.0}% low"), &format!("{level:.0}% high"), "unit"]
-                .map(String::from)
-                .to_vec(),
-        );
-        grid.add_row(param_row("Vmax", &r.params.vmax));
-        grid.add_row(param_row("Km", &r.params.km));
-        if let Some(k) = &r.params.kcat {
-            grid.add_row(param_row("kcat", k));
-        }
-        if let Some(k) = &r.params.kcat_km {
-            grid.add_row(param_row("kcat/Km", k));
+        let mut grid = new_grid(param_header(r.confidence));
+        for row in param_rows(r) {
+            grid.add_row(row);
         }
         out.push_str(&format!("{grid}\n"));
         out.push_str(&format!(

@@ -92,10 +92,10 @@ pub struct PictureArgs {
     pub report: Option<PathBuf>,
 }
 
-/// Parses a confidence level strictly between 0 and 1.
-pub fn parse_confidence(text: &str) -> std::result::Result<f64, String> {
-    let c: f64 = text.parse().map_err(|_| format!("'{text}' is not a number; use e.g. 0.95"))?;
-    if c > 0.0 && c < 1.0 { Ok(c) } else { Err(format!("{c} is not between 0 and 1; use e.g. 0.95")) }
+/// Parses a level or fraction strictly between 0 and 1 (confidence, significance, conversion).
+pub fn parse_fraction(text: &str) -> std::result::Result<f64, String> {
+    let c: f64 = text.parse().map_err(|_| format!("'{text}' is not a number; use one between 0 and 1, e.g. 0.95"))?;
+    if c > 0.0 && c < 1.0 { Ok(c) } else { Err(format!("{c} is not between 0 and 1 (exclusive)")) }
 }
 
 /// Parses a concentration with its unit, such as `10 nM`, for a flag.

@@ -6,7 +6,7 @@ use std::collections::HashMap;
 use serde::Serialize;
 
 use super::km::WeightingArg;
-use super::{CAUTION, OutputArgs, finish, parse_confidence};
+use super::{CAUTION, OutputArgs, finish, parse_fraction};
 use crate::analysis::mode::{Criterion, Matrix, ModeResult, ModelResult, Options, Units, analyse};
 use crate::error::{Error, Result};
 use crate::fit::FitSettings;
@@ -43,10 +43,10 @@ pub struct Args {
     #[arg(long, value_enum, default_value_t = CriterionArg::Aicc)]
     pub criterion: CriterionArg,
     /// Significance level of the F-test steps (with --criterion f-test).
-    #[arg(long, default_value_t = 0.05, value_parser = parse_level)]
+    #[arg(long, default_value_t = 0.05, value_parser = parse_fraction)]
     pub alpha_level: f64,
     /// Confidence level of the intervals.
-    #[arg(long, default_value_t = 0.95, value_parser = parse_confidence)]
+    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
     pub confidence: f64,
     /// Output format and destination.
     #[command(flatten)]
@@ -57,11 +57,6 @@ pub struct Args {
 }
 
 /// Parses a significance level strictly between 0 and 1.
-fn parse_level(text: &str) -> std::result::Result<f64, String> {
-    let a: f64 = text.parse().map_err(|_| format!("'{text}' is not a number; use e.g. 0.05"))?;
-    if a > 0.0 && a < 1.0 { Ok(a) } else { Err(format!("{a} is not between 0 and 1; use e.g. 0.05")) }
-}
-
 /// `--criterion` values.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
 pub enum CriterionArg {

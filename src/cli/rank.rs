@@ -12,7 +12,7 @@
 
 use serde::Serialize;
 
-use super::{CAUTION, OutputArgs, finish, parse_confidence};
+use super::{CAUTION, OutputArgs, finish, parse_fraction};
 use crate::analysis::rank::{Bounded, Entry, Options, RankRow, aggregate};
 use crate::error::{Error, Result};
 use crate::io::input::Record;
@@ -82,7 +82,7 @@ pub struct Args {
     #[arg(long, value_name = "UNIT")]
     pub ki_unit: Option<ConcUnit>,
     /// Confidence level of the interval of a geometric mean.
-    #[arg(long, default_value_t = 0.95, value_parser = parse_confidence)]
+    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
     pub confidence: f64,
     /// Output format and destination (csv is the registry export).
     #[command(flatten)]

@@ -5,7 +5,7 @@ use std::collections::HashMap;
 
 use serde::Serialize;
 
-use super::{CAUTION, OutputArgs, finish, parse_confidence};
+use super::{CAUTION, OutputArgs, finish, parse_fraction};
 use crate::analysis::rates::{Curve, Options, RateResult, analyse};
 use crate::error::{Error, Result};
 use crate::io::input::Record;
@@ -30,14 +30,14 @@ pub struct Args {
     #[arg(long, default_value_t = 4)]
     pub min_points: usize,
     /// Significance level of the t² term at which the window stops growing.
-    #[arg(long, default_value_t = 0.05, value_parser = parse_confidence)]
+    #[arg(long, default_value_t = 0.05, value_parser = parse_fraction)]
     pub curvature_alpha: f64,
     /// Largest fraction of the substrate converted inside the window (common practice: 0.1);
     /// checked when the signal is a product concentration and a substrate column has a unit.
-    #[arg(long, default_value_t = 0.1, value_parser = parse_confidence)]
+    #[arg(long, default_value_t = 0.1, value_parser = parse_fraction)]
     pub max_conversion: f64,
     /// Confidence level of the rate intervals.
-    #[arg(long, default_value_t = 0.95, value_parser = parse_confidence)]
+    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
     pub confidence: f64,
     /// Output format and destination.
     #[command(flatten)]

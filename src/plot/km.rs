@@ -157,19 +157,6 @@ pub fn series_figure(r: &KmResult) -> Result<Svg> {
     super::figure(&panels, 3, PANEL, &format!("the km plots of {}", series_name(r)))
 }
 
-fn param_row(name: &str, p: &Param) -> Vec<String> {
-    let end = |v: Option<f64>| v.map_or("not bounded".to_string(), |v| sig(v, 5));
-    vec![
-        name.to_string(),
-        sig(p.value, 6),
-        p.se.map_or("—".into(), |s| sig(s, 3)),
-        end(p.low),
-        end(p.high),
-        p.unit.clone().unwrap_or_default(),
-        p.interval.to_string(),
-    ]
-}
-
 /// The report section of a km run: per series a table, fit statistics,
 /// notes, warnings and the figure; then the series that failed.
 pub fn section(results: &[KmResult], failures: &[Error], command: &str) -> Result<Section> {
@@ -177,12 +164,8 @@ pub fn section(results: &[KmResult], failures: &[Error], command: &str) -> Resul
     for r in results {
         blocks.push(Block::Heading(format!("Michaelis–Menten fit — {}", series_name(r))));
         let level = format!("{:.0}%", r.confidence * 100.0);
-        let header =
-            ["parameter", "estimate", "SE", &format!("{level} low"), &format!("{level} high"), "unit", "interval"];
-        let mut rows = vec![param_row("Vmax", &r.params.vmax), param_row("Km", &r.params.km)];
-        rows.extend(r.params.kcat.as_ref().map(|k| param_row("kcat", k)));
-        rows.extend(r.params.kcat_km.as_ref().map(|k| param_row("kcat/Km", k)));
-        blocks.push(Block::Table(Table { header: header.map(String::from).to_vec(), rows }));
+        let (header, rows) = (crate::cli::km::param_header(r.confidence), crate::cli::km::param_rows(r));
+        blocks.push(Block::Table(Table { header, rows }));
         blocks.push(Block::Paragraph(format!(
             "n = {}, df = {}, SSE = {}, residual SD = {}, R² = {}, runs-test p = {}; {}.",
             r.n,
