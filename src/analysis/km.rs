@@ -201,7 +201,7 @@ pub fn analyse(series: &Series, units: &Units, options: &Options) -> Result<KmRe
     if !best.converged() {
         warnings.push(Warning::new(
             "not-converged",
-            format!("the fit did not converge ({:?}); the estimates are not trustworthy", best.termination),
+            format!("the fit did not converge ({}); the estimates are not trustworthy", best.termination),
         ));
     }
     let residuals_by_s = residuals_sorted_by(&series.substrate, &best.residuals);

@@ -267,7 +267,7 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
         warnings.push(Warning::new(
             "not-converged",
             format!(
-                "the {} fit did not converge ({:?}); its numbers are not trustworthy",
+                "the {} fit did not converge ({}); its numbers are not trustworthy",
                 f.mechanism.name(),
                 f.fit.termination
             ),

@@ -32,6 +32,20 @@ pub enum Termination {
     NothingToFit,
 }
 
+impl std::fmt::Display for Termination {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            Termination::Converged => "converged",
+            Termination::Stationary => "stopped at a stationary point",
+            Termination::ExactFit => "the model passes through every point",
+            Termination::AtPrecisionLimit => "stopped at the limit of floating-point precision",
+            Termination::EvaluationLimit => "the evaluation budget ran out",
+            Termination::NumericalFailure => "the residuals or their derivatives became non-finite",
+            Termination::NothingToFit => "nothing to fit",
+        })
+    }
+}
+
 impl Termination {
     pub(super) fn from_lm(reason: &TerminationReason) -> Self {
         match reason {
