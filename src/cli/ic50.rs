@@ -61,25 +61,25 @@ pub struct Args {
     #[arg(long, value_enum, default_value_t = IntervalMethod::Wald)]
     pub intervals: IntervalMethod,
     /// Flag `hill-steep` above this |Hill coefficient| (common practice).
-    #[arg(long, default_value_t = 2.0)]
+    #[arg(long, default_value_t = Thresholds::default().hill_steep)]
     pub hill_steep: f64,
     /// Flag `hill-shallow` below this |Hill coefficient| (common practice).
-    #[arg(long, default_value_t = 0.5)]
+    #[arg(long, default_value_t = Thresholds::default().hill_shallow)]
     pub hill_shallow: f64,
     /// Flag `partial-inhibition` when lower/upper exceeds this (common practice).
-    #[arg(long, default_value_t = 0.2)]
+    #[arg(long, default_value_t = Thresholds::default().partial_above)]
     pub partial_above: f64,
     /// Flag `no-inhibition` when the fitted inhibition at the top concentration is below this fraction (common practice).
-    #[arg(long, default_value_t = 0.2)]
+    #[arg(long, default_value_t = Thresholds::default().min_inhibition)]
     pub min_inhibition: f64,
     /// Flag `poor-fit` below this R² (common practice).
-    #[arg(long, default_value_t = 0.8)]
+    #[arg(long, default_value_t = Thresholds::default().min_r2)]
     pub min_r2: f64,
     /// Flag `too-few-points` below this many distinct concentrations (common practice).
-    #[arg(long, default_value_t = 6)]
+    #[arg(long, default_value_t = Thresholds::default().min_concentrations)]
     pub min_concentrations: usize,
     /// Flag plates (and their compounds) whose Z′ is below this (Zhang et al. 1999: 0.5).
-    #[arg(long, default_value_t = 0.5)]
+    #[arg(long, default_value_t = Thresholds::default().min_z_prime)]
     pub min_z_prime: f64,
     /// Curves per parallel batch (memory and progress granularity).
     #[arg(long, default_value_t = 2048, hide = true)]
@@ -95,6 +95,7 @@ pub struct Args {
 impl Args {
     /// Arguments for `file` with every default.
     pub fn new(file: &str, format: Format) -> Args {
+        let defaults = Thresholds::default();
         Args {
             file: file.into(),
             concentration_unit: None,
@@ -104,13 +105,13 @@ impl Args {
             enzyme: None,
             confidence: 0.95,
             intervals: IntervalMethod::Wald,
-            hill_steep: 2.0,
-            hill_shallow: 0.5,
-            partial_above: 0.2,
-            min_inhibition: 0.2,
-            min_r2: 0.8,
-            min_concentrations: 6,
-            min_z_prime: 0.5,
+            hill_steep: defaults.hill_steep,
+            hill_shallow: defaults.hill_shallow,
+            partial_above: defaults.partial_above,
+            min_inhibition: defaults.min_inhibition,
+            min_r2: defaults.min_r2,
+            min_concentrations: defaults.min_concentrations,
+            min_z_prime: defaults.min_z_prime,
             batch_size: 2048,
             output: OutputArgs { format, output: None },
             pictures: super::PictureArgs::default(),
