@@ -302,6 +302,22 @@ fn weighting_name(w: Weighting) -> &'static str {
     }
 }
 
+/// The one-line account of a fit's quality, shared with the HTML report.
+pub fn fit_summary(r: &KmResult) -> String {
+    format!(
+        "n = {}, df = {}, SSE = {}, residual SD = {}, R² = {}, runs-test p = {}, {}; intervals: {}, weighting: {}",
+        r.n,
+        r.df,
+        sig(r.sse, 5),
+        sig(r.residual_sd, 4),
+        sig(r.r2, 4),
+        r.runs_p.map_or("—".into(), |p| sig(p, 2)),
+        if r.converged { "converged" } else { "NOT converged" },
+        r.params.km.interval,
+        weighting_name(r.weighting),
+    )
+}
+
 /// The column headers of the parameter table, shared with the HTML report.
 pub fn param_header(confidence: f64) -> Vec<String> {
     let level = format!("{:.0}%", confidence * 100.0);
@@ -345,18 +361,7 @@ pub fn human(results: &[KmResult]) -> String {
             grid.add_row(row);
         }
         out.push_str(&format!("{grid}\n"));
-        out.push_str(&format!(
-            "n = {}, df = {}, SSE = {}, residual SD = {}, R² = {}, runs-test p = {}, {}; intervals: {}, weighting: {}\n",
-            r.n,
-            r.df,
-            sig(r.sse, 5),
-            sig(r.residual_sd, 4),
-            sig(r.r2, 4),
-            r.runs_p.map_or("—".into(), |p| sig(p, 2)),
-            if r.converged { "converged" } else { "NOT converged" },
-            r.params.km.interval,
-            weighting_name(r.weighting),
-        ));
+        out.push_str(&format!("{}\n", fit_summary(r)));
         let dr = &r.double_reciprocal;
         out.push_str(&format!(
             "double-reciprocal line from the fit: slope Km/Vmax = {}, 1/v intercept = {}, 1/S intercept = {}\n",

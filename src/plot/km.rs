@@ -166,16 +166,7 @@ pub fn section(results: &[KmResult], failures: &[Error], command: &str) -> Resul
         let level = format!("{:.0}%", r.confidence * 100.0);
         let (header, rows) = (crate::cli::km::param_header(r.confidence), crate::cli::km::param_rows(r));
         blocks.push(Block::Table(Table { header, rows }));
-        blocks.push(Block::Paragraph(format!(
-            "n = {}, df = {}, SSE = {}, residual SD = {}, R² = {}, runs-test p = {}; {}.",
-            r.n,
-            r.df,
-            sig(r.sse, 5),
-            sig(r.residual_sd, 4),
-            sig(r.r2, 4),
-            r.runs_p.map_or("—".into(), |p| sig(p, 2)),
-            if r.converged { "the fit converged" } else { "the fit did NOT converge" }
-        )));
+        blocks.push(Block::Paragraph(format!("{}.", crate::cli::km::fit_summary(r))));
         for note in [&r.params.vmax.note, &r.params.km.note].into_iter().flatten() {
             blocks.push(Block::Paragraph(format!("Note: {note}")));
         }
