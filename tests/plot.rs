@@ -613,3 +613,44 @@ fn ic50_batch_writes_every_curve_a_grid_with_flagged_first_and_a_report() {
     assert_self_contained(&html);
     assert!(html.contains("too-few-points"));
 }
+
+#[test]
+fn a_bounded_ic50_is_drawn_with_its_fitted_curve() {
+    use kimech::analysis::ic50::{Carried, Curve, IntervalMethod, Options, Thresholds, analyse};
+    use kimech::fit::Model;
+    use kimech::models::logistic::{Dose, Logistic};
+    // An incomplete curve from the four-parameter logistic itself (DESIGN §4):
+    // IC50 = 5 mM, h = 1, upper 100, lower 0, doses 0.01–1 mM, ±0.5 alternating.
+    let x: Vec<f64> = (0..8).map(|k| 0.01 * 10f64.powf(k as f64 * 2.0 / 7.0)).collect();
+    let y: Vec<f64> =
+        x.iter().enumerate().map(|(k, x)| 100.0 / (1.0 + x / 5.0) + if k % 2 == 0 { 0.5 } else { -0.5 }).collect();
+    let curve = Curve {
+        compound: "short".into(),
+        origin: "fixture".into(),
+        x,
+        y,
+        carried: Carried::default(),
+        read_flags: vec![],
+    };
+    let options = Options {
+        fix_lower: None,
+        fix_upper: None,
+        enzyme: None,
+        unit: kimech::units::ConcUnit::Millimolar,
+        response_unit: Some("cm".into()),
+        confidence: 0.95,
+        intervals: IntervalMethod::Wald,
+        thresholds: Thresholds::default(),
+        settings: FitSettings::default(),
+    };
+    let r = analyse(&curve, &options).unwrap();
+    assert!(r.qualifier.is_bound() && r.converged, "{:?} {}", r.qualifier, r.converged);
+    let svg = kimech::plot::ic50::figure(&r, &curve, "mM", "root length (cm)", None).unwrap();
+    let frame = svg.frames[0];
+    let drawn = curve_in(&svg.text, &frame, "#0072B2");
+    assert!(!drawn.is_empty(), "the fitted curve is drawn");
+    for x in [0.02, 0.1, 0.5] {
+        let (u, expected) = frame.pixel_of(x, Logistic.value(&r.fitted, &Dose::new(x)));
+        assert!((y_at(&drawn, u) - expected).abs() <= 1.5, "x = {x}");
+    }
+}

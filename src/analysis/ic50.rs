@@ -192,6 +192,10 @@ pub struct Ic50Result {
     /// Apparent Ki (Morrison only), in the concentration unit.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub ki_app: Option<Param>,
+    /// The fitted parameter vector in the model's own order, even when the
+    /// reported IC50 is a bound; for drawing the curve, not for export.
+    #[serde(skip)]
+    pub fitted: Vec<f64>,
 }
 
 /// Fits one compound.
@@ -339,6 +343,7 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
         carried: curve.carried.clone(),
         model: "logistic",
         ki_app: None,
+        fitted: fit.theta.clone(),
     })
 }
 
@@ -560,6 +565,7 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
         carried: curve.carried.clone(),
         model: "morrison",
         ki_app: Some(ki_app),
+        fitted: fit.theta.clone(),
     })
 }
 

@@ -15,21 +15,17 @@ use crate::io::output::sig;
 use crate::models::logistic::{Dose, Logistic, Morrison};
 use crate::units::Qualifier;
 
-/// The fitted response y(x) of a result, when its constants describe the
-/// fit (a bounded IC50 is the bound, not the fitted value: no curve then).
+/// The fitted response y(x) of a converged result. A bounded IC50 is
+/// reported as the bound, but the curve drawn is the one that was fitted, so
+/// that an incomplete curve can be judged by eye.
 fn fitted(r: &Ic50Result, et: Option<f64>) -> Option<Box<dyn Fn(f64) -> f64>> {
-    if r.qualifier.is_bound() || !r.converged {
+    if !r.converged {
         return None;
     }
+    let theta = r.fitted.clone();
     match (r.model, et) {
-        ("morrison", Some(et)) => {
-            let theta = [r.ki_app.as_ref()?.value, r.upper.value];
-            Some(Box::new(move |x| Morrison { et }.value(&theta, &x)))
-        }
-        ("logistic", _) => {
-            let theta = [r.ic50.value, r.hill.as_ref()?.value, r.lower.value, r.upper.value];
-            Some(Box::new(move |x| Logistic.value(&theta, &Dose::new(x))))
-        }
+        ("morrison", Some(et)) if theta.len() == 2 => Some(Box::new(move |x| Morrison { et }.value(&theta, &x))),
+        ("logistic", _) if theta.len() == 4 => Some(Box::new(move |x| Logistic.value(&theta, &Dose::new(x)))),
         _ => None,
     }
 }
@@ -72,7 +68,7 @@ pub fn panel(r: &Ic50Result, curve: &Curve, unit: &str, response: &str, et: Opti
     if r.qualifier.is_bound() {
         chart
             .notes
-            .push("The IC50 lies outside the tested range: it is drawn as a bound, with no fitted curve.".into());
+            .push("The IC50 lies outside the tested range: it is drawn as a bound; the curve is the fit over the tested range.".into());
     }
     chart
 }
