@@ -369,3 +369,11 @@ fn json_output_keeps_the_documented_contract() {
     }
     assert_eq!(r["params"]["km"]["unit"], "uM");
 }
+
+#[test]
+fn sd_weighting_names_the_row_without_a_usable_sd() {
+    let e = km_error("substrate (uM),rate,sd\n1,1,0.1\n2,1.6,\n4,2.2,0.1\n8,2.7,0.1\n", &["--weighting", "sd"]);
+    assert!(e.contains("line 3") && e.contains("'sd'") && e.contains("positive sd"), "{e}");
+    let e = km_error("substrate (uM),rate,sd\n1,1,0.1\n2,1.6,0.1\n4,2.2,-1\n8,2.7,0.1\n", &["--weighting", "sd"]);
+    assert!(e.contains("line 4") && e.contains("-1"), "{e}");
+}

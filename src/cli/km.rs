@@ -216,7 +216,16 @@ fn read_series(table: &Table, args: &Args) -> Result<(Vec<Series>, Units)> {
             s.substrate.push(reporting.from_molar(c.molar));
             s.rate.push(table.number(row, v_col)?);
             if let (Some(col), Some(sd)) = (sd_col, s.sd.as_mut()) {
-                sd.push(table.optional_number(row, col)?.unwrap_or(f64::NAN));
+                let value = table.optional_number(row, col)?;
+                if args.weighting == WeightingArg::Sd && !value.is_some_and(|v| v > 0.0) {
+                    return Err(table.cell_error(
+                        row,
+                        col,
+                        "SD weighting needs a positive sd on every row",
+                        "fill in the sd or choose another --weighting",
+                    ));
+                }
+                sd.push(value.unwrap_or(f64::NAN));
             }
         }
         series.push(s);
