@@ -528,9 +528,25 @@ fn mode_writes_one_plot_per_compound_and_a_report() {
     assert!(html.contains("Dixon") && html.contains("Cornish-Bowden") && html.contains("Akaike weight"));
 }
 
+/// `ic50` options for curves in mM with responses in cm, otherwise the defaults.
+fn ic50_options_mm() -> kimech::analysis::ic50::Options {
+    use kimech::analysis::ic50::{IntervalMethod, Options, Thresholds};
+    Options {
+        fix_lower: None,
+        fix_upper: None,
+        enzyme: None,
+        unit: kimech::units::ConcUnit::Millimolar,
+        response_unit: Some("cm".into()),
+        confidence: 0.95,
+        intervals: IntervalMethod::Wald,
+        thresholds: Thresholds::default(),
+        settings: FitSettings::default(),
+    }
+}
+
 #[test]
 fn ic50_curve_is_the_fitted_logistic_with_the_ic50_marked_at_its_midpoint() {
-    use kimech::analysis::ic50::{Carried, Curve, IntervalMethod, Options, Thresholds, analyse};
+    use kimech::analysis::ic50::{Carried, Curve, analyse};
     // Ryegrass root length vs ferulic acid (Inderjit, Streibig & Olofsdotter 2002; fixtures/README.md),
     // six rows at zero concentration included.
     let (x, y): (Vec<f64>, Vec<f64>) = fixture_text("ryegrass.csv")
@@ -549,17 +565,7 @@ fn ic50_curve_is_the_fitted_logistic_with_the_ic50_marked_at_its_midpoint() {
         carried: Carried::default(),
         read_flags: vec![],
     };
-    let options = Options {
-        fix_lower: None,
-        fix_upper: None,
-        enzyme: None,
-        unit: kimech::units::ConcUnit::Millimolar,
-        response_unit: Some("cm".into()),
-        confidence: 0.95,
-        intervals: IntervalMethod::Wald,
-        thresholds: Thresholds::default(),
-        settings: FitSettings::default(),
-    };
+    let options = ic50_options_mm();
     let r = analyse(&curve, &options).unwrap();
     let svg = kimech::plot::ic50::figure(&r, &curve, "mM", "root length (cm)", None).unwrap();
     preview("ic50.svg", &svg.text);
@@ -616,7 +622,7 @@ fn ic50_batch_writes_every_curve_a_grid_with_flagged_first_and_a_report() {
 
 #[test]
 fn a_bounded_ic50_is_drawn_with_its_fitted_curve() {
-    use kimech::analysis::ic50::{Carried, Curve, IntervalMethod, Options, Thresholds, analyse};
+    use kimech::analysis::ic50::{Carried, Curve, analyse};
     use kimech::fit::Model;
     use kimech::models::logistic::{Dose, Logistic};
     // An incomplete curve from the four-parameter logistic itself (DESIGN §4):
@@ -632,17 +638,7 @@ fn a_bounded_ic50_is_drawn_with_its_fitted_curve() {
         carried: Carried::default(),
         read_flags: vec![],
     };
-    let options = Options {
-        fix_lower: None,
-        fix_upper: None,
-        enzyme: None,
-        unit: kimech::units::ConcUnit::Millimolar,
-        response_unit: Some("cm".into()),
-        confidence: 0.95,
-        intervals: IntervalMethod::Wald,
-        thresholds: Thresholds::default(),
-        settings: FitSettings::default(),
-    };
+    let options = ic50_options_mm();
     let r = analyse(&curve, &options).unwrap();
     assert!(r.qualifier.is_bound() && r.converged, "{:?} {}", r.qualifier, r.converged);
     let svg = kimech::plot::ic50::figure(&r, &curve, "mM", "root length (cm)", None).unwrap();
