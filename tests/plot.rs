@@ -219,16 +219,26 @@ fn km_report_holds_tables_warnings_and_one_figure_per_series() {
     assert!(html.contains("for display only"));
 }
 
-/// Headless Chromium must be installed; CI installs it (.ci/run). A skipped
-/// browser test would read as a pass, so a missing browser fails loudly.
-fn chromium() -> &'static str {
+/// The browser test runs wherever headless Chromium is installed. On a machine
+/// with only a Rust toolchain it is skipped with a printed reason, so the README's
+/// test command passes there; `.ci/run` installs Chromium and sets
+/// `KIMECH_REQUIRE_BROWSER=1`, which turns a missing browser into a failure, so CI
+/// can never pass by skipping it.
+fn chromium() -> Option<&'static str> {
     let found = std::process::Command::new("chromium").arg("--version").output().is_ok_and(|o| o.status.success());
+    let required = std::env::var("KIMECH_REQUIRE_BROWSER").is_ok_and(|v| v == "1");
     assert!(
-        found,
-        "the report test needs headless Chromium: install it with `apt-get update && apt-get install -y chromium` \
-         (.ci/run does this)"
+        found || !required,
+        "KIMECH_REQUIRE_BROWSER=1 but headless Chromium is missing: install it with \
+         `apt-get update && apt-get install -y chromium` (.ci/run does this)"
     );
-    "chromium"
+    if !found {
+        eprintln!(
+            "SKIPPED demo_report_renders_in_a_real_browser: headless Chromium is not installed \
+             (`apt-get install -y chromium`; set KIMECH_REQUIRE_BROWSER=1 to make this a failure)"
+        );
+    }
+    found.then_some("chromium")
 }
 
 /// Runs a command, killing it after `limit`.
@@ -249,7 +259,7 @@ fn run_with_limit(cmd: &mut std::process::Command, limit: std::time::Duration) -
 
 #[test]
 fn demo_report_renders_in_a_real_browser() {
-    let browser = chromium();
+    let Some(browser) = chromium() else { return };
     let dir = tempfile::tempdir().unwrap();
     let out = kimech(dir.path()).arg("demo").assert().success().get_output().stdout.clone();
     let stdout = String::from_utf8(out).unwrap();
