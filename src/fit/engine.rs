@@ -9,8 +9,20 @@ use super::{Data, Model};
 /// step into overflow is rejected by the minimiser instead of aborting it.
 const HUGE_RESIDUAL: f64 = 1e100;
 
-/// Internal coordinates are clamped here: `exp(±700)` is still finite.
+/// Log-scale coordinates are clamped here: `exp(±700)` is still finite.
+/// Linear coordinates are never clamped: an asymptote or a slope may be any
+/// size (raw instrument counts run to 10⁷ and beyond), and clamping one would
+/// make the fit depend on the scale of the response (DESIGN §2).
 const INTERNAL_LIMIT: f64 = 700.0;
+
+/// A coordinate as the minimiser may hold it: log-scale ones clamped to
+/// ±[`INTERNAL_LIMIT`] so that `exp` stays finite, linear ones unchanged.
+pub(super) fn admissible(scale: super::Scale, internal: f64) -> f64 {
+    match scale {
+        super::Scale::Log => internal.clamp(-INTERNAL_LIMIT, INTERNAL_LIMIT),
+        super::Scale::Linear => internal,
+    }
+}
 
 /// Why the minimiser stopped, in our own words.
 #[derive(Debug, Clone, PartialEq, Eq, serde::Serialize)]
@@ -175,7 +187,7 @@ impl<M: Model> LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_, M> {
     fn set_params(&mut self, x: &DVector<f64>) {
         let scales = self.model.scales();
         for (k, &j) in self.free.iter().enumerate() {
-            let clamped = x[k].clamp(-INTERNAL_LIMIT, INTERNAL_LIMIT);
+            let clamped = admissible(scales[j], x[k]);
             self.internal[k] = clamped;
             self.theta[j] = scales[j].to_natural(clamped);
         }
@@ -306,7 +318,11 @@ fn polish<M: Model>(model: &M, data: &Data<M::Point>, fixed: &[Option<f64>], mut
     let Some(mut gnorm) = gradient_norm(&problem) else { return run };
     for _ in 0..POLISH_STEPS {
         let (Some(j), Some(r)) = (problem.jacobian(), problem.residuals()) else { break };
-        let Ok(step) = j.svd(true, true).solve(&(-r), 1e-14) else { break };
+        // Singular values are cut relative to the largest, so the step does
+        // not depend on the units of the response or the parameters.
+        let svd = j.svd(true, true);
+        let cut = 1e-14 * svd.singular_values.max();
+        let Ok(step) = svd.solve(&(-r), cut) else { break };
         let before = problem.params();
         problem.set_params(&(&before + step));
         let sse = weighted_sse(model, data, &problem.theta);

@@ -165,7 +165,12 @@ impl<'a, M: Model> Profiler<'a, M> {
         let value = self.fit.theta[self.j];
         let se_internal = self.fit.se[self.j].map(|se| se / self.scale.derivative(value));
         match se_internal {
-            Some(s) if s.is_finite() && s > 0.0 => (0.5 * s).min(1.0),
+            // A log coordinate moves at most a factor e per step; a linear one
+            // by half its SE, whatever the units (no absolute cap).
+            Some(s) if s.is_finite() && s > 0.0 => match self.scale {
+                Scale::Log => (0.5 * s).min(1.0),
+                Scale::Linear => 0.5 * s,
+            },
             _ => match self.scale {
                 Scale::Log => 0.1,
                 Scale::Linear => 0.1 * value.abs().max(1e-8),
@@ -203,7 +208,12 @@ impl<'a, M: Model> Profiler<'a, M> {
 
     fn refine(&self, inner: f64, outer: f64) -> Bound {
         let (lo, hi) = if inner < outer { (inner, outer) } else { (outer, inner) };
-        let tol = 1e-10 * (1.0 + lo.abs().max(hi.abs()));
+        // Relative to the coordinate's own size for a linear parameter, so the
+        // end found does not depend on the units of the response.
+        let tol = match self.scale {
+            Scale::Log => 1e-10 * (1.0 + lo.abs().max(hi.abs())),
+            Scale::Linear => 1e-10 * lo.abs().max(hi.abs()).max(hi - lo),
+        };
         let solver = BrentRoot::new(lo, hi, tol);
         let run = Executor::new(ExcessCost(self), solver).configure(|s| s.param(0.5 * (lo + hi)).max_iters(200)).run();
         match run {

@@ -17,13 +17,11 @@ use nalgebra::allocator::{Allocator, Reallocator};
 use nalgebra::{DefaultAllocator, Dim, DimMax, DimMaximum, DimMin, DimName, Dyn, OMatrix, OVector, Owned};
 use nalgebra::{U1, U2, U3, U4, U12, U24};
 
-use super::engine::{Termination, summarise, weighted_sse};
+use super::engine::{Termination, admissible, summarise, weighted_sse};
 use super::{Data, Fit, FitSettings, Model, fit_from};
 
 /// Residuals larger than this stand in for non-finite ones (as in the engine).
 const HUGE_RESIDUAL: f64 = 1e100;
-/// Internal coordinates are clamped here (as in the engine).
-const INTERNAL_LIMIT: f64 = 700.0;
 /// Largest parameter vector (free and fixed) handled here.
 const MAX_PARAMS: usize = 8;
 
@@ -54,7 +52,7 @@ where
     fn set_params(&mut self, x: &OVector<f64, N>) {
         let scales = self.model.scales();
         for (k, &j) in self.free.iter().enumerate() {
-            let clamped = x[k].clamp(-INTERNAL_LIMIT, INTERNAL_LIMIT);
+            let clamped = admissible(scales[j], x[k]);
             self.internal[k] = clamped;
             self.theta[j] = scales[j].to_natural(clamped);
         }
