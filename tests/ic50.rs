@@ -28,11 +28,21 @@ fn options() -> Options {
         intervals: IntervalMethod::Wald,
         thresholds: Thresholds::default(),
         settings: screening_settings(),
+        percent: false,
+        outliers: kimech::analysis::ic50::OutlierMode::Exclude,
     }
 }
 
 fn curve(name: &str, x: Vec<f64>, y: Vec<f64>) -> Curve {
-    Curve { compound: name.into(), origin: "test".into(), x, y, carried: Carried::default(), read_flags: vec![] }
+    Curve {
+        compound: name.into(),
+        origin: "test".into(),
+        x,
+        y,
+        lines: vec![],
+        carried: Carried::default(),
+        read_flags: vec![],
+    }
 }
 
 fn ryegrass() -> (Vec<f64>, Vec<f64>) {

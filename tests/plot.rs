@@ -551,6 +551,8 @@ fn ic50_options_mm() -> kimech::analysis::ic50::Options {
         intervals: IntervalMethod::Wald,
         thresholds: Thresholds::default(),
         settings: FitSettings::default(),
+        percent: false,
+        outliers: kimech::analysis::ic50::OutlierMode::Exclude,
     }
 }
 
@@ -572,6 +574,7 @@ fn ic50_curve_is_the_fitted_logistic_with_the_ic50_marked_at_its_midpoint() {
         origin: "fixture".into(),
         x,
         y,
+        lines: vec![],
         carried: Carried::default(),
         read_flags: vec![],
     };
@@ -645,6 +648,7 @@ fn a_bounded_ic50_is_drawn_with_its_fitted_curve() {
         origin: "fixture".into(),
         x,
         y,
+        lines: vec![],
         carried: Carried::default(),
         read_flags: vec![],
     };

@@ -14,27 +14,71 @@
 //! [`profile`]) are an option, several refits per end. Hill and the
 //! asymptotes get Wald intervals on their own scale.
 //!
-//! **Qualifier.** When the fitted IC50 lies above the highest tested
-//! concentration the result is `>` that concentration; below the lowest
-//! positive one, `<` it. The bound is the reported value: the data say no
-//! more than that. pIC50 = −log10(IC50 in mol/L); for a bound, the pIC50
-//! bound runs the other way (`> x` in IC50 is `< p` in pIC50).
+//! **Calls** (issue 9; DESIGN §5: from the data, not from the asymptotes
+//! alone). Each curve gets one [`Call`], and the IC50's qualifier follows:
+//! 1. *Flat?* The extra-sum-of-squares F test of a flat line (the mean)
+//!    against the fitted curve (Bates & Watts 1988; the nested test `mode`
+//!    uses). p ≥ `flat_alpha` (0.05): no significant dose-response. For %
+//!    activity a flat line below 50 % is `complete` (`<` lowest: every well
+//!    already inhibited); otherwise `inactive` (`>` highest).
+//! 2. *Too little?* Fitted inhibition at the highest concentration below
+//!    `min_inhibition` (20 %, of 100 % for % activity, of the fitted upper
+//!    asymptote for raw signal): `inactive` (`>`).
+//! 3. *Where does the curve cross half?* Half is 50 % for % activity (judged
+//!    against the control levels) and half-way between the fitted asymptotes
+//!    for raw signal. Below half already at the lowest positive
+//!    concentration: `complete` (`<`). Still above half at the highest:
+//!    `weak` (`>`), or `partial` (`>`) when the curve visibly levels off
+//!    (90 % of its own effect inside the range) above half. Otherwise a
+//!    `full` curve (`=`), or `partial` (`=`, flag `partial-inhibition`) when
+//!    the fitted lower asymptote is above `partial_above` (20 %) of the full
+//!    activity. The reported IC50 is the curve's own midpoint (relative
+//!    IC50); if that lies outside the range the bound is reported instead.
+//!
+//! For % activity the asymptotes must stay in a plausible window (upper
+//! 70–130 %, lower −30–100 %, all options): a fitted asymptote outside it
+//! is held at its control level (100 % or 0 %), the curve refitted, and
+//! the flag `upper-outside-window` / `lower-outside-window` raised.
+//!
+//! **Held slope.** When no transition inside the range determines h (the
+//! free fit degenerates) h is held at 1 (common practice) and flagged
+//! `hill-fixed`; an in-range IC50 is then approximate (`~`, with a note why),
+//! never exact.
+//!
+//! **Aberrant wells.** The Bonferroni test on externally studentized
+//! residuals (Cook & Weisberg, *Residuals and Influence in Regression*,
+//! 1982, §2.2): leverages from the model linearised at the optimum; the
+//! worst well is marked when |t| > t(1 − α/(2n); df − 1), α = `outlier_alpha`
+//! (0.01 per curve), then the curve is refitted without it and tested again,
+//! up to `max_outliers` (2) wells (`too-many-outliers` when more would go).
+//! It needs only the fit's covariance, so a clean curve costs no refit.
+//! Marked wells are listed in every output (`outliers`), flagged
+//! `outlier-excluded` (or `outlier-flagged` with [`OutlierMode::Flag`]);
+//! [`OutlierMode::Keep`] is plain least squares on every well.
+//!
+//! pIC50 = −log10(IC50 in mol/L); for a bound, the pIC50 bound runs the
+//! other way (`> x` in IC50 is `< p` in pIC50).
 //!
 //! **Flags** (stable codes; every threshold is an option, the defaults are
 //! common practice, not from a single source):
 //!
 //! | code | when |
 //! |---|---|
-//! | `ic50-above-range` | IC50 above the top concentration (qualifier `>`) |
-//! | `ic50-below-range` | IC50 below the lowest positive concentration (qualifier `<`) |
+//! | `ic50-above-range` | call puts the IC50 above the top concentration (qualifier `>`) |
+//! | `ic50-below-range` | call puts the IC50 below the lowest positive concentration (qualifier `<`) |
 //! | `hill-steep` | \|h\| above `hill_steep` (2), IC50 within range |
 //! | `hill-shallow` | \|h\| below `hill_shallow` (0.5), IC50 within range |
-//! | `partial-inhibition` | lower/upper above `partial_above` (0.2): activity left at saturating inhibitor, response measured from zero |
-//! | `no-inhibition` | fitted inhibition at the top concentration, 1 − y(top)/upper, below `min_inhibition` (0.2) |
+//! | `partial-inhibition` | call `partial`: the curve levels off well above zero activity |
+//! | `no-inhibition` | call `inactive`: flat line not rejected, or too little inhibition at the top |
 //! | `poor-fit` | R² below `min_r2` (0.8); not raised with `no-inhibition` (R² means nothing for a flat curve) |
 //! | `too-few-points` | fewer than `min_concentrations` (6) distinct concentrations |
 //! | `not-converged` | the minimiser did not stop at a minimum |
-//! | `hill-fixed` | the free fit was degenerate (no transition in range); refitted with h = 1 to place the IC50 |
+//! | `hill-fixed` | the free fit was degenerate; refitted with h = 1 (IC50 `~` or a bound) |
+//! | `upper-outside-window` | % activity: fitted upper asymptote outside its window; held at 100 % |
+//! | `lower-outside-window` | % activity: fitted lower asymptote outside its window; held at 0 % |
+//! | `outlier-excluded` | wells marked by the outlier rule were left out (listed in `outliers`) |
+//! | `outlier-flagged` | wells marked by the outlier rule are listed but still fitted |
+//! | `too-many-outliers` | the rule would mark more than `max_outliers` wells |
 //! | `tight-binding-titration` | Morrison: Ki,app below Et/10 — the curve mostly measures Et |
 //! | `plate-z-prime-low` | a plate the compound sits on has Z′ below the limit (0.5) |
 //! | `carried-varies` | a carried column has different values within the compound |
@@ -66,6 +110,9 @@ pub struct Curve {
     pub x: Vec<f64>,
     /// Responses (raw, or % activity after normalisation).
     pub y: Vec<f64>,
+    /// The input line of each well (empty when not read from a file), so
+    /// that an excluded well can be named.
+    pub lines: Vec<u64>,
     /// Other columns, one value per compound.
     pub carried: Carried,
     /// Flags found while reading (plate quality, varying carried values).
@@ -119,6 +166,17 @@ pub struct Thresholds {
     pub min_concentrations: usize,
     /// Z′ below this is `plate-z-prime-low`.
     pub min_z_prime: f64,
+    /// Level of the extra-sum-of-squares F test of the flat line against
+    /// the logistic: p at or above it is "no significant inhibition".
+    pub flat_alpha: f64,
+    /// Family-wise level of the outlier rule (Bonferroni over the wells).
+    pub outlier_alpha: f64,
+    /// Most wells one curve may lose to the outlier rule.
+    pub max_outliers: usize,
+    /// % activity only: plausible window of the fitted upper asymptote.
+    pub upper_window: (f64, f64),
+    /// % activity only: plausible window of the fitted lower asymptote.
+    pub lower_window: (f64, f64),
 }
 
 impl Default for Thresholds {
@@ -131,6 +189,11 @@ impl Default for Thresholds {
             min_r2: 0.8,
             min_concentrations: 6,
             min_z_prime: 0.5,
+            flat_alpha: 0.05,
+            outlier_alpha: 0.01,
+            max_outliers: 2,
+            upper_window: (70.0, 130.0),
+            lower_window: (-30.0, 100.0),
         }
     }
 }
@@ -156,6 +219,63 @@ pub struct Options {
     pub thresholds: Thresholds,
     /// Minimiser settings.
     pub settings: FitSettings,
+    /// The response is % activity (after normalisation, or a `(%)` header):
+    /// calls are judged against 100 % and 0 %.
+    pub percent: bool,
+    /// What to do with wells the outlier rule marks.
+    pub outliers: OutlierMode,
+}
+
+/// What to do with wells the outlier rule marks.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum OutlierMode {
+    /// Refit without them and list them (the default).
+    Exclude,
+    /// List them, but fit every well.
+    Flag,
+    /// No outlier rule: plain least squares on every well.
+    Keep,
+}
+
+/// What the data show about a curve, decided by the rules in the module
+/// docs; the IC50's qualifier follows from it.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Call {
+    /// The curve crosses half activity inside the tested range (`=`).
+    Full,
+    /// It levels off well above zero activity (flag `partial-inhibition`).
+    Partial,
+    /// Inhibition is already complete at the lowest concentration (`<`).
+    Complete,
+    /// Inhibition starts but does not reach half within the range (`>`).
+    Weak,
+    /// No significant inhibition: a flat line does as well (`>`).
+    Inactive,
+}
+
+impl Call {
+    /// The word used in tables and CSV.
+    pub fn word(self) -> &'static str {
+        match self {
+            Call::Full => "full",
+            Call::Partial => "partial",
+            Call::Complete => "complete",
+            Call::Weak => "weak",
+            Call::Inactive => "inactive",
+        }
+    }
+}
+
+/// A well the outlier rule marked.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Outlier {
+    /// Input line (null when the curve did not come from a file).
+    pub line: Option<u64>,
+    /// Its concentration, in the reporting unit.
+    pub concentration: f64,
+    /// Its response, as fitted (% activity after normalisation).
+    pub response: f64,
 }
 
 /// Everything reported for one compound (the JSON "C" of the issue).
@@ -167,7 +287,12 @@ pub struct Ic50Result {
     pub n: usize,
     /// Whether the minimiser stopped at a trustworthy minimum.
     pub converged: bool,
-    /// `=`, or `>` / `<` when IC50 is beyond the tested range (then `ic50.value` is the bound).
+    /// What the data show (full, partial, complete, weak, inactive).
+    pub call: Call,
+    /// The call's rule in words, with its numbers.
+    pub reason: String,
+    /// `=`; `>` / `<` when the call puts the IC50 beyond the tested range
+    /// (then `ic50.value` is the bound); `~` when the Hill coefficient was held.
     pub qualifier: Qualifier,
     /// IC50 in the input's concentration unit.
     pub ic50: Param,
@@ -185,6 +310,12 @@ pub struct Ic50Result {
     pub r2: f64,
     /// Flag codes (see the module docs).
     pub flags: Vec<&'static str>,
+    /// Wells the outlier rule marked: excluded from the fit (`--outliers
+    /// exclude`) or only listed (`flag`).
+    pub outliers: Vec<Outlier>,
+    /// p of the extra-sum-of-squares F test of a flat line against the fitted
+    /// curve (null when it cannot be formed).
+    pub flat_p: Option<f64>,
     /// Carried columns, verbatim.
     pub carried: Carried,
     /// `logistic` or `morrison`.
@@ -267,38 +398,36 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     let fixed = [None, None, options.fix_lower, options.fix_upper];
     let n_free = fixed.iter().filter(|f| f.is_none()).count();
     let (levels, min_pos, max) = check(curve, n_free)?;
-    let data = Data::unweighted(curve.x.iter().map(|x| Dose::new(*x)).collect(), curve.y.clone());
     let t = &options.thresholds;
     let model = Logistic;
-    let plausible =
-        |f: &Fit| f.r2 >= t.min_r2 && f.theta[Logistic::IC50] > min_pos * 1e-3 && f.theta[Logistic::IC50] < max * 1e3;
-    let mut fit = fit_curve(&model, &data, &fixed, &options.settings, plausible);
-    let both_free = options.fix_lower.is_none() && options.fix_upper.is_none();
-    if both_free && fit.theta[Logistic::HILL] < 0.0 {
-        mirror(&mut fit);
-    }
+    let pass = exclude_outliers(curve.y.len(), n_free, options, |kept| {
+        let lf = fit_logistic(&subset(&curve.x, kept), &subset(&curve.y, kept), options, min_pos, max);
+        let worst = match options.outliers {
+            OutlierMode::Keep => None,
+            _ => worst_well(&model, &lf.data, &lf.fit, t.outlier_alpha),
+        };
+        (lf, worst)
+    });
+    let LogisticFit { fit, data, hill_held, window_flags } = &pass.result;
+    let hill_held = *hill_held;
     let mut flags = Vec::new();
-    if !determined(&fit, &curve.y) {
-        // The first start may have slid into a degenerate valley another start avoids.
-        let all = fit_small(&model, &data, &model.starts(&data), &fixed, &options.settings);
-        if all.converged() && determined(&all, &curve.y) {
-            fit = all;
-        }
-    }
-    if both_free && fit.theta[Logistic::HILL] < 0.0 {
-        mirror(&mut fit);
-    }
-    if !determined(&fit, &curve.y) {
-        // No transition inside the tested range: the slope is not determined and
-        // the free fit degenerates (h → 0, an asymptote running away). Hold h = 1
-        // (common practice) so that the IC50 can at least be placed, and say so.
-        let held = [None, Some(1.0), options.fix_lower, options.fix_upper];
-        fit = fit_curve(&model, &data, &held, &options.settings, plausible);
+    if hill_held {
         flags.push("hill-fixed");
     }
+    flags.extend(window_flags.iter().copied());
     let (ic50, hill, lower, upper) = (fit.theta[0], fit.theta[1], fit.theta[2], fit.theta[3]);
-    let top_effect = if upper > 0.0 { 1.0 - model.value(&fit.theta, &Dose::new(max)) / upper } else { 0.0 };
-    let qualifier = range_flags(ic50, min_pos, max, top_effect < t.min_inhibition, &mut flags);
+    let shape = Shape {
+        y_low: model.value(&fit.theta, &Dose::new(min_pos)),
+        y_high: model.value(&fit.theta, &Dose::new(max)),
+        upper,
+        lower,
+        lower_known: fit.fixed[Logistic::LOWER],
+        ic50,
+        plateau_reached: hill > 0.0 && ic50 * 9f64.powf(1.0 / hill) <= max,
+    };
+    let flat_p = flat_test(&data.y, fit);
+    let verdict = decide(&shape, flat_p, &data.y, options, min_pos, max);
+    let qualifier = verdict.apply(hill_held, &mut flags);
     if qualifier == Qualifier::Equal && !fit.fixed[Logistic::HILL] {
         if hill.abs() > t.hill_steep {
             flags.push("hill-steep");
@@ -306,45 +435,421 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
         if hill.abs() < t.hill_shallow {
             flags.push("hill-shallow");
         }
-        if options.fix_lower.is_none() && upper > 0.0 && lower / upper > t.partial_above {
-            flags.push("partial-inhibition");
-        }
     }
-    common_flags(&fit, levels, t, curve, &mut flags);
-    let ic50_param = ic50_param(&model, &data, &fit, Logistic::IC50, qualifier, min_pos, max, 0.0, options);
+    pass.flags(&mut flags);
+    common_flags(fit, levels, t, curve, &mut flags);
+    // A steep curve pins its IC50 between two tested concentrations; the Wald
+    // interval on ln IC50 is then too narrow (95 % intervals covered 90 % of
+    // steep simulated curves), so a steep curve gets the profile-likelihood
+    // interval whatever --intervals says. Few curves are steep, so this
+    // costs little.
+    let steep = qualifier == Qualifier::Equal && !fit.fixed[Logistic::HILL] && hill.abs() > t.hill_steep;
+    let profiled;
+    let interval_options = if steep && options.intervals == IntervalMethod::Wald {
+        profiled = Options { intervals: IntervalMethod::Profile, ..options.clone() };
+        &profiled
+    } else {
+        options
+    };
+    let mut ic50_param = ic50_param(&model, data, fit, Logistic::IC50, qualifier, min_pos, max, 0.0, interval_options);
+    if qualifier == Qualifier::About {
+        ic50_param.note = Some(HELD_SLOPE.into());
+    }
     let wald_linear = |j: usize, flag: &str| match fit.fixed[j] {
         true => Param { unit: options.response_unit.clone(), ..fixed_param(fit.theta[j], flag) },
         false => Param::new(
             fit.theta[j],
             fit.se[j],
-            wald(&fit, j, Scale::Linear, options.confidence),
+            wald(fit, j, Scale::Linear, options.confidence),
             "wald",
             options.response_unit.clone(),
         ),
+    };
+    let held_by = |option: &'static str, flag: &'static str| {
+        if flags.contains(&flag) { "the plausible window (the free fit fell outside it)" } else { option }
     };
     Ok(Ic50Result {
         compound: curve.compound.clone(),
         n: fit.n,
         converged: fit.converged(),
+        call: verdict.call,
+        reason: verdict.reason,
         qualifier,
         pic50: p_value(options.unit.to_molar(ic50_param.value)),
         ic50: ic50_param,
         hill: Some(match fit.fixed[Logistic::HILL] {
             true => fixed_param(hill, "kimech: not determined by the data (flag hill-fixed)"),
             false => {
-                Param::new(hill, fit.se[1], wald(&fit, Logistic::HILL, Scale::Linear, options.confidence), "wald", None)
+                Param::new(hill, fit.se[1], wald(fit, Logistic::HILL, Scale::Linear, options.confidence), "wald", None)
             }
         }),
-        upper: wald_linear(Logistic::UPPER, "--fix-upper"),
-        lower: wald_linear(Logistic::LOWER, "--fix-lower"),
+        upper: wald_linear(Logistic::UPPER, held_by("--fix-upper", "upper-outside-window")),
+        lower: wald_linear(Logistic::LOWER, held_by("--fix-lower", "lower-outside-window")),
         residual_sd: fit.residual_sd,
         r2: fit.r2,
         flags,
+        outliers: pass.listed(curve),
+        flat_p,
         carried: curve.carried.clone(),
         model: "logistic",
         ki_app: None,
         fitted: fit.theta.clone(),
     })
+}
+
+/// Why an IC50 from a fit with the Hill coefficient held is approximate.
+const HELD_SLOPE: &str = "approximate (~): no transition inside the tested range determines the Hill coefficient, so it was held at 1 (common practice); the IC50 and its interval lean on that assumption, and a free slope could put it elsewhere";
+
+/// A logistic fit on some wells, as the outlier rule needs it.
+struct LogisticFit {
+    fit: Fit,
+    data: Data<Dose>,
+    /// The Hill coefficient was held at 1 (the free fit was degenerate).
+    hill_held: bool,
+    /// `upper-outside-window` / `lower-outside-window` when an asymptote was held for that reason.
+    window_flags: Vec<&'static str>,
+}
+
+/// The values of `v` at the indices `kept`.
+fn subset(v: &[f64], kept: &[usize]) -> Vec<f64> {
+    kept.iter().map(|&i| v[i]).collect()
+}
+
+/// The logistic fit of one set of wells: the free fit (with its fallbacks
+/// and, when degenerate, h held at 1), then, for % activity, an asymptote
+/// outside its plausible window held at its control level (100 % or 0 %)
+/// and the curve refitted.
+fn fit_logistic(x: &[f64], y: &[f64], options: &Options, min_pos: f64, max: f64) -> LogisticFit {
+    let data = Data::unweighted(x.iter().map(|x| Dose::new(*x)).collect(), y.to_vec());
+    let t = &options.thresholds;
+    let (mut fix_lower, mut fix_upper) = (options.fix_lower, options.fix_upper);
+    let (mut fit, mut hill_held) = fit_held(&data, options, fix_lower, fix_upper, min_pos, max);
+    let mut window_flags = Vec::new();
+    if options.percent {
+        let inside = |v: f64, (lo, hi): (f64, f64)| v >= lo && v <= hi;
+        if fix_upper.is_none() && !inside(fit.theta[Logistic::UPPER], t.upper_window) {
+            fix_upper = Some(100.0);
+            window_flags.push("upper-outside-window");
+        }
+        if fix_lower.is_none() && !inside(fit.theta[Logistic::LOWER], t.lower_window) {
+            fix_lower = Some(0.0);
+            window_flags.push("lower-outside-window");
+        }
+        if !window_flags.is_empty() {
+            (fit, hill_held) = fit_held(&data, options, fix_lower, fix_upper, min_pos, max);
+        }
+    }
+    LogisticFit { fit, data, hill_held, window_flags }
+}
+
+/// The free 4PL fit with the given asymptotes held; when the data do not
+/// determine it (no transition in range: h → 0, an asymptote running away)
+/// h is held at 1 (common practice) so that the IC50 can at least be placed.
+/// Returns the fit and whether h was held.
+///
+/// Cost: a clean curve takes one minimiser run (the data-driven start). The
+/// other starts run only when that fit is doubtful, and once; the held fit
+/// runs from its first start unless that does not converge. Flat and
+/// out-of-range curves — most of a screening deck — thus cost a handful of
+/// runs, not a dozen.
+fn fit_held(
+    data: &Data<Dose>,
+    options: &Options,
+    fix_lower: Option<f64>,
+    fix_upper: Option<f64>,
+    min_pos: f64,
+    max: f64,
+) -> (Fit, bool) {
+    let t = &options.thresholds;
+    let model = Logistic;
+    let fixed = [None, None, fix_lower, fix_upper];
+    let both_free = fix_lower.is_none() && fix_upper.is_none();
+    let upright = |mut f: Fit| {
+        if both_free && f.theta[Logistic::HILL] < 0.0 {
+            mirror(&mut f);
+        }
+        f
+    };
+    let plausible =
+        |f: &Fit| f.r2 >= t.min_r2 && f.theta[Logistic::IC50] > min_pos * 1e-3 && f.theta[Logistic::IC50] < max * 1e3;
+    let good = |f: &Fit| f.converged() && plausible(f) && determined(f, &data.y);
+    let starts = model.starts(data);
+    let mut fit = upright(fit_small(&model, data, &starts[..1.min(starts.len())], &fixed, &options.settings));
+    if !good(&fit) && starts.len() > 1 {
+        // The first start may have slid into a degenerate valley another start avoids.
+        let rest = upright(fit_small(&model, data, &starts[1..], &fixed, &options.settings));
+        let (a, b) = (determined(&fit, &data.y), determined(&rest, &data.y));
+        if (b && !a) || (a == b && (rest.sse < fit.sse || (!fit.sse.is_finite() && rest.sse.is_finite()))) {
+            fit = rest;
+        }
+    }
+    if determined(&fit, &data.y) {
+        return (fit, false);
+    }
+    let held = [None, Some(1.0), fix_lower, fix_upper];
+    (fit_curve(&model, data, &held, &options.settings, |f| f.converged()), true)
+}
+
+/// The outlier rule's result: the final fit, and which wells it marked.
+struct Pass<T> {
+    result: T,
+    /// Indices (into the curve) of the marked wells, in the order found.
+    marked: Vec<usize>,
+    /// The rule marked more wells than the cap allows.
+    too_many: bool,
+    mode: OutlierMode,
+}
+
+impl<T> Pass<T> {
+    fn flags(&self, flags: &mut Vec<&'static str>) {
+        match self.mode {
+            _ if self.marked.is_empty() => {}
+            OutlierMode::Exclude => flags.push("outlier-excluded"),
+            OutlierMode::Flag => flags.push("outlier-flagged"),
+            OutlierMode::Keep => {}
+        }
+        if self.too_many {
+            flags.push("too-many-outliers");
+        }
+    }
+
+    fn listed(&self, curve: &Curve) -> Vec<Outlier> {
+        self.marked
+            .iter()
+            .map(|&i| Outlier { line: curve.lines.get(i).copied(), concentration: curve.x[i], response: curve.y[i] })
+            .collect()
+    }
+}
+
+/// Fits, then while the outlier rule marks a well (and the cap allows),
+/// drops it and refits. `fit_on(kept)` fits the wells `kept` and returns the
+/// index *within `kept`* of the well the rule marks, if any. With
+/// [`OutlierMode::Flag`] the marked wells are only listed: the final fit
+/// uses every well.
+fn exclude_outliers<T>(
+    n: usize,
+    n_free: usize,
+    options: &Options,
+    mut fit_on: impl FnMut(&[usize]) -> (T, Option<usize>),
+) -> Pass<T> {
+    let all: Vec<usize> = (0..n).collect();
+    let (mut result, mut worst) = fit_on(&all);
+    let mut kept = all.clone();
+    let mut marked = Vec::new();
+    let mut too_many = false;
+    while let Some(k) = worst {
+        // The rule needs two residual degrees of freedom after a deletion.
+        if marked.len() >= options.thresholds.max_outliers || kept.len() <= n_free + 3 {
+            too_many = true;
+            break;
+        }
+        marked.push(kept.remove(k));
+        (result, worst) = fit_on(&kept);
+    }
+    if options.outliers == OutlierMode::Flag && !marked.is_empty() {
+        result = fit_on(&all).0;
+    }
+    Pass { result, marked, too_many, mode: options.outliers }
+}
+
+/// The well whose externally studentized residual exceeds the Bonferroni
+/// bound, if any (Cook & Weisberg, *Residuals and Influence in Regression*,
+/// 1982, §2.2; the Bonferroni outlier test of their §2.2.3). For well i with
+/// residual eᵢ and leverage hᵢ (the diagonal of J(JᵀJ)⁻¹Jᵀ, the hat matrix of
+/// the model linearised at the optimum — Cook & Weisberg §5.3 for nonlinear
+/// models), tᵢ = eᵢ / (s₍ᵢ₎·√(1 − hᵢ)) with s₍ᵢ₎² = (SSE − eᵢ²/(1 − hᵢ))/(df − 1),
+/// the residual variance with well i left out. The largest |tᵢ| is marked
+/// when it exceeds t(1 − α/(2n); df − 1). Wells with hᵢ > 0.99 are not judged:
+/// the curve can pass through them, so their residual says nothing.
+/// Costs one pass over the wells with the fit's covariance; no refit.
+fn worst_well<M: Model>(model: &M, data: &Data<M::Point>, fit: &Fit, alpha: f64) -> Option<usize> {
+    let cov = fit.covariance.as_ref()?;
+    if fit.df < 3 || !fit.converged() || fit.sse.is_nan() || fit.sse <= 0.0 {
+        return None;
+    }
+    let free: Vec<usize> = (0..fit.theta.len()).filter(|&j| !fit.fixed[j]).collect();
+    let s2 = fit.sse / fit.df as f64;
+    let mut grad = vec![0.0; fit.theta.len()];
+    let mut worst: Option<(usize, f64)> = None;
+    for (i, (x, &e)) in data.x.iter().zip(&fit.residuals).enumerate() {
+        model.gradient(&fit.theta, x, &mut grad);
+        let mut h = 0.0;
+        for (a, &ja) in free.iter().enumerate() {
+            for (b, &jb) in free.iter().enumerate() {
+                h += grad[ja] * cov[(a, b)] * grad[jb];
+            }
+        }
+        let h = h / s2;
+        if !(0.0..=0.99).contains(&h) {
+            continue;
+        }
+        let sse_without = fit.sse - e * e / (1.0 - h);
+        if sse_without.is_nan() || sse_without <= 0.0 {
+            continue;
+        }
+        let t = e.abs() / ((sse_without / (fit.df - 1) as f64).sqrt() * (1.0 - h).sqrt());
+        if worst.is_none_or(|(_, w)| t > w) {
+            worst = Some((i, t));
+        }
+    }
+    let (i, t) = worst?;
+    let bound = cached_t(1.0 - alpha / data.len() as f64, fit.df - 1)?;
+    (t > bound).then_some(i)
+}
+
+/// p of the extra-sum-of-squares F test of a flat line (the mean) against
+/// the fitted curve, F = ((SSE₀ − SSE₁)/(df₀ − df₁))/(SSE₁/df₁) (Bates &
+/// Watts 1988; DESIGN §5). `None` when it cannot be formed.
+fn flat_test(y: &[f64], fit: &Fit) -> Option<f64> {
+    let n = y.len();
+    let mean = y.iter().sum::<f64>() / n as f64;
+    let sse_flat: f64 = y.iter().map(|v| (v - mean) * (v - mean)).sum();
+    crate::fit::stats::extra_sum_of_squares(sse_flat, n.saturating_sub(1), fit.sse, fit.df).map(|(_, p)| p)
+}
+
+/// Where the fitted curve sits, for the call.
+struct Shape {
+    /// Fitted response at the lowest positive concentration.
+    y_low: f64,
+    /// Fitted response at the highest concentration.
+    y_high: f64,
+    upper: f64,
+    lower: f64,
+    /// The lower asymptote was held, not fitted (so "partial" cannot be judged from it).
+    lower_known: bool,
+    /// IC50 (relative: where the curve is half-way between its asymptotes).
+    ic50: f64,
+    /// 90 % of the curve's own effect is reached inside the range.
+    plateau_reached: bool,
+}
+
+/// The call, its qualifier and its reason.
+struct Verdict {
+    call: Call,
+    qualifier: Qualifier,
+    reason: String,
+}
+
+impl Verdict {
+    /// The qualifier as reported (`~` for an in-range IC50 with h held) and the call's flags.
+    fn apply(&self, hill_held: bool, flags: &mut Vec<&'static str>) -> Qualifier {
+        match self.call {
+            Call::Inactive => flags.push("no-inhibition"),
+            Call::Partial => flags.push("partial-inhibition"),
+            _ => {}
+        }
+        match self.qualifier {
+            Qualifier::Greater => flags.push("ic50-above-range"),
+            Qualifier::Less => flags.push("ic50-below-range"),
+            _ => {}
+        }
+        if hill_held && self.qualifier == Qualifier::Equal { Qualifier::About } else { self.qualifier }
+    }
+}
+
+/// The call from the data (module docs, "Calls"): first the F test of a flat
+/// line, then where the fitted curve crosses half activity — half-way
+/// between 100 % and 0 % for % activity, half-way between the fitted
+/// asymptotes for raw signal.
+fn decide(shape: &Shape, flat_p: Option<f64>, y: &[f64], options: &Options, min_pos: f64, max: f64) -> Verdict {
+    let t = &options.thresholds;
+    let sig3 = |v: f64| crate::io::output::sig(v, 3);
+    let verdict = |call, qualifier, reason: String| Verdict { call, qualifier, reason };
+    let p_text = flat_p.map_or("not formed".into(), |p| crate::io::output::sig(p, 2));
+    let flat = flat_p.is_some_and(|p| p >= t.flat_alpha);
+    if flat {
+        let mean = y.iter().sum::<f64>() / y.len() as f64;
+        if options.percent && mean < 50.0 {
+            return verdict(
+                Call::Complete,
+                Qualifier::Less,
+                format!(
+                    "a flat line fits as well as the curve (F test p = {p_text} ≥ {}) at {} % activity, below half: inhibition is complete at the lowest concentration",
+                    t.flat_alpha,
+                    sig3(mean)
+                ),
+            );
+        }
+        return verdict(
+            Call::Inactive,
+            Qualifier::Greater,
+            format!(
+                "a flat line fits as well as the curve (F test p = {p_text} ≥ {}): no significant inhibition up to the highest concentration",
+                t.flat_alpha
+            ),
+        );
+    }
+    let (top, half) = if options.percent { (100.0, 50.0) } else { (shape.upper, 0.5 * (shape.upper + shape.lower)) };
+    let effect = if top > 0.0 { 1.0 - shape.y_high / top } else { 0.0 };
+    let unit = if options.percent { " %" } else { "" };
+    if effect < t.min_inhibition {
+        return verdict(
+            Call::Inactive,
+            Qualifier::Greater,
+            format!(
+                "the fitted inhibition at the highest concentration is {} %, below --min-inhibition ({} %) (F test against a flat line p = {p_text})",
+                sig3(100.0 * effect),
+                100.0 * t.min_inhibition
+            ),
+        );
+    }
+    let partial = !shape.lower_known && top > 0.0 && shape.lower / top > t.partial_above && shape.lower < shape.upper;
+    if shape.y_low < half || (!options.percent && shape.ic50 < min_pos) {
+        return verdict(
+            Call::Complete,
+            Qualifier::Less,
+            format!(
+                "the fitted curve is already below half ({}{unit}) at the lowest concentration ({}{unit}): inhibition is complete there",
+                sig3(half),
+                sig3(shape.y_low)
+            ),
+        );
+    }
+    if shape.y_high > half || (!options.percent && shape.ic50 > max) {
+        if partial && shape.plateau_reached {
+            return verdict(
+                Call::Partial,
+                Qualifier::Greater,
+                format!(
+                    "the curve levels off at {}{unit}, above half ({}{unit}): partial inhibition that never reaches half",
+                    sig3(shape.lower),
+                    sig3(half)
+                ),
+            );
+        }
+        return verdict(
+            Call::Weak,
+            Qualifier::Greater,
+            format!(
+                "inhibition starts (F test against a flat line p = {p_text}) but the fitted curve is still above half ({}{unit}) at the highest concentration ({}{unit})",
+                sig3(half),
+                sig3(shape.y_high)
+            ),
+        );
+    }
+    // Crosses half inside the range; the reported IC50 is the curve's own
+    // midpoint, which for % data with asymptotes off 100/0 may still fall outside.
+    let qualifier = if shape.ic50 > max {
+        Qualifier::Greater
+    } else if shape.ic50 < min_pos {
+        Qualifier::Less
+    } else {
+        Qualifier::Equal
+    };
+    let call = if partial { Call::Partial } else { Call::Full };
+    let what = if partial {
+        format!("levels off at {}{unit}, well above zero activity (partial inhibition)", sig3(shape.lower))
+    } else {
+        "a full curve".into()
+    };
+    verdict(
+        call,
+        qualifier,
+        format!(
+            "the fitted curve crosses half ({}{unit}) inside the tested range and {what} (F test against a flat line p = {p_text})",
+            sig3(half)
+        ),
+    )
 }
 
 /// Whether a free 4PL fit is a curve the data determine: a Hill coefficient
@@ -417,9 +922,14 @@ fn cached_t(confidence: f64, df: usize) -> Option<f64> {
 /// Minimiser settings for dose-response curves: relative tolerances of
 /// 1e-10 on SSE and parameters (IC50 to about ten digits, far inside any
 /// assay's precision) instead of the engine's 1e-15, which at a million
-/// curves costs iterations that change nothing that is reported.
+/// curves costs iterations that change nothing that is reported. The
+/// evaluation budget is 50 × (free parameters + 1): a curve the data
+/// determine converges in a few dozen evaluations, while a degenerate one
+/// (a flat curve whose asymptote runs away, now that linear parameters are
+/// not clamped) would otherwise spend the engine's full budget going nowhere
+/// — and most curves of a screening deck are flat.
 pub fn screening_settings() -> FitSettings {
-    FitSettings { ftol: 1e-10, xtol: 1e-10, gtol: 1e-12, patience: 200, polish: false }
+    FitSettings { ftol: 1e-10, xtol: 1e-10, gtol: 1e-12, patience: 50, polish: false }
 }
 
 fn fixed_param(value: f64, flag: &str) -> Param {
@@ -431,22 +941,6 @@ fn fixed_param(value: f64, flag: &str) -> Param {
         unit: None,
         interval: "fixed",
         note: Some(format!("held fixed by {flag}")),
-    }
-}
-
-/// The qualifier from where the IC50 falls, with its flag.
-fn range_flags(ic50: f64, min_pos: f64, max: f64, no_inhibition: bool, flags: &mut Vec<&'static str>) -> Qualifier {
-    if no_inhibition {
-        flags.push("no-inhibition");
-    }
-    if no_inhibition || ic50 > max || ic50.is_nan() {
-        flags.push("ic50-above-range");
-        Qualifier::Greater
-    } else if ic50 < min_pos {
-        flags.push("ic50-below-range");
-        Qualifier::Less
-    } else {
-        Qualifier::Equal
     }
 }
 
@@ -519,19 +1013,38 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
     let fixed = [None, options.fix_upper];
     let n_free = fixed.iter().filter(|f| f.is_none()).count();
     let (levels, min_pos, max) = check(curve, n_free)?;
-    let data = Data::unweighted(curve.x.clone(), curve.y.clone());
     let t = &options.thresholds;
     let model = Morrison { et };
-    let fit = fit_curve(&model, &data, &fixed, &options.settings, |f| f.r2 >= t.min_r2);
+    let pass = exclude_outliers(curve.y.len(), n_free, options, |kept| {
+        let data = Data::unweighted(subset(&curve.x, kept), subset(&curve.y, kept));
+        let fit = fit_curve(&model, &data, &fixed, &options.settings, |f| f.r2 >= t.min_r2);
+        let worst = match options.outliers {
+            OutlierMode::Keep => None,
+            _ => worst_well(&model, &data, &fit, t.outlier_alpha),
+        };
+        ((fit, data), worst)
+    });
+    let (fit, data) = &pass.result;
     let (k, upper) = (fit.theta[Morrison::KI_APP], fit.theta[Morrison::UPPER]);
-    let top_effect = if upper > 0.0 { 1.0 - model.value(&fit.theta, &max) / upper } else { 0.0 };
+    let shape = Shape {
+        y_low: model.value(&fit.theta, &min_pos),
+        y_high: model.value(&fit.theta, &max),
+        upper,
+        lower: 0.0,
+        lower_known: true,
+        ic50: k + et / 2.0,
+        plateau_reached: true,
+    };
+    let flat_p = flat_test(&data.y, fit);
+    let verdict = decide(&shape, flat_p, &data.y, options, min_pos, max);
     let mut flags = Vec::new();
-    let qualifier = range_flags(k + et / 2.0, min_pos, max, top_effect < t.min_inhibition, &mut flags);
+    let qualifier = verdict.apply(false, &mut flags);
     if qualifier == Qualifier::Equal && k < et / 10.0 {
         flags.push("tight-binding-titration");
     }
-    common_flags(&fit, levels, t, curve, &mut flags);
-    let ic50 = ic50_param(&model, &data, &fit, Morrison::KI_APP, qualifier, min_pos, max, et / 2.0, options);
+    pass.flags(&mut flags);
+    common_flags(fit, levels, t, curve, &mut flags);
+    let ic50 = ic50_param(&model, data, fit, Morrison::KI_APP, qualifier, min_pos, max, et / 2.0, options);
     let unit = Some(options.unit.symbol().to_string());
     let ki_app = match qualifier {
         Qualifier::Equal => ic50.scaled(1.0, unit.clone()).shifted(-et / 2.0),
@@ -542,7 +1055,7 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
         false => Param::new(
             upper,
             fit.se[1],
-            wald(&fit, 1, Scale::Linear, options.confidence),
+            wald(fit, 1, Scale::Linear, options.confidence),
             "wald",
             options.response_unit.clone(),
         ),
@@ -553,6 +1066,8 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
         compound: curve.compound.clone(),
         n: fit.n,
         converged: fit.converged(),
+        call: verdict.call,
+        reason: verdict.reason,
         qualifier,
         pic50: p_value(options.unit.to_molar(ic50.value)),
         ic50,
@@ -562,6 +1077,8 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
         residual_sd: fit.residual_sd,
         r2: fit.r2,
         flags,
+        outliers: pass.listed(curve),
+        flat_p,
         carried: curve.carried.clone(),
         model: "morrison",
         ki_app: Some(ki_app),

@@ -15,7 +15,9 @@ use std::path::PathBuf;
 use rayon::prelude::*;
 
 use super::{CAUTION, OutputArgs, parse_flag_concentration, parse_fraction};
-use crate::analysis::ic50::{Carried, Curve, Ic50Result, IntervalMethod, Options, PlateQc, Thresholds, Wells, analyse};
+use crate::analysis::ic50::{
+    Carried, Curve, Ic50Result, IntervalMethod, Options, OutlierMode, PlateQc, Thresholds, Wells, analyse,
+};
 use crate::error::{Error, Result};
 use crate::io::input::Record;
 use crate::io::output::{neutralise_formula, new_grid, sig};
@@ -81,6 +83,31 @@ pub struct Args {
     /// Flag plates (and their compounds) whose Z′ is below this (Zhang et al. 1999: 0.5).
     #[arg(long, default_value_t = Thresholds::default().min_z_prime)]
     pub min_z_prime: f64,
+    /// Wells the outlier rule marks (externally studentized residual beyond the Bonferroni
+    /// bound, Cook & Weisberg 1982): exclude and refit, flag only, or keep (plain least squares).
+    #[arg(long, value_enum, default_value_t = OutlierMode::Exclude)]
+    pub outliers: OutlierMode,
+    /// Family-wise level of the outlier rule, per curve.
+    #[arg(long, default_value_t = Thresholds::default().outlier_alpha, value_parser = parse_fraction)]
+    pub outlier_alpha: f64,
+    /// Most wells one curve may lose to the outlier rule (flag `too-many-outliers` beyond).
+    #[arg(long, default_value_t = Thresholds::default().max_outliers)]
+    pub max_outliers: usize,
+    /// Level of the F test of a flat line against the curve: p at or above it is "no significant inhibition".
+    #[arg(long, default_value_t = Thresholds::default().flat_alpha, value_parser = parse_fraction)]
+    pub flat_alpha: f64,
+    /// % activity: lowest plausible fitted upper asymptote (else held at 100, flag `upper-outside-window`).
+    #[arg(long, default_value_t = Thresholds::default().upper_window.0, allow_negative_numbers = true)]
+    pub upper_min: f64,
+    /// % activity: highest plausible fitted upper asymptote.
+    #[arg(long, default_value_t = Thresholds::default().upper_window.1, allow_negative_numbers = true)]
+    pub upper_max: f64,
+    /// % activity: lowest plausible fitted lower asymptote (else held at 0, flag `lower-outside-window`).
+    #[arg(long, default_value_t = Thresholds::default().lower_window.0, allow_negative_numbers = true)]
+    pub lower_min: f64,
+    /// % activity: highest plausible fitted lower asymptote.
+    #[arg(long, default_value_t = Thresholds::default().lower_window.1, allow_negative_numbers = true)]
+    pub lower_max: f64,
     /// Curves per parallel batch (memory and progress granularity).
     #[arg(long, default_value_t = 2048, hide = true)]
     pub batch_size: usize,
@@ -112,6 +139,14 @@ impl Args {
             min_r2: defaults.min_r2,
             min_concentrations: defaults.min_concentrations,
             min_z_prime: defaults.min_z_prime,
+            outliers: OutlierMode::Exclude,
+            outlier_alpha: defaults.outlier_alpha,
+            max_outliers: defaults.max_outliers,
+            flat_alpha: defaults.flat_alpha,
+            upper_min: defaults.upper_window.0,
+            upper_max: defaults.upper_window.1,
+            lower_min: defaults.lower_window.0,
+            lower_max: defaults.lower_window.1,
             batch_size: 2048,
             output: OutputArgs { format, output: None },
             pictures: super::PictureArgs::default(),
@@ -127,6 +162,11 @@ impl Args {
             min_r2: self.min_r2,
             min_concentrations: self.min_concentrations,
             min_z_prime: self.min_z_prime,
+            flat_alpha: self.flat_alpha,
+            outlier_alpha: self.outlier_alpha,
+            max_outliers: self.max_outliers,
+            upper_window: (self.upper_min, self.upper_max),
+            lower_window: (self.lower_min, self.lower_max),
         }
     }
 }
@@ -323,7 +363,10 @@ pub fn run_source_with(
     } else {
         grouper.stream.table().unit_text(grouper.layout.response).map(str::to_string)
     };
+    let percent = response_unit.as_deref() == Some("%");
     let options_for = |unit: ConcUnit| Options {
+        percent,
+        outliers: args.outliers,
         response_unit: response_unit.clone(),
         fix_lower: args.fix_lower,
         fix_upper: args.fix_upper,
@@ -401,6 +444,14 @@ fn check_options(args: &Args) -> Result<()> {
             problem: "the Morrison model (--enzyme) has no lower asymptote; inhibition is complete at saturation"
                 .into(),
             expected: "drop --fix-lower, and give % activity (--normalise) or background-subtracted signal".into(),
+        });
+    }
+    if !(args.upper_min < args.upper_max && args.lower_min < args.lower_max) {
+        return Err(Error::Option {
+            option: "--upper-min/--upper-max/--lower-min/--lower-max".into(),
+            value: format!("{}..{}, {}..{}", args.upper_min, args.upper_max, args.lower_min, args.lower_max),
+            problem: "a plausible window must have its minimum below its maximum".into(),
+            expected: "e.g. --upper-min 70 --upper-max 130 --lower-min -30 --lower-max 100 (the defaults)".into(),
         });
     }
     if args.min_concentrations < 2 || args.min_z_prime >= 1.0 || args.min_z_prime.is_nan() || args.hill_shallow < 0.0 {
@@ -582,6 +633,7 @@ struct Block {
     last: u64,
     x: Vec<f64>,
     y: Vec<f64>,
+    lines: Vec<u64>,
     carried: Vec<Vec<String>>,
     low_z: bool,
     error: Option<Error>,
@@ -664,6 +716,7 @@ impl<'a> Grouper<'a> {
             last: line,
             x: Vec::new(),
             y: Vec::new(),
+            lines: Vec::new(),
             carried: vec![Vec::new(); self.layout.carried.len()],
             low_z: false,
             error: None,
@@ -765,6 +818,7 @@ impl<'a> Grouper<'a> {
         let reporting = *unit.get_or_insert(c.unit);
         b.x.push(reporting.from_molar(c.molar));
         b.y.push(y);
+        b.lines.push(row.line);
         Ok(())
     }
 
@@ -790,7 +844,15 @@ impl<'a> Grouper<'a> {
             .collect();
         let origin =
             if b.first == b.last { format!("line {}", b.first) } else { format!("lines {}-{}", b.first, b.last) };
-        Ok(Curve { compound: b.compound, origin, x: b.x, y: b.y, carried: Carried(carried), read_flags })
+        Ok(Curve {
+            compound: b.compound,
+            origin,
+            x: b.x,
+            y: b.y,
+            lines: b.lines,
+            carried: Carried(carried),
+            read_flags,
+        })
     }
 }
 
@@ -849,6 +911,7 @@ fn csv_fields(morrison: bool) -> Vec<&'static str> {
         "compound",
         "n",
         "converged",
+        "call",
         "qualifier",
         "ic50",
         "ic50_se",
@@ -871,6 +934,8 @@ fn csv_fields(morrison: bool) -> Vec<&'static str> {
         "residual_sd",
         "r2",
         "model",
+        "flat_p",
+        "outliers",
     ];
     if morrison {
         f.extend(["ki_app", "ki_app_low", "ki_app_high"]);
@@ -1033,6 +1098,7 @@ fn csv_row(r: &Ic50Result, morrison: bool) -> Vec<String> {
         neutralise_formula(&r.compound),
         r.n.to_string(),
         r.converged.to_string(),
+        r.call.word().to_string(),
         r.qualifier.symbol().to_string(),
         qualified(r.qualifier, r.ic50.value),
         opt(r.ic50.se),
@@ -1049,7 +1115,7 @@ fn csv_row(r: &Ic50Result, morrison: bool) -> Vec<String> {
     }
     row.extend(param_cells(&r.upper));
     row.extend(param_cells(&r.lower));
-    row.extend([num(r.residual_sd), num(r.r2), r.model.to_string()]);
+    row.extend([num(r.residual_sd), num(r.r2), r.model.to_string(), opt(r.flat_p), r.outliers.len().to_string()]);
     if morrison {
         match &r.ki_app {
             Some(k) => row.extend([qualified(r.qualifier, k.value), opt(k.low), opt(k.high)]),
@@ -1064,11 +1130,11 @@ fn csv_row(r: &Ic50Result, morrison: bool) -> Vec<String> {
 fn human_batch(results: &[&Ic50Result], morrison: bool, unit: ConcUnit, confidence: f64) -> String {
     let level = format!("{:.0}% interval", 100.0 * confidence);
     let mut header: Vec<String> =
-        ["compound", "n", &format!("IC50 ({unit})"), &level, "pIC50", "Hill", "upper", "lower", "R²"]
+        ["compound", "n", "call", &format!("IC50 ({unit})"), &level, "pIC50", "Hill", "upper", "lower", "R²"]
             .map(String::from)
             .to_vec();
     if morrison {
-        header[5] = format!("Ki,app ({unit})");
+        header[6] = format!("Ki,app ({unit})");
     }
     header.push("flags".into());
     let mut grid = new_grid(header);
@@ -1095,9 +1161,14 @@ fn human_batch(results: &[&Ic50Result], morrison: bool, unit: ConcUnit, confiden
             (false, Qualifier::Equal) => r.hill.as_ref().map_or("—".into(), |h| sig(h.value, 3)),
             (false, _) => "—".into(),
         };
+        let n = match r.outliers.len() {
+            0 => r.n.to_string(),
+            k => format!("{} (+{k} out)", r.n),
+        };
         grid.add_row(vec![
             r.compound.clone(),
-            r.n.to_string(),
+            n,
+            r.call.word().to_string(),
             ic50,
             interval,
             pic50,
@@ -1149,15 +1220,34 @@ pub fn flag_meaning(code: &str) -> &'static str {
         "hill-shallow" => {
             "Hill coefficient shallower than the --hill-shallow limit (heterogeneity, solubility or several sites?)"
         }
-        "partial-inhibition" => "activity left at saturating inhibitor (lower/upper above --partial-above)",
-        "no-inhibition" => "less than --min-inhibition inhibition at the highest concentration",
+        "partial-inhibition" => {
+            "the curve levels off well above zero activity (lower asymptote above --partial-above of the full activity)"
+        }
+        "no-inhibition" => {
+            "no significant inhibition: a flat line fits as well (F test, --flat-alpha), or less than --min-inhibition at the highest concentration"
+        }
         "poor-fit" => "R² below --min-r2: the logistic does not describe these data well",
         "too-few-points" => "fewer distinct concentrations than --min-concentrations",
         "not-converged" => "the fit did not converge; the estimates are not trustworthy",
-        "hill-fixed" => "no transition inside the tested range determines the slope; Hill held at 1 to place the IC50",
+        "hill-fixed" => {
+            "no transition inside the tested range determines the slope; Hill held at 1 to place the IC50, which is therefore approximate (~) or a bound"
+        }
         "tight-binding-titration" => "Ki,app below Et/10: the curve mostly measures the enzyme concentration",
         "plate-z-prime-low" => "a plate of this compound has Z′ below --min-z-prime",
         "carried-varies" => "a carried column has different values within the compound (joined with ';')",
+        "outlier-excluded" => {
+            "wells marked by the outlier rule (studentized residual beyond the Bonferroni bound, Cook & Weisberg 1982) were left out of the fit; they are listed"
+        }
+        "outlier-flagged" => "wells marked by the outlier rule are listed but still fitted (--outliers flag)",
+        "too-many-outliers" => {
+            "the outlier rule marks more wells than --max-outliers allows; the curve itself may be unreliable"
+        }
+        "upper-outside-window" => {
+            "% activity: the fitted upper asymptote fell outside --upper-min..--upper-max; it was held at 100 %"
+        }
+        "lower-outside-window" => {
+            "% activity: the fitted lower asymptote fell outside --lower-min..--lower-max; it was held at 0 %"
+        }
         _ => "",
     }
 }

@@ -6,7 +6,7 @@
 
 use super::charts::{DoseCurve, dose_panel};
 use super::html::{Block, Section};
-use super::xy::{Direction, XyChart};
+use super::xy::{Direction, Layer, XyChart};
 use super::{PANEL, Svg, THUMBNAIL};
 use crate::analysis::ic50::{Curve, Ic50Result};
 use crate::error::Result;
@@ -55,16 +55,33 @@ pub fn panel(r: &Ic50Result, curve: &Curve, unit: &str, response: &str, et: Opti
     let y_at_ic50 = f.as_ref().map_or(mid, |f| f(r.ic50.value));
     let hill = r.hill.as_ref().map_or(String::new(), |h| format!(" · Hill {}", sig(h.value, 2)));
     let flags = if r.flags.is_empty() { String::new() } else { format!(" · flags: {}", r.flags.join(", ")) };
+    // Wells the outlier rule marked are drawn apart, with their own marker.
+    let is_marked = |x: f64, y: f64| {
+        r.outliers.iter().any(|o| o.concentration.to_bits() == x.to_bits() && o.response.to_bits() == y.to_bits())
+    };
+    let (marked, kept): (Vec<_>, Vec<_>) =
+        curve.x.iter().cloned().zip(curve.y.iter().cloned()).partition(|&(x, y)| is_marked(x, y));
+    let lowest = kept.iter().chain(&marked).map(|p| p.0).filter(|x| *x > 0.0).fold(f64::INFINITY, f64::min);
     let mut chart = dose_panel(DoseCurve {
         title: r.compound.clone(),
         subtitle: format!("{}{hill}{flags}", ic50_text(r, unit)),
         flagged: !r.flags.is_empty(),
-        points: curve.x.iter().cloned().zip(curve.y.iter().cloned()).collect(),
+        points: kept,
         fit: f,
         ic50: Some((r.ic50.value, y_at_ic50, r.ic50.low, r.ic50.high, direction(r.qualifier))),
         unit: Some(unit.to_string()),
         response: response.to_string(),
     });
+    if !marked.is_empty() {
+        // Zero-concentration wells sit at the left edge, as in the dose panel.
+        let points = marked.iter().map(|&(x, y)| (if x > 0.0 { x } else { lowest / 10f64.sqrt() }, y)).collect();
+        let label = if r.flags.contains(&"outlier-flagged") { "outlier (still fitted)" } else { "outlier (excluded)" };
+        chart.layers.push(Layer::Points { label: Some(label.into()), series: 3, points });
+        chart.notes.push(format!(
+            "{} well(s) marked by the outlier rule (studentized residual beyond the Bonferroni bound, Cook & Weisberg 1982).",
+            marked.len()
+        ));
+    }
     if r.qualifier.is_bound() {
         chart
             .notes
@@ -83,7 +100,16 @@ pub fn figure(r: &Ic50Result, curve: &Curve, unit: &str, response: &str, et: Opt
 pub fn grid(items: &[(&Ic50Result, &Curve)], unit: &str, response: &str, et: Option<f64>) -> Result<Svg> {
     let mut order: Vec<usize> = (0..items.len()).collect();
     order.sort_by_key(|&k| items[k].0.flags.is_empty());
-    let panels: Vec<XyChart> = order.iter().map(|&k| panel(items[k].0, items[k].1, unit, response, et)).collect();
+    let mut panels: Vec<XyChart> = order.iter().map(|&k| panel(items[k].0, items[k].1, unit, response, et)).collect();
+    // % activity thumbnails share one axis: at least 0–100 % (with a margin),
+    // widened only as far as the wells shown need, so curves compare at a glance.
+    if response.contains('%') {
+        let ys = items.iter().flat_map(|(_, c)| c.y.iter().copied()).filter(|y| y.is_finite());
+        let (lo, hi) = ys.fold((-10.0f64, 120.0f64), |(lo, hi), y| (lo.min(y), hi.max(y)));
+        for p in &mut panels {
+            p.y = p.y.clone().fixed(lo, hi);
+        }
+    }
     super::figure(&panels, 3, THUMBNAIL, "the dose-response thumbnails")
 }
 
