@@ -253,7 +253,8 @@ fn qualified_ic50_gives_a_qualified_ki_without_interval() {
                C,>=2 uM,,,50 uM,50 uM\n\
                D,~200 nM,150 nM,260 nM,50 uM,50 uM\n";
     let (_, rows) = run_json(csv, &["--mechanism", "competitive"]);
-    let expect = [(">", 5000.0), ("<", 2.5), (">=", 1000.0), ("=", 100.0)];
+    // An approximate IC50 gives an approximate Ki, never an exact one (issue 9).
+    let expect = [(">", 5000.0), ("<", 2.5), (">=", 1000.0), ("~", 100.0)];
     for (r, (q, v)) in rows.iter().zip(expect) {
         assert_eq!(r["ki"]["qualifier"], q, "{r}");
         assert_relative_eq!(r["ki"]["value"].as_f64().unwrap(), v, max_relative = 1e-12);
@@ -265,6 +266,21 @@ fn qualified_ic50_gives_a_qualified_ki_without_interval() {
     assert!(flags(&rows[3]).contains(&"approximate-input".to_string()));
     assert!(!flags(&rows[3]).contains(&"qualified-input".to_string()));
     assert!(rows[3]["ki"]["low"].is_number());
+}
+
+/// A curve `kimech ic50` called partial gives an error row naming the `call`
+/// cell, never a Ki; the call column and the outlier flag are carried (issue 9).
+#[test]
+fn partial_curve_gives_an_error_row_and_the_outlier_flag_is_carried() {
+    let csv = "compound,call,ic50,substrate,km,flags\n\
+               A,partial,200 nM,50 uM,50 uM,partial-inhibition\n\
+               B,full,200 nM,50 uM,50 uM,outlier-excluded\n";
+    let (code, rows) = run_json(csv, &["--mechanism", "competitive"]);
+    assert_eq!(code, 3);
+    assert!(rows[0]["error"].as_str().unwrap().contains("column 'call'"), "{}", rows[0]);
+    assert!(rows[0]["ki"].is_null() || rows[0]["ki"]["value"].is_null(), "{}", rows[0]);
+    assert!(rows[1]["error"].is_null());
+    assert!(flags(&rows[1]).contains(&"ic50-outlier-excluded".to_string()));
 }
 
 // --- flags: each fired by a row built for it, none by a clean row ---------------------------

@@ -5,7 +5,7 @@
 use std::path::PathBuf;
 
 use super::{OutputArgs, ic50, ki, km, mode, rank, rates};
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::io::{Format, Table};
 use crate::plot::html::{Block, Page, Section, without_caution};
 
@@ -164,7 +164,43 @@ pub fn dose_response_stage_into(sections: &mut Vec<Section>) -> Result<(String, 
     sections.push(pictures.section(&format!("kimech ic50 {name} --normalise"))?);
     args.output.format = Format::Csv;
     let (csv, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &args)?;
+    println!("{}", raw_and_normalised_agree(name, &args)?);
     Ok((String::from_utf8_lossy(&csv).into_owned(), summary.into_result()))
+}
+
+/// Fits the same plates as raw signal (no `--normalise`) and says whether the
+/// calls and IC50s agree with the % activity run: per plate, % activity is an
+/// affine map of the signal, which moves the asymptotes but not the IC50 or
+/// the call (the engine is scale-free).
+fn raw_and_normalised_agree(name: &str, normalised: &ic50::Args) -> Result<String> {
+    let results = |args: &ic50::Args| -> Result<Vec<serde_json::Value>> {
+        let (json, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), args)?;
+        let doc: serde_json::Value =
+            serde_json::from_slice(&json).map_err(|e| crate::error::Error::Serialise(e.to_string()))?;
+        Ok(doc["results"].as_array().cloned().unwrap_or_default())
+    };
+    let mut args = normalised.clone();
+    args.output.format = Format::Json;
+    let percent = results(&args)?;
+    args.normalise = false;
+    let raw = results(&args)?;
+    let mut same_call = 0;
+    let mut worst: f64 = 0.0;
+    for (p, r) in percent.iter().zip(&raw) {
+        if p["call"] == r["call"] && p["qualifier"] == r["qualifier"] {
+            same_call += 1;
+            if p["qualifier"] == "=" {
+                let (a, b) =
+                    (p["ic50"]["value"].as_f64().unwrap_or(f64::NAN), r["ic50"]["value"].as_f64().unwrap_or(f64::NAN));
+                worst = worst.max((a - b).abs() / a.abs());
+            }
+        }
+    }
+    Ok(format!(
+        "  $ kimech ic50 {name}   (the same plates as raw signal, without --normalise)\n  raw and normalised runs: the same call and qualifier for {same_call} of {} compounds; exact IC50s agree to {} relative at worst\n",
+        percent.len(),
+        crate::io::output::sig(worst, 2)
+    ))
 }
 
 /// The file name the dose-response stage's CSV is shown under.
@@ -223,6 +259,14 @@ pub fn ki_and_rank_into(tables: &[(&str, &str, ki::Args)], sections: &mut Vec<Se
     let command = format!("kimech rank {} --versus VRD3", names.join(" "));
     sections.push(crate::plot::rank::section(&ranked, unit, &failures, &command)?);
     println!("(`kimech rank … --format csv` writes the same rows as the registry export; columns in README.md.)");
+    // The planted partial inhibitor (KX-113) rightly gets no Ki (Cheng–Prusoff
+    // needs complete inhibition): its rows are shown as refused, not counted
+    // as the demo failing.
+    let (expected, failures): (Vec<Error>, Vec<Error>) =
+        failures.into_iter().partition(|e| e.to_string().contains(ki::PARTIAL_REFUSED));
+    for e in &expected {
+        println!("kimech: expected refusal: {e}");
+    }
     super::finish(&failures, total, "rows")
 }
 

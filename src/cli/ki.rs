@@ -371,7 +371,7 @@ fn fill(row: &mut KiRow, c: &Conversion, unit: ConcUnit) {
 /// Flags of the dose-response fit (the `flags` column `kimech ic50` writes)
 /// that undermine the conversion itself: Cheng–Prusoff assumes a complete,
 /// well-defined inhibition curve (Cheng & Prusoff 1973).
-const CURVE_FLAGS_THAT_MATTER: [(&str, &str, &str); 4] = [
+const CURVE_FLAGS_THAT_MATTER: [(&str, &str, &str); 6] = [
     (
         "partial-inhibition",
         "partial-inhibition",
@@ -388,6 +388,16 @@ const CURVE_FLAGS_THAT_MATTER: [(&str, &str, &str); 4] = [
         "ic50-hill-fixed",
         "the Hill coefficient was held at 1 in the dose-response fit, so the IC50 leans on that assumption",
     ),
+    (
+        "outlier-excluded",
+        "ic50-outlier-excluded",
+        "wells marked by the outlier rule were left out of the dose-response fit (listed in the ic50 output)",
+    ),
+    (
+        "too-many-outliers",
+        "ic50-too-many-outliers",
+        "the dose-response curve had more aberrant wells than the outlier rule may remove; the IC50 is unreliable",
+    ),
 ];
 
 fn add_curve_flags(row: &mut KiRow, table: &Table, record: &Record) {
@@ -401,12 +411,27 @@ fn add_curve_flags(row: &mut KiRow, table: &Table, record: &Record) {
     }
 }
 
+/// What a row from a partial-inhibition curve is refused as (the demo recognises it).
+pub const PARTIAL_REFUSED: &str = "a partial-inhibition curve";
+
 /// Reads the measurement and conditions of one row; the first bad cell is the row's error.
 fn read_row(table: &Table, cols: &Columns, record: &Record, args: &Args) -> Result<RowInput> {
     if table.text(record, cols.compound).is_empty() {
         return Err(table.cell_error(record, cols.compound, "no compound name", "give the compound code"));
     }
     let ic50 = table.concentration(record, cols.ic50, args.ic50_unit, "--ic50-unit")?;
+    // `kimech ic50` says what the curve showed; Cheng–Prusoff needs a curve
+    // that inhibits completely, so a partial one gives no Ki (issue 9).
+    if let Some(c) = table.find(&ColumnSpec::new("call", &[]))
+        && table.text(record, c).eq_ignore_ascii_case("partial")
+    {
+        return Err(table.cell_error(
+            record,
+            c,
+            PARTIAL_REFUSED,
+            "a curve that inhibits completely: Cheng–Prusoff assumes full inhibition, so no Ki is derived from a partial curve",
+        ));
+    }
     let bound_end = |col: Option<usize>| -> Result<Option<f64>> {
         match col {
             Some(c) if !is_missing(table.text(record, c)) => {

@@ -260,7 +260,8 @@ pub fn convert(m: &Measurement, c: &Conditions, settings: &Settings) -> Result<C
     };
     let factor = relation.factor();
     let ki = corrected * factor;
-    let qualifier = if m.qualifier == Qualifier::About { Qualifier::Equal } else { m.qualifier };
+    // An approximate IC50 (`~`, e.g. Hill held) gives an approximate Ki, never an exact one.
+    let qualifier = m.qualifier;
     let (low, high, interval_method) = if m.qualifier.is_bound() {
         (None, None, None)
     } else {
