@@ -519,3 +519,67 @@ fn a_file_without_any_concentration_unit_stops_with_one_message() {
     assert_eq!(stderr.matches("no concentration unit").count(), 1, "{stderr}");
     assert!(stderr.contains("--concentration-unit"));
 }
+
+/// An aberrant well (a dispense failure at ~0 % in the middle of the upper
+/// plateau) is found by the outlier rule (Cook & Weisberg 1982), named by
+/// its input line in JSON, counted in CSV, and the curve refitted without
+/// it; `--outliers flag` lists it but fits it; `--outliers keep` is plain
+/// least squares. Also: a `response (%)` header makes the data % activity,
+/// so a potent compound (every well near 0 %) is `<`, never `>`.
+#[test]
+fn an_aberrant_well_is_excluded_named_and_counted() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut text = String::from("compound,concentration (nM),response (%)\n");
+    let doses: Vec<f64> = (0..10).map(|k| 10_000.0 / 3f64.powi(k)).collect();
+    let mut line = 1;
+    let mut aberrant_line = 0;
+    for (k, x) in doses.iter().enumerate() {
+        for rep in 0..2 {
+            line += 1;
+            let wobble = if (k + rep) % 2 == 0 { 1.5 } else { -1.5 };
+            let mut y = 100.0 / (1.0 + x / 100.0) + wobble;
+            if k == 8 && rep == 0 {
+                y = 2.0; // should read ≈ 97 %
+                aberrant_line = line;
+            }
+            text.push_str(&format!("clean-but-one,{x},{y}\n"));
+        }
+    }
+    for x in &doses {
+        for rep in 0..2 {
+            text.push_str(&format!("potent,{x},{}\n", if rep == 0 { 1.2 } else { -0.8 }));
+        }
+    }
+    let path = write(&dir, "plate.csv", &text);
+    let json = |mode: &str| -> Value {
+        let out = kimech().args(["ic50", &path, "--outliers", mode, "--format", "json"]).output().unwrap();
+        assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+        serde_json::from_slice(&out.stdout).unwrap()
+    };
+    let excluded = json("exclude");
+    let r = &excluded["results"][0];
+    assert_eq!(r["outliers"].as_array().unwrap().len(), 1, "{r}");
+    assert_eq!(r["outliers"][0]["line"], aberrant_line);
+    assert_eq!(r["outliers"][0]["response"], 2.0);
+    assert_eq!(r["n"], 19);
+    assert!(r["flags"].as_array().unwrap().iter().any(|f| f == "outlier-excluded"));
+    assert!(rel(r["ic50"]["value"].as_f64().unwrap(), 100.0) < 0.05, "{r}");
+    assert_eq!(r["call"], "full");
+    let potent = &excluded["results"][1];
+    assert_eq!(potent["qualifier"], "<", "{potent}");
+    assert_eq!(potent["call"], "complete");
+    let flagged = json("flag");
+    assert_eq!(flagged["results"][0]["n"], 20);
+    assert_eq!(flagged["results"][0]["outliers"][0]["line"], aberrant_line);
+    assert!(flagged["results"][0]["flags"].as_array().unwrap().iter().any(|f| f == "outlier-flagged"));
+    let kept = json("keep");
+    assert!(kept["results"][0]["outliers"].as_array().unwrap().is_empty());
+    assert_eq!(kept["results"][0]["n"], 20);
+    let csv = kimech().args(["ic50", &path, "--format", "csv"]).output().unwrap();
+    let text = String::from_utf8(csv.stdout).unwrap();
+    let header: Vec<&str> = text.lines().next().unwrap().split(',').collect();
+    let row: Vec<&str> = text.lines().nth(1).unwrap().split(',').collect();
+    let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    assert_eq!(row[col("outliers")], "1");
+    assert_eq!(row[col("call")], "full");
+}

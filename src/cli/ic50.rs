@@ -1139,10 +1139,9 @@ fn human_batch(results: &[&Ic50Result], morrison: bool, unit: ConcUnit, confiden
     header.push("flags".into());
     let mut grid = new_grid(header);
     for r in results {
-        let interval = match (r.ic50.low, r.ic50.high) {
-            (Some(l), Some(h)) => format!("{}–{}", sig(l, 3), sig(h, 3)),
-            _ if r.qualifier.is_bound() => "(bound)".into(),
-            _ => "not determined".into(),
+        let interval = match r.qualifier.is_bound() {
+            true => "(bound)".into(),
+            false => crate::plot::ic50::interval_text(r.ic50.low, r.ic50.high),
         };
         let ic50 = match r.qualifier {
             Qualifier::Equal => sig(r.ic50.value, 4),

@@ -44,8 +44,17 @@ fn ic50_text(r: &Ic50Result, unit: &str) -> String {
     if r.qualifier.is_bound() {
         return format!("IC50 {} {} {unit}", r.qualifier, sig(p.value, 3));
     }
+    format!("IC50 {} {} {unit} ({})", r.qualifier, sig(p.value, 3), interval_text(p.low, p.high))
+}
+
+/// An interval in words, the same in the pictures and the table: "8.26–10.8",
+/// "8.26–unbounded" when one end is missing, "not determined" when both are.
+pub fn interval_text(low: Option<f64>, high: Option<f64>) -> String {
     let end = |v: Option<f64>| v.map_or("unbounded".into(), |v| sig(v, 3));
-    format!("IC50 = {} {unit} ({}–{})", sig(p.value, 3), end(p.low), end(p.high))
+    match (low, high) {
+        (None, None) => "not determined".into(),
+        _ => format!("{}–{}", end(low), end(high)),
+    }
 }
 
 /// The panel of one curve.
@@ -64,7 +73,7 @@ pub fn panel(r: &Ic50Result, curve: &Curve, unit: &str, response: &str, et: Opti
     let lowest = kept.iter().chain(&marked).map(|p| p.0).filter(|x| *x > 0.0).fold(f64::INFINITY, f64::min);
     let mut chart = dose_panel(DoseCurve {
         title: r.compound.clone(),
-        subtitle: format!("{}{hill}{flags}", ic50_text(r, unit)),
+        subtitle: format!("{} · {}{hill}{flags}", r.call.word(), ic50_text(r, unit)),
         flagged: !r.flags.is_empty(),
         points: kept,
         fit: f,
