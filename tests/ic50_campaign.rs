@@ -132,6 +132,8 @@ struct Tally {
     coverable: usize,
     /// (covered, coverable) per kind of clean full curve.
     coverage_by_kind: std::collections::BTreeMap<String, (usize, usize)>,
+    /// Results reported `~` (Hill held).
+    approximate: usize,
     /// |log10(estimate/true)| of exact IC50s, per kind.
     errors: std::collections::BTreeMap<String, Vec<f64>>,
 }
@@ -167,6 +169,16 @@ fn tally(results: &[Value], compounds: &[Compound]) -> Tally {
             .collect();
         if q == "=" || q == "~" {
             t.errors.entry(c.kind.to_string()).or_default().push(error);
+        }
+        // A held slope is never reported as exact: `~`, flagged, with the reason (issue 9).
+        let flags: Vec<&str> = r["flags"].as_array().unwrap().iter().map(|f| f.as_str().unwrap()).collect();
+        if flags.contains(&"hill-fixed") {
+            assert_ne!(q, "=", "{}: h held but IC50 exact: {r}", c.name);
+        }
+        if q == "~" {
+            t.approximate += 1;
+            assert!(flags.contains(&"hill-fixed"), "{}: {r}", c.name);
+            assert!(r["ic50"]["note"].as_str().unwrap().contains("held at 1"), "{}: {r}", c.name);
         }
         match c.kind {
             "inactive" => {
@@ -235,7 +247,7 @@ fn summary(t: &Tally) -> String {
     let by_kind: Vec<String> =
         t.coverage_by_kind.iter().map(|(k, (a, b))| format!("{k} {:.1} %", 100.0 * fraction(*a, *b))).collect();
     format!(
-        "inactive `>` {:.1} % (`<` {}); potent `>` {}; one aberrant well: within 0.3 log {:.1} %, listed {:.1} %; clean curves with a well excluded {:.1} %; 95 % interval coverage {:.1} % of {} clean full curves ({})",
+        "inactive `>` {:.1} % (`<` {}); potent `>` {}; one aberrant well: within 0.3 log {:.1} %, listed {:.1} %; clean curves with a well excluded {:.1} %; 95 % interval coverage {:.1} % of {} clean full curves ({}); {} IC50s approximate (`~`, Hill held)",
         100.0 * fraction(t.inactive_greater, t.inactive),
         t.inactive_less,
         t.potent_greater,
@@ -244,7 +256,8 @@ fn summary(t: &Tally) -> String {
         100.0 * fraction(t.clean_excluded, t.clean),
         100.0 * fraction(t.covered, t.coverable),
         t.coverable,
-        by_kind.join(", ")
+        by_kind.join(", "),
+        t.approximate
     )
 }
 
