@@ -1,6 +1,7 @@
 //! Reading assay tables and writing results. Nothing here computes.
 
 pub mod input;
+pub mod line_endings;
 pub mod output;
 pub mod stream;
 
