@@ -67,3 +67,28 @@ fn duplicate_column_names_are_an_error_naming_both_in_every_command() {
         );
     }
 }
+
+#[test]
+fn plots_of_values_near_the_largest_double_do_not_panic() {
+    let cases = [
+        ("km", "substrate (uM),rate\n1,2\n2,3\n1.7e308,4\n"),
+        ("km", "substrate (uM),rate\n1,1e300\n2,1.7e308\n3,-1.7e308\n4,4\n5,6\n"),
+        ("km", "substrate (uM),rate\n1e-300,2\n2e-300,3\n3e-300,4\n"),
+        (
+            "ic50",
+            "compound,concentration (nM),response\na,0,100\na,1,90\na,10,50\na,100,10\na,1.7e308,5\nb,1,1.7e308\nb,2,-1.7e308\nb,3,4\n",
+        ),
+        (
+            "mode",
+            "substrate (uM),inhibitor (uM),rate\n1,0,1.7e308\n2,0,2\n4,0,3\n1,1e300,1\n2,1e300,1.5\n4,1e300,2\n1,1,1\n2,1,2\n4,1,2.5\n",
+        ),
+    ];
+    for (command, text) in cases {
+        let dir = file("p.csv", text);
+        let out =
+            kimech(dir.path()).args([command, "p.csv", "--plot", "plots", "--report", "r.html"]).output().unwrap();
+        let code = out.status.code();
+        assert!(matches!(code, Some(0 | 2 | 3)), "{command} {text:?}: exit {code:?}: {}", stderr(&out));
+        assert!(!stderr(&out).contains("panicked"), "{}", stderr(&out));
+    }
+}
