@@ -92,3 +92,41 @@ fn plots_of_values_near_the_largest_double_do_not_panic() {
         assert!(!stderr(&out).contains("panicked"), "{}", stderr(&out));
     }
 }
+
+/// Runs `command - -o in.csv < in.csv` and checks that it refuses and leaves the input as it was.
+fn refuses_output_over_stdin(command: &[&str], text: &str) {
+    let dir = file("in.csv", text);
+    let input = dir.path().join("in.csv");
+    // A real file on stdin, as the shell's `<` gives (not a pipe).
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_kimech"))
+        .current_dir(dir.path())
+        .args(command)
+        .args(["-", "-o", "in.csv"])
+        .stdin(std::fs::File::open(&input).unwrap())
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2), "{command:?}: {}", stderr(&out));
+    assert!(stderr(&out).contains("refusing to write the output over an input file"), "{command:?}: {}", stderr(&out));
+    assert_eq!(std::fs::read_to_string(&input).unwrap(), text, "{command:?} replaced its input");
+    // The same through another name for the same file (a hard link).
+    std::fs::hard_link(&input, dir.path().join("link.csv")).unwrap();
+    let out = kimech(dir.path()).args(command).args(["in.csv", "-o", "link.csv"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(2), "{command:?} via a hard link: {}", stderr(&out));
+    assert_eq!(std::fs::read_to_string(&input).unwrap(), text);
+}
+
+#[test]
+fn output_over_stdin_is_refused_by_file_identity_in_every_command() {
+    let km = "substrate (uM),rate\n1,1\n2,1.6\n5,2.5\n10,3\n20,3.4\n40,3.6\n";
+    refuses_output_over_stdin(&["km"], km);
+    refuses_output_over_stdin(&["rates"], &common::fixture_text("rates/progress.csv"));
+    refuses_output_over_stdin(&["mode"], &common::fixture_text("mode/competitive.csv"));
+    let ic50 = "compound,concentration (nM),response\na,0,100\na,1,95\na,10,70\na,100,30\na,1000,5\na,10000,2\n";
+    refuses_output_over_stdin(&["ic50"], ic50);
+    let ki = "compound,ic50 (nM)\na,100\nb,250\n";
+    refuses_output_over_stdin(&["ki", "--mechanism", "noncompetitive"], ki);
+    let dir = file("ki.csv", ki);
+    let out =
+        kimech(dir.path()).args(["ki", "ki.csv", "--mechanism", "noncompetitive", "--format", "csv"]).output().unwrap();
+    refuses_output_over_stdin(&["rank"], &String::from_utf8(out.stdout).unwrap());
+}

@@ -53,8 +53,15 @@ pub(crate) fn refuse_inputs(path: &Path, inputs: &[&str]) -> Result<()> {
     let Ok(target) = path.canonicalize() else {
         return Ok(()); // does not exist yet, so it is no input
     };
-    for input in inputs.iter().filter(|i| **i != "-") {
-        if Path::new(input).canonicalize().is_ok_and(|i| i == target) {
+    for input in inputs {
+        let clash = match *input {
+            "-" => super::identity::is_stdin(path),
+            input => {
+                Path::new(input).canonicalize().is_ok_and(|i| i == target)
+                    || super::identity::same_file(Path::new(input), path)
+            }
+        };
+        if clash {
             return Err(Error::OutputIsInput { path: path.to_path_buf() });
         }
     }
