@@ -199,6 +199,11 @@ pub enum CellProblem {
     NotANumber,
     /// `NaN` or infinite.
     NotFinite,
+    /// Written with a magnitude beyond the largest double (about 1.8e308).
+    TooLarge,
+    /// Written non-zero but smaller than the smallest normal double
+    /// (about 2.2e-308), so it would be read as 0 or lose its digits.
+    TooSmall,
     /// Text after the number that is not a concentration unit.
     UnknownUnit(String),
 }
@@ -210,6 +215,12 @@ impl CellProblem {
             CellProblem::Empty => "empty cell".into(),
             CellProblem::NotANumber => "not a number".into(),
             CellProblem::NotFinite => "not a finite number".into(),
+            CellProblem::TooLarge => {
+                "too large to hold: beyond ±1.8e308, the largest number a double can hold (check the exponent or the unit)".into()
+            }
+            CellProblem::TooSmall => {
+                "too small to hold: non-zero but below 2.2e-308, the smallest normal double, so it would be read as 0 (check the exponent or the unit)".into()
+            }
             CellProblem::UnknownUnit(u) => format!("unknown unit '{u}'"),
         }
     }
@@ -231,9 +242,7 @@ pub fn parse_written(cell: &str) -> Result<Written, CellProblem> {
             CellProblem::NotANumber
         }
     })?;
-    if !value.is_finite() {
-        return Err(CellProblem::NotFinite);
-    }
+    check_magnitude(number, value)?;
     let unit_text = unit_text.trim();
     let unit = if unit_text.is_empty() {
         None
@@ -241,6 +250,24 @@ pub fn parse_written(cell: &str) -> Result<Written, CellProblem> {
         Some(ConcUnit::parse(unit_text).ok_or_else(|| CellProblem::UnknownUnit(unit_text.to_string()))?)
     };
     Ok(Written { qualifier, value, unit })
+}
+
+/// A decimal number that parsed to ±∞ overflowed, and one with a non-zero
+/// digit that parsed to 0 or a subnormal underflowed: Rust's parser rounds
+/// both silently (`"1e-400"` is 0), so a typo in an exponent would pass as
+/// a value.
+fn check_magnitude(number: &str, value: f64) -> Result<(), CellProblem> {
+    let has_digits = number.bytes().any(|b| b.is_ascii_digit());
+    if !value.is_finite() {
+        // `inf` and `NaN` are words; `1e400` is digits that overflowed.
+        return Err(if has_digits && value.is_infinite() { CellProblem::TooLarge } else { CellProblem::NotFinite });
+    }
+    let mantissa = number.split(['e', 'E']).next().unwrap_or("");
+    let written_non_zero = mantissa.bytes().any(|b| (b'1'..=b'9').contains(&b));
+    if written_non_zero && value.abs() < f64::MIN_POSITIVE {
+        return Err(CellProblem::TooSmall);
+    }
+    Ok(())
 }
 
 /// Length of the leading run of characters that can belong to a decimal
@@ -293,7 +320,11 @@ impl ConcentrationArg {
         if w.value <= 0.0 {
             return Err(format!("'{text}' is not positive; a concentration must be > 0"));
         }
-        Ok(ConcentrationArg { molar: unit.to_molar(w.value), unit })
+        let molar = unit.to_molar(w.value);
+        if !molar.is_finite() || molar < f64::MIN_POSITIVE {
+            return Err(format!("'{text}' is {molar:e} mol/L, beyond what a double can hold; check the exponent"));
+        }
+        Ok(ConcentrationArg { molar, unit })
     }
 }
 
@@ -342,6 +373,18 @@ mod tests {
         assert_eq!(parse_written("abc"), Err(CellProblem::NotANumber));
         assert_eq!(parse_written("NaN"), Err(CellProblem::NotFinite));
         assert_eq!(parse_written("inf"), Err(CellProblem::NotFinite));
+    }
+
+    #[test]
+    fn underflowing_and_overflowing_numbers_are_errors_not_zero_or_infinity() {
+        assert_eq!(parse_written("1e-400"), Err(CellProblem::TooSmall));
+        assert_eq!(parse_written("-3.5e-320 nM"), Err(CellProblem::TooSmall));
+        assert_eq!(parse_written("1e400"), Err(CellProblem::TooLarge));
+        assert_eq!(parse_written("> -2e309 uM"), Err(CellProblem::TooLarge));
+        assert_eq!(parse_written("0e-400").map(|w| w.value), Ok(0.0));
+        assert_eq!(parse_written("0.000").map(|w| w.value), Ok(0.0));
+        assert_eq!(parse_written("2.3e-308").map(|w| w.value), Ok(2.3e-308));
+        assert_eq!(parse_written("1.7e308").map(|w| w.value), Ok(1.7e308));
         assert_eq!(parse_written("  "), Err(CellProblem::Empty));
         assert_eq!(parse_written("3 furlongs"), Err(CellProblem::UnknownUnit("furlongs".into())));
     }

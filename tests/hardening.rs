@@ -130,3 +130,69 @@ fn output_over_stdin_is_refused_by_file_identity_in_every_command() {
         kimech(dir.path()).args(["ki", "ki.csv", "--mechanism", "noncompetitive", "--format", "csv"]).output().unwrap();
     refuses_output_over_stdin(&["rank"], &String::from_utf8(out.stdout).unwrap());
 }
+
+#[test]
+fn flat_rates_say_km_is_not_determined_instead_of_converging() {
+    let dir = file("f.csv", "substrate (uM),rate\n1,5\n2,5\n5,5\n10,5\n20,5\n");
+    let out = kimech(dir.path()).args(["km", "f.csv", "--format", "csv"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(3), "the one series failed");
+    let e = stderr(&out);
+    assert!(e.contains("Km is not determined") && e.contains("every rate is 5"), "{e}");
+    assert!(!String::from_utf8_lossy(&out.stdout).contains("NaN"));
+}
+
+#[test]
+fn underflowing_and_overflowing_cells_are_errors_at_their_cell() {
+    for (cell, problem) in [("1e-400", "too small"), ("1e400", "too large")] {
+        let dir = file("u.csv", &format!("substrate (uM),rate\n1,2\n2,{cell}\n5,4\n"));
+        let out = kimech(dir.path()).args(["km", "u.csv"]).output().unwrap();
+        let e = stderr(&out);
+        assert!(e.contains("u.csv, line 3, column 'rate'") && e.contains(problem) && e.contains(cell), "{e}");
+    }
+    // A value that a unit conversion carries below the smallest double.
+    let dir = file("c.csv", "compound,ic50\na,1e-300 pM\n");
+    let out = kimech(dir.path()).args(["ki", "c.csv", "--mechanism", "noncompetitive"]).output().unwrap();
+    let e = stderr(&out);
+    assert!(e.contains("line 2, column 'ic50'") && e.contains("beyond what a double can hold"), "{e}");
+}
+
+/// No number cell of a CSV holds `NaN` or `inf`.
+fn assert_no_non_finite_cells(csv: &[u8]) {
+    let text = String::from_utf8_lossy(csv);
+    for (i, line) in text.lines().enumerate() {
+        for cell in line.split(',') {
+            let lower = cell.to_ascii_lowercase();
+            assert!(!["nan", "inf", "-inf", "+inf", "infinity"].contains(&lower.as_str()), "line {}: {line}", i + 1);
+        }
+    }
+}
+
+#[test]
+fn ki_beyond_double_range_is_an_error_row_not_zero_or_infinite_pki() {
+    let dir = file("k.csv", "compound,ic50 (nM),substrate (uM),km (uM)\nbig,100,1e300,1e-300\nok,100,10,10\n");
+    let out =
+        kimech(dir.path()).args(["ki", "k.csv", "--mechanism", "competitive", "--format", "csv"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(3), "{}", stderr(&out));
+    assert!(stderr(&out).contains("beyond what a double can hold"), "{}", stderr(&out));
+    assert_no_non_finite_cells(&out.stdout);
+    let out =
+        kimech(dir.path()).args(["ki", "k.csv", "--mechanism", "competitive", "--format", "json"]).output().unwrap();
+    let doc: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let big = &doc["results"][0];
+    assert!(big["ki"]["value"].is_null() && big["pki"].is_null() && big["error"].is_string(), "{big}");
+}
+
+#[test]
+fn extreme_km_inputs_never_write_nan_or_inf_in_a_number_cell() {
+    for text in [
+        "substrate (uM),rate\n1,1e300\n2,1.7e308\n3,-1.7e308\n4,1e-300\n5,4\n",
+        "substrate (uM),rate\n1e-300,2\n2e-300,3\n3e-300,4\n",
+        "substrate (uM),rate\n1,2\n2,3\n1.7e308,4\n",
+        "substrate (uM),rate\n1,5\n2,5\n5,5.000001\n10,5\n",
+    ] {
+        let dir = file("x.csv", text);
+        let out = kimech(dir.path()).args(["km", "x.csv", "--format", "csv"]).output().unwrap();
+        assert!(matches!(out.status.code(), Some(0 | 2 | 3)), "{text:?}");
+        assert_no_non_finite_cells(&out.stdout);
+    }
+}

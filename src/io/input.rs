@@ -271,7 +271,16 @@ impl Table {
                 }
             },
         };
-        Ok(Concentration { qualifier: written.qualifier, molar: unit.to_molar(written.value), unit })
+        let molar = unit.to_molar(written.value);
+        if !molar.is_finite() || (molar != 0.0 && molar.abs() < f64::MIN_POSITIVE) {
+            return Err(self.cell_error(
+                row,
+                col,
+                format!("{} {} is {molar:e} mol/L, beyond what a double can hold", written.value, unit.symbol()),
+                "check the exponent and the unit; concentrations lie between about 1e-300 and 1e300 mol/L",
+            ));
+        }
+        Ok(Concentration { qualifier: written.qualifier, molar, unit })
     }
 
     /// The unit a concentration column is expressed in, for reporting: the
