@@ -328,6 +328,31 @@ impl ConcentrationArg {
     }
 }
 
+/// How close two concentrations must be (relatively) to be the same level:
+/// far above the rounding of a unit conversion (~1e-16), far below any
+/// difference a dilution series means.
+pub const LEVEL_TOLERANCE: f64 = 1e-9;
+
+/// Each concentration replaced by the level it belongs to, so that values
+/// written in different units (`1000 nM`, `1 uM`), which differ in their
+/// last bits after conversion, group as replicates. Sorted values closer
+/// than [`LEVEL_TOLERANCE`] (relative) to the first of their run share its
+/// value; the output is in the input's order.
+pub fn same_levels(values: &[f64]) -> Vec<f64> {
+    let mut order: Vec<usize> = (0..values.len()).collect();
+    order.sort_by(|&a, &b| values[a].total_cmp(&values[b]));
+    let mut levels = values.to_vec();
+    let mut first: Option<f64> = None;
+    for &k in &order {
+        let v = values[k];
+        match first {
+            Some(f) if (v - f).abs() <= LEVEL_TOLERANCE * f.abs().max(v.abs()) => levels[k] = f,
+            _ => first = Some(v),
+        }
+    }
+    levels
+}
+
 /// −log10 of a molar concentration: pKi, pIC50.
 pub fn p_value(molar: f64) -> f64 {
     -molar.log10()
@@ -373,6 +398,13 @@ mod tests {
         assert_eq!(parse_written("abc"), Err(CellProblem::NotANumber));
         assert_eq!(parse_written("NaN"), Err(CellProblem::NotFinite));
         assert_eq!(parse_written("inf"), Err(CellProblem::NotFinite));
+    }
+
+    #[test]
+    fn same_levels_groups_values_written_in_different_units() {
+        let nm = ConcUnit::Nanomolar.to_molar(300.0) / ConcUnit::Micromolar.to_molar(1.0);
+        assert_ne!(nm.to_bits(), 0.3f64.to_bits(), "the case this guards: 300 nM in uM is not 0.3");
+        assert_eq!(same_levels(&[0.3, nm, 0.0, 1.0, 0.3001, -0.0]), [0.3, 0.3, 0.0, 1.0, 0.3001, 0.0]);
     }
 
     #[test]

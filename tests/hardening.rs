@@ -196,3 +196,33 @@ fn extreme_km_inputs_never_write_nan_or_inf_in_a_number_cell() {
         assert_no_non_finite_cells(&out.stdout);
     }
 }
+
+/// The adequacy figures (runs-test and lack-of-fit p) of `kimech mode` on `text`.
+fn mode_adequacy(text: &str) -> (f64, f64) {
+    let dir = file("m.csv", text);
+    let out = kimech(dir.path()).args(["mode", "m.csv", "--format", "json"]).output().unwrap();
+    assert!(out.status.success(), "{}", stderr(&out));
+    let doc: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let a = &doc["results"][0]["adequacy"];
+    (a["runs_p"].as_f64().unwrap(), a["lack_of_fit_p"].as_f64().unwrap())
+}
+
+#[test]
+fn mode_replicates_group_by_level_whatever_unit_each_cell_is_written_in() {
+    let text = common::fixture_text("mode/competitive.csv");
+    let mut mixed = String::new();
+    for (k, line) in text.lines().enumerate() {
+        let cells: Vec<&str> = line.split(',').collect();
+        if k == 0 || k % 2 == 1 {
+            mixed.push_str(line);
+        } else {
+            let nm = cells[1].parse::<f64>().unwrap() * 1000.0;
+            mixed.push_str(&format!("{},{nm} nM,{}", cells[0], cells[2]));
+        }
+        mixed.push('\n');
+    }
+    let (runs_uniform, lof_uniform) = mode_adequacy(&text);
+    let (runs_mixed, lof_mixed) = mode_adequacy(&mixed);
+    approx::assert_relative_eq!(runs_uniform, runs_mixed, max_relative = 1e-9);
+    approx::assert_relative_eq!(lof_uniform, lof_mixed, max_relative = 1e-6);
+}
