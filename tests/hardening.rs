@@ -226,3 +226,16 @@ fn mode_replicates_group_by_level_whatever_unit_each_cell_is_written_in() {
     approx::assert_relative_eq!(runs_uniform, runs_mixed, max_relative = 1e-9);
     approx::assert_relative_eq!(lof_uniform, lof_mixed, max_relative = 1e-6);
 }
+
+#[test]
+fn rates_reject_negative_or_decreasing_times_at_their_cell() {
+    let text = "curve,time (min),product (uM)\nA,0,0\nA,1,1\nA,0.5,2\nA,2,3\n";
+    let dir = file("t.csv", text);
+    let out = kimech(dir.path()).args(["rates", "t.csv"]).output().unwrap();
+    let e = stderr(&out);
+    assert!(e.contains("t.csv, line 4, column 'time (min)'") && e.contains("goes back from 1 on line 3"), "{e}");
+    let dir = file("n.csv", "curve,time (min),product (uM)\r\nA,-1,0\r\nA,1,1\r\nA,2,2\r\n");
+    let out = kimech(dir.path()).args(["rates", "n.csv"]).output().unwrap();
+    let e = stderr(&out);
+    assert!(e.contains("n.csv, line 2, column 'time (min)'") && e.contains("negative"), "{e}");
+}

@@ -24,6 +24,15 @@ pub fn same_file(a: &Path, b: &Path) -> bool {
     }
 }
 
+/// The temporary file an output is written to before it is renamed into
+/// place: a hidden sibling (same file system, so the rename is atomic)
+/// whose name says who left it and for what, should a kill or power cut
+/// stop the run before the rename: `.results.csv.kimech-4711.tmp`.
+pub fn temp_sibling(path: &Path) -> std::path::PathBuf {
+    let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_else(|| "output".into());
+    path.with_file_name(format!(".{name}.kimech-{}.tmp", std::process::id()))
+}
+
 #[cfg(unix)]
 fn same(a: &Metadata, b: &Metadata) -> bool {
     use std::os::unix::fs::MetadataExt;
@@ -50,6 +59,14 @@ fn stdin_metadata() -> Option<Metadata> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn temporary_outputs_are_hidden_siblings_named_after_kimech() {
+        let temp = temp_sibling(Path::new("out/results.csv"));
+        let name = temp.file_name().unwrap().to_string_lossy().into_owned();
+        assert_eq!(temp.parent(), Some(Path::new("out")));
+        assert_eq!(name, format!(".results.csv.kimech-{}.tmp", std::process::id()));
+    }
 
     #[test]
     fn hard_links_are_the_same_file_and_siblings_are_not() {

@@ -153,8 +153,7 @@ impl OutputSink {
                 .map_err(|source| Error::Write { path: path.to_path_buf(), source })?;
             return Ok(OutputSink { writer: BufWriter::new(Box::new(device)), temp: None });
         }
-        let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_else(|| "output".into());
-        let temp = path.with_file_name(format!(".{name}.{}.tmp", std::process::id()));
+        let temp = super::identity::temp_sibling(path);
         let file = std::fs::File::create(&temp).map_err(|source| Error::Write { path: path.to_path_buf(), source })?;
         Ok(OutputSink { writer: BufWriter::new(Box::new(file)), temp: Some((temp, path.to_path_buf())) })
     }
