@@ -66,8 +66,11 @@ pub fn run_command(args: &[&str], bytes: &[u8]) -> bool {
     ok
 }
 
+/// A target: true when the input ran to a result.
+pub type Target = fn(&[u8]) -> bool;
+
 /// Every fuzz target by name: the corpus directory it reads and what it runs.
-pub const TARGETS: [(&str, fn(&[u8]) -> bool); 8] = [
+pub const TARGETS: [(&str, Target); 8] = [
     ("read_table", read_table),
     ("read_stream", read_stream),
     ("rates", |b| run_command(&["rates"], b)),
