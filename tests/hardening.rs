@@ -239,3 +239,17 @@ fn rates_reject_negative_or_decreasing_times_at_their_cell() {
     let e = stderr(&out);
     assert!(e.contains("n.csv, line 2, column 'time (min)'") && e.contains("negative"), "{e}");
 }
+
+#[test]
+fn group_failures_name_the_file_and_shorten_long_ids() {
+    let long = "x".repeat(500);
+    let text = format!(
+        "series,substrate (uM),rate\n{long},1,1\n{long},1,2\n{long},1,3\nok,1,1\nok,2,1.6\nok,5,2.5\nok,10,3\n"
+    );
+    let dir = file("g.csv", &text);
+    let out = kimech(dir.path()).args(["km", "g.csv"]).output().unwrap();
+    let e = stderr(&out);
+    let message = e.lines().find(|l| l.contains("distinct substrate")).unwrap_or_else(|| panic!("{e}"));
+    assert!(message.contains("g.csv, lines 2-4") && message.contains('…'), "{message}");
+    assert!(message.len() < 400, "the 500-character id is shortened: {message}");
+}

@@ -246,7 +246,7 @@ fn constant_rate(rate: &[f64]) -> Option<f64> {
 
 fn group_name(series: &Series) -> String {
     match &series.label {
-        Some(l) => format!("series '{l}' ({})", series.origin),
+        Some(l) => format!("series '{}' ({})", crate::report::short_id(l), series.origin),
         None => format!("the data ({})", series.origin),
     }
 }

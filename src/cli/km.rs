@@ -189,7 +189,7 @@ fn read_series(table: &Table, args: &Args) -> Result<(Vec<Series>, Units)> {
     for (label, rows) in groups {
         let mut s = Series {
             label,
-            origin: super::rows_origin(&rows),
+            origin: format!("{}, {}", table.source, super::rows_origin(&rows)),
             substrate: Vec::new(),
             rate: Vec::new(),
             sd: sd_col.map(|_| Vec::new()),

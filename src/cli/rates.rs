@@ -173,8 +173,13 @@ fn initial_substrate(
 }
 
 fn read_curve(table: &Table, label: Option<String>, rows: &[&Record], t: usize, y: usize) -> Result<Curve> {
-    let mut curve =
-        Curve { label, origin: super::rows_origin(rows), time: Vec::new(), signal: Vec::new(), substrate: None };
+    let mut curve = Curve {
+        label,
+        origin: format!("{}, {}", table.source, super::rows_origin(rows)),
+        time: Vec::new(),
+        signal: Vec::new(),
+        substrate: None,
+    };
     let mut previous: Option<(f64, u64)> = None;
     for row in rows {
         let time = table.number(row, t)?;
