@@ -79,3 +79,28 @@ impl Warning {
         Warning { code, message: message.into() }
     }
 }
+
+/// A group's id as quoted in a message: at most 40 characters, the rest
+/// replaced by `…`, so that an id pasted by mistake (a whole row, a long
+/// string) cannot bury the message.
+pub fn short_id(id: &str) -> String {
+    const MAX: usize = 40;
+    if id.chars().count() <= MAX {
+        id.to_string()
+    } else {
+        format!("{}…", id.chars().take(MAX - 1).collect::<String>())
+    }
+}
+
+#[cfg(test)]
+mod id_tests {
+    use super::short_id;
+
+    #[test]
+    fn long_ids_are_shortened_in_messages() {
+        assert_eq!(short_id("KX-101"), "KX-101");
+        let long = "é".repeat(100);
+        assert_eq!(short_id(&long).chars().count(), 40);
+        assert!(short_id(&long).ends_with('…'));
+    }
+}

@@ -199,6 +199,11 @@ pub enum CellProblem {
     NotANumber,
     /// `NaN` or infinite.
     NotFinite,
+    /// Written with a magnitude beyond the largest double (about 1.8e308).
+    TooLarge,
+    /// Written non-zero but smaller than the smallest normal double
+    /// (about 2.2e-308), so it would be read as 0 or lose its digits.
+    TooSmall,
     /// Text after the number that is not a concentration unit.
     UnknownUnit(String),
 }
@@ -210,6 +215,12 @@ impl CellProblem {
             CellProblem::Empty => "empty cell".into(),
             CellProblem::NotANumber => "not a number".into(),
             CellProblem::NotFinite => "not a finite number".into(),
+            CellProblem::TooLarge => {
+                "too large to hold: beyond ±1.8e308, the largest number a double can hold (check the exponent or the unit)".into()
+            }
+            CellProblem::TooSmall => {
+                "too small to hold: non-zero but below 2.2e-308, the smallest normal double, so it would be read as 0 (check the exponent or the unit)".into()
+            }
             CellProblem::UnknownUnit(u) => format!("unknown unit '{u}'"),
         }
     }
@@ -231,9 +242,7 @@ pub fn parse_written(cell: &str) -> Result<Written, CellProblem> {
             CellProblem::NotANumber
         }
     })?;
-    if !value.is_finite() {
-        return Err(CellProblem::NotFinite);
-    }
+    check_magnitude(number, value)?;
     let unit_text = unit_text.trim();
     let unit = if unit_text.is_empty() {
         None
@@ -241,6 +250,24 @@ pub fn parse_written(cell: &str) -> Result<Written, CellProblem> {
         Some(ConcUnit::parse(unit_text).ok_or_else(|| CellProblem::UnknownUnit(unit_text.to_string()))?)
     };
     Ok(Written { qualifier, value, unit })
+}
+
+/// A decimal number that parsed to ±∞ overflowed, and one with a non-zero
+/// digit that parsed to 0 or a subnormal underflowed: Rust's parser rounds
+/// both silently (`"1e-400"` is 0), so a typo in an exponent would pass as
+/// a value.
+fn check_magnitude(number: &str, value: f64) -> Result<(), CellProblem> {
+    let has_digits = number.bytes().any(|b| b.is_ascii_digit());
+    if !value.is_finite() {
+        // `inf` and `NaN` are words; `1e400` is digits that overflowed.
+        return Err(if has_digits && value.is_infinite() { CellProblem::TooLarge } else { CellProblem::NotFinite });
+    }
+    let mantissa = number.split(['e', 'E']).next().unwrap_or("");
+    let written_non_zero = mantissa.bytes().any(|b| (b'1'..=b'9').contains(&b));
+    if written_non_zero && value.abs() < f64::MIN_POSITIVE {
+        return Err(CellProblem::TooSmall);
+    }
+    Ok(())
 }
 
 /// Length of the leading run of characters that can belong to a decimal
@@ -293,8 +320,37 @@ impl ConcentrationArg {
         if w.value <= 0.0 {
             return Err(format!("'{text}' is not positive; a concentration must be > 0"));
         }
-        Ok(ConcentrationArg { molar: unit.to_molar(w.value), unit })
+        let molar = unit.to_molar(w.value);
+        if !molar.is_finite() || molar < f64::MIN_POSITIVE {
+            return Err(format!("'{text}' is {molar:e} mol/L, beyond what a double can hold; check the exponent"));
+        }
+        Ok(ConcentrationArg { molar, unit })
     }
+}
+
+/// How close two concentrations must be (relatively) to be the same level:
+/// far above the rounding of a unit conversion (~1e-16), far below any
+/// difference a dilution series means.
+pub const LEVEL_TOLERANCE: f64 = 1e-9;
+
+/// Each concentration replaced by the level it belongs to, so that values
+/// written in different units (`1000 nM`, `1 uM`), which differ in their
+/// last bits after conversion, group as replicates. Sorted values closer
+/// than [`LEVEL_TOLERANCE`] (relative) to the first of their run share its
+/// value; the output is in the input's order.
+pub fn same_levels(values: &[f64]) -> Vec<f64> {
+    let mut order: Vec<usize> = (0..values.len()).collect();
+    order.sort_by(|&a, &b| values[a].total_cmp(&values[b]));
+    let mut levels = values.to_vec();
+    let mut first: Option<f64> = None;
+    for &k in &order {
+        let v = values[k];
+        match first {
+            Some(f) if (v - f).abs() <= LEVEL_TOLERANCE * f.abs().max(v.abs()) => levels[k] = f,
+            _ => first = Some(v),
+        }
+    }
+    levels
 }
 
 /// −log10 of a molar concentration: pKi, pIC50.
@@ -342,6 +398,25 @@ mod tests {
         assert_eq!(parse_written("abc"), Err(CellProblem::NotANumber));
         assert_eq!(parse_written("NaN"), Err(CellProblem::NotFinite));
         assert_eq!(parse_written("inf"), Err(CellProblem::NotFinite));
+    }
+
+    #[test]
+    fn same_levels_groups_values_written_in_different_units() {
+        let nm = ConcUnit::Nanomolar.to_molar(300.0) / ConcUnit::Micromolar.to_molar(1.0);
+        assert_ne!(nm.to_bits(), 0.3f64.to_bits(), "the case this guards: 300 nM in uM is not 0.3");
+        assert_eq!(same_levels(&[0.3, nm, 0.0, 1.0, 0.3001, -0.0]), [0.3, 0.3, 0.0, 1.0, 0.3001, 0.0]);
+    }
+
+    #[test]
+    fn underflowing_and_overflowing_numbers_are_errors_not_zero_or_infinity() {
+        assert_eq!(parse_written("1e-400"), Err(CellProblem::TooSmall));
+        assert_eq!(parse_written("-3.5e-320 nM"), Err(CellProblem::TooSmall));
+        assert_eq!(parse_written("1e400"), Err(CellProblem::TooLarge));
+        assert_eq!(parse_written("> -2e309 uM"), Err(CellProblem::TooLarge));
+        assert_eq!(parse_written("0e-400").map(|w| w.value), Ok(0.0));
+        assert_eq!(parse_written("0.000").map(|w| w.value), Ok(0.0));
+        assert_eq!(parse_written("2.3e-308").map(|w| w.value), Ok(2.3e-308));
+        assert_eq!(parse_written("1.7e308").map(|w| w.value), Ok(1.7e308));
         assert_eq!(parse_written("  "), Err(CellProblem::Empty));
         assert_eq!(parse_written("3 furlongs"), Err(CellProblem::UnknownUnit("furlongs".into())));
     }

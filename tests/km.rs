@@ -274,7 +274,10 @@ fn other_series_still_come_out_when_one_fails() {
     let json: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     assert_eq!(json["results"].as_array().unwrap().len(), 1);
     let stderr = String::from_utf8(out.stderr).unwrap();
-    assert!(stderr.contains("series 'bad' (lines 6-8)") && stderr.contains("1 of 2 series"), "{stderr}");
+    assert!(
+        stderr.contains("series 'bad' (") && stderr.contains(".csv, lines 6-8)") && stderr.contains("1 of 2 series"),
+        "{stderr}"
+    );
 }
 
 #[test]

@@ -98,7 +98,10 @@ fn a_curve_with_two_time_points_fails_alone() {
     let json: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     assert_eq!(json["results"].as_array().unwrap().len(), 1);
     let e = String::from_utf8(out.stderr).unwrap();
-    assert!(e.contains("curve 'A' (lines 2-3)") && e.contains("only 2 distinct time point"), "{e}");
+    assert!(
+        e.contains("curve 'A' (") && e.contains(".csv, lines 2-3)") && e.contains("only 2 distinct time point"),
+        "{e}"
+    );
 }
 
 #[test]

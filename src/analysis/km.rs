@@ -186,6 +186,18 @@ pub fn analyse(series: &Series, units: &Units, options: &Options) -> Result<KmRe
             wald(&model, &best, j, options.confidence)
         }
     };
+    if !(best.theta.iter().all(|t| t.is_finite()) && best.sse.is_finite()) {
+        return Err(Error::Data {
+            group: group_name(series),
+            problem: format!(
+                "the fit overflowed (Vmax {:e}, Km {:e}, SSE {:e}): the rates or concentrations are too large or too small for double precision",
+                best.theta[MichaelisMenten::VMAX],
+                best.theta[MichaelisMenten::KM],
+                best.sse
+            ),
+            expected: "check the exponents and units of the rate and substrate columns, or rescale them".into(),
+        });
+    }
     let method = if best.converged() { "profile" } else { "wald" };
     let (vmax, km) = (best.theta[MichaelisMenten::VMAX], best.theta[MichaelisMenten::KM]);
     let vmax_p = Param::new(vmax, best.se[0], interval(MichaelisMenten::VMAX), method, units.rate.clone());
@@ -225,9 +237,16 @@ pub fn analyse(series: &Series, units: &Units, options: &Options) -> Result<KmRe
     })
 }
 
+/// The common value of rates that are all equal (to 1 part in 10¹²), which
+/// determine Vmax but not Km: the fit would drive Km to 0 and call it converged.
+fn constant_rate(rate: &[f64]) -> Option<f64> {
+    let (lo, hi) = rate.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), r| (lo.min(*r), hi.max(*r)));
+    (hi > 0.0 && hi - lo <= 1e-12 * hi.abs()).then_some(hi)
+}
+
 fn group_name(series: &Series) -> String {
     match &series.label {
-        Some(l) => format!("series '{l}' ({})", series.origin),
+        Some(l) => format!("series '{}' ({})", crate::report::short_id(l), series.origin),
         None => format!("the data ({})", series.origin),
     }
 }
@@ -249,6 +268,14 @@ fn check_series(series: &Series) -> Result<()> {
         return Err(data_error(
             format!("only {} rows", series.rate.len()),
             "fitting Km and Vmax with an error estimate needs at least 3 rows",
+        ));
+    }
+    if let Some(flat) = constant_rate(&series.rate) {
+        return Err(data_error(
+            format!(
+                "every rate is {flat}: the rates do not change with substrate, so Km is not determined (Vmax would be {flat}, but Km only lies somewhere well below the lowest substrate concentration)"
+            ),
+            "measure rates at substrate concentrations around and below Km, where the rate still rises",
         ));
     }
     if series.rate.iter().all(|r| *r <= 0.0) {

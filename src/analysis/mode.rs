@@ -39,6 +39,7 @@ use crate::fit::{Data, Fit, FitSettings, Model, WeightProblem, Weighting, fit, f
 use crate::io::output::sig;
 use crate::models::inhibition::{Mechanism, MixedAlphaKiu, MixedKiu, Point, RateLaw};
 use crate::report::{Param, Warning};
+use crate::units::same_levels;
 
 /// Width of the parsimony window in AICc units (Burnham & Anderson 2002, §2.6).
 pub const PARSIMONY_WINDOW: f64 = 2.0;
@@ -684,15 +685,16 @@ fn choose_by_f(fitted: &[Fitted], level: f64) -> (usize, String) {
 /// Runs test and lack-of-fit test of one model.
 fn adequacy(matrix: &Matrix, data: &Data<Point>, fitted: &Fitted) -> Adequacy {
     let fit = &fitted.fit;
+    // Replicates by level, not by bit pattern: 1000 nM and 1 uM differ in the last bit after conversion.
+    let (substrate, inhibitor) = (same_levels(&matrix.substrate), same_levels(&matrix.inhibitor));
     let mut order: Vec<usize> = (0..data.len()).collect();
-    order.sort_by(|&a, &b| data.x[a].1.total_cmp(&data.x[b].1).then(data.x[a].0.total_cmp(&data.x[b].0)));
+    order.sort_by(|&a, &b| inhibitor[a].total_cmp(&inhibitor[b]).then(substrate[a].total_cmp(&substrate[b])));
     let ordered: Vec<f64> = order.iter().map(|&k| fit.residuals[k]).collect();
     let runs = runs_test(&ordered).map(|r| r.p_too_few);
     let mut cells: HashMap<(u64, u64), usize> = HashMap::new();
-    let groups: Vec<usize> = matrix
-        .substrate
+    let groups: Vec<usize> = substrate
         .iter()
-        .zip(&matrix.inhibitor)
+        .zip(&inhibitor)
         .map(|(s, i)| {
             let next = cells.len();
             *cells.entry((s.to_bits(), i.to_bits())).or_insert(next)

@@ -125,7 +125,7 @@ fn check_curve(curve: &Curve, time: &[f64]) -> Result<()> {
     distinct.dedup_by(|a, b| (*a - *b).abs() <= 1e-12 * b.abs().max(1e-300));
     if distinct.len() < 3 {
         let group = match &curve.label {
-            Some(l) => format!("curve '{l}' ({})", curve.origin),
+            Some(l) => format!("curve '{}' ({})", crate::report::short_id(l), curve.origin),
             None => format!("the curve ({})", curve.origin),
         };
         return Err(Error::Data {

@@ -189,7 +189,7 @@ fn read_series(table: &Table, args: &Args) -> Result<(Vec<Series>, Units)> {
     for (label, rows) in groups {
         let mut s = Series {
             label,
-            origin: super::rows_origin(&rows),
+            origin: format!("{}, {}", table.source, super::rows_origin(&rows)),
             substrate: Vec::new(),
             rate: Vec::new(),
             sd: sd_col.map(|_| Vec::new()),
@@ -250,12 +250,12 @@ struct CsvRow {
     series: String,
     n: usize,
     df: usize,
-    vmax: f64,
+    vmax: Option<f64>,
     vmax_se: Option<f64>,
     vmax_low: Option<f64>,
     vmax_high: Option<f64>,
     vmax_unit: String,
-    km: f64,
+    km: Option<f64>,
     km_se: Option<f64>,
     km_low: Option<f64>,
     km_high: Option<f64>,
@@ -264,9 +264,9 @@ struct CsvRow {
     kcat_unit: Option<String>,
     kcat_km: Option<f64>,
     kcat_km_unit: Option<String>,
-    sse: f64,
-    residual_sd: f64,
-    r2: f64,
+    sse: Option<f64>,
+    residual_sd: Option<f64>,
+    r2: Option<f64>,
     runs_p: Option<f64>,
     converged: bool,
     warnings: String,
@@ -279,28 +279,34 @@ impl From<&KmResult> for CsvRow {
             series: crate::io::neutralise_formula(r.series.as_deref().unwrap_or("")),
             n: r.n,
             df: r.df,
-            vmax: p.vmax.value,
-            vmax_se: p.vmax.se,
-            vmax_low: p.vmax.low,
-            vmax_high: p.vmax.high,
+            vmax: finite(p.vmax.value),
+            vmax_se: p.vmax.se.and_then(finite),
+            vmax_low: p.vmax.low.and_then(finite),
+            vmax_high: p.vmax.high.and_then(finite),
             vmax_unit: p.vmax.unit.clone().unwrap_or_default(),
-            km: p.km.value,
-            km_se: p.km.se,
-            km_low: p.km.low,
-            km_high: p.km.high,
+            km: finite(p.km.value),
+            km_se: p.km.se.and_then(finite),
+            km_low: p.km.low.and_then(finite),
+            km_high: p.km.high.and_then(finite),
             km_unit: p.km.unit.clone().unwrap_or_default(),
-            kcat: p.kcat.as_ref().map(|k| k.value),
+            kcat: p.kcat.as_ref().map(|k| k.value).and_then(finite),
             kcat_unit: p.kcat.as_ref().and_then(|k| k.unit.clone()),
-            kcat_km: p.kcat_km.as_ref().map(|k| k.value),
+            kcat_km: p.kcat_km.as_ref().map(|k| k.value).and_then(finite),
             kcat_km_unit: p.kcat_km.as_ref().and_then(|k| k.unit.clone()),
-            sse: r.sse,
-            residual_sd: r.residual_sd,
-            r2: r.r2,
-            runs_p: r.runs_p,
+            sse: finite(r.sse),
+            residual_sd: finite(r.residual_sd),
+            r2: finite(r.r2),
+            runs_p: r.runs_p.and_then(finite),
             converged: r.converged,
             warnings: r.warnings.iter().map(|w| w.code).collect::<Vec<_>>().join(";"),
         }
     }
+}
+
+/// A number for a CSV cell: a non-finite one (an R² with no spread to
+/// explain) is written as an empty cell, never as `NaN` or `inf`.
+fn finite(value: f64) -> Option<f64> {
+    value.is_finite().then_some(value)
 }
 
 fn weighting_name(w: Weighting) -> &'static str {

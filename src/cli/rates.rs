@@ -173,13 +173,45 @@ fn initial_substrate(
 }
 
 fn read_curve(table: &Table, label: Option<String>, rows: &[&Record], t: usize, y: usize) -> Result<Curve> {
-    let mut curve =
-        Curve { label, origin: super::rows_origin(rows), time: Vec::new(), signal: Vec::new(), substrate: None };
+    let mut curve = Curve {
+        label,
+        origin: format!("{}, {}", table.source, super::rows_origin(rows)),
+        time: Vec::new(),
+        signal: Vec::new(),
+        substrate: None,
+    };
+    let mut previous: Option<(f64, u64)> = None;
     for row in rows {
-        curve.time.push(table.number(row, t)?);
+        let time = table.number(row, t)?;
+        check_time(table, row, t, time, previous)?;
+        previous = Some((time, row.line));
+        curve.time.push(time);
         curve.signal.push(table.number(row, y)?);
     }
     Ok(curve)
+}
+
+/// A progress curve runs forward from the start of the reaction: a negative
+/// time, or one earlier than the curve's previous row, is a typo or rows
+/// from two curves mixed together, and would silently be re-sorted.
+fn check_time(table: &Table, row: &Record, col: usize, time: f64, previous: Option<(f64, u64)>) -> Result<()> {
+    if time < 0.0 {
+        return Err(table.cell_error(
+            row,
+            col,
+            "the time is negative",
+            "times count from the start of the reaction (0 or more)",
+        ));
+    }
+    match previous {
+        Some((before, line)) if time < before => Err(table.cell_error(
+            row,
+            col,
+            format!("the time goes back from {before} on line {line} of the same curve"),
+            "list each curve's rows in time order, and give each curve its own label in the curve column",
+        )),
+        _ => Ok(()),
+    }
 }
 
 /// Serialises results in the chosen format.

@@ -181,6 +181,14 @@ pub enum Problem {
         /// Et, mol/L.
         enzyme: f64,
     },
+    /// The relation's result underflows to 0 or overflows (e.g. S/Km of
+    /// 10^600): a number no double holds, so no Ki can be stated.
+    OutOfRange {
+        /// The IC50, mol/L.
+        ic50: f64,
+        /// The factor IC50 is multiplied by.
+        factor: f64,
+    },
 }
 
 impl Problem {
@@ -207,6 +215,9 @@ impl Problem {
                 crate::io::output::sig(ic50 * 1e9, 4),
                 crate::io::output::sig(enzyme * 0.5e9, 4)
             ),
+            Problem::OutOfRange { ic50, factor } => format!(
+                "the relation gives Ki = IC50 × {factor:e} = {ic50:e} M × {factor:e}, which is beyond what a double can hold (below 2.2e-308 or above 1.8e308 mol/L)"
+            ),
         }
     }
 
@@ -221,6 +232,9 @@ impl Problem {
             }
             Problem::BelowHalfEnzyme { .. } => {
                 "check the units of the IC50 and of Et, and that Et is the active enzyme concentration".into()
+            }
+            Problem::OutOfRange { .. } => {
+                "check the units and exponents of the IC50, substrate, Km, alpha, ligand and Kd".into()
             }
         }
     }
@@ -260,6 +274,9 @@ pub fn convert(m: &Measurement, c: &Conditions, settings: &Settings) -> Result<C
     };
     let factor = relation.factor();
     let ki = corrected * factor;
+    if !(ki.is_finite() && ki >= f64::MIN_POSITIVE) {
+        return Err(Problem::OutOfRange { ic50: corrected, factor });
+    }
     // An approximate IC50 (`~`, e.g. Hill held) gives an approximate Ki, never an exact one.
     let qualifier = m.qualifier;
     let (low, high, interval_method) = if m.qualifier.is_bound() {

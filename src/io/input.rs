@@ -5,6 +5,7 @@
 
 use std::io::Read;
 
+use super::line_endings::{LineLog, UnifiedLineEndings};
 use crate::error::{CellError, Error, Result};
 use crate::units::{ACCEPTED_UNITS, CellProblem, ConcUnit, Qualifier, parse_written};
 
@@ -105,12 +106,13 @@ impl Table {
     /// cell starting with `#`) and blank lines are skipped; the first other
     /// line is the header.
     pub fn parse(source: &str, bytes: &[u8], delimiter: u8) -> Result<Table> {
+        let lines = LineLog::default();
         let mut reader = csv::ReaderBuilder::new()
             .delimiter(delimiter)
             .trim(csv::Trim::All)
             .has_headers(false)
             .flexible(true)
-            .from_reader(bytes);
+            .from_reader(UnifiedLineEndings::new(bytes, lines.clone()));
         let csv_error = |line: u64, message: String| Error::Csv { path: source.to_string(), line, message };
         let mut columns: Option<Vec<Column>> = None;
         let mut header_line = 1;
@@ -120,14 +122,18 @@ impl Table {
             match reader.read_record(&mut record) {
                 Ok(false) => break,
                 Ok(true) => {}
-                Err(e) => return Err(csv_error(e.position().map_or(0, |p| p.line()), describe_csv_error(&e))),
+                Err(e) => {
+                    return Err(csv_error(lines.line_at(e.position().map_or(0, |p| p.byte())), describe_csv_error(&e)));
+                }
             }
-            let line = record.position().map_or(0, |p| p.line());
+            let line = lines.line_at(record.position().map_or(0, |p| p.byte()));
             if record.iter().all(str::is_empty) || record.get(0).is_some_and(|c| c.starts_with('#')) {
                 continue;
             }
             let Some(header) = &columns else {
-                columns = Some(record.iter().map(Column::parse).collect());
+                let parsed: Vec<Column> = record.iter().map(Column::parse).collect();
+                check_unique_columns(source, line, &parsed)?;
+                columns = Some(parsed);
                 header_line = line;
                 continue;
             };
@@ -154,8 +160,23 @@ impl Table {
         self.columns.iter().position(|c| spec.matches(&c.key))
     }
 
-    /// Index of the column matching `spec`, or an error listing what is there.
+    /// Index of the column matching `spec`, or an error listing what is
+    /// there. Two columns that both match (`ki` and an accepted alias of it)
+    /// are an error naming both, not a silent choice of the first.
     pub fn require(&self, spec: &ColumnSpec) -> Result<usize> {
+        let mut matching = self.columns.iter().enumerate().filter(|(_, c)| spec.matches(&c.key));
+        if let (Some(first), Some(second)) = (matching.next(), matching.next()) {
+            return Err(Error::Csv {
+                path: self.source.clone(),
+                line: self.header_line,
+                message: format!(
+                    "{} and {} both give the '{}' column; keep one of them (rename or remove the other)",
+                    describe_column(first.0, first.1),
+                    describe_column(second.0, second.1),
+                    spec.name
+                ),
+            });
+        }
         self.find(spec).ok_or_else(|| Error::MissingColumn {
             path: self.source.clone(),
             column: spec.name.to_string(),
@@ -250,7 +271,16 @@ impl Table {
                 }
             },
         };
-        Ok(Concentration { qualifier: written.qualifier, molar: unit.to_molar(written.value), unit })
+        let molar = unit.to_molar(written.value);
+        if !molar.is_finite() || (molar != 0.0 && molar.abs() < f64::MIN_POSITIVE) {
+            return Err(self.cell_error(
+                row,
+                col,
+                format!("{} {} is {molar:e} mol/L, beyond what a double can hold", written.value, unit.symbol()),
+                "check the exponent and the unit; concentrations lie between about 1e-300 and 1e300 mol/L",
+            ));
+        }
+        Ok(Concentration { qualifier: written.qualifier, molar, unit })
     }
 
     /// The unit a concentration column is expressed in, for reporting: the
@@ -266,6 +296,34 @@ impl Table {
     pub fn unit_text(&self, col: usize) -> Option<&str> {
         self.columns[col].unit_text.as_deref()
     }
+}
+
+/// Refuses a header in which two columns have the same name once case, the
+/// unit and spacing are set aside (`IC50 (nM)` and `ic50 [uM]`): every
+/// command would silently read only the first of them.
+pub(crate) fn check_unique_columns(source: &str, line: u64, columns: &[Column]) -> Result<()> {
+    for (second, column) in columns.iter().enumerate() {
+        if column.key.is_empty() {
+            continue;
+        }
+        if let Some(first) = columns[..second].iter().position(|c| c.key == column.key) {
+            return Err(Error::Csv {
+                path: source.to_string(),
+                line,
+                message: format!(
+                    "{} and {} have the same name; every column needs its own name (rename or remove one)",
+                    describe_column(first, &columns[first]),
+                    describe_column(second, column)
+                ),
+            });
+        }
+    }
+    Ok(())
+}
+
+/// `column 3 ('ic50 (nM)')`, counting from 1 as a spreadsheet does.
+fn describe_column(index: usize, column: &Column) -> String {
+    format!("column {} ('{}')", index + 1, column.header)
 }
 
 pub(crate) fn describe_csv_error(e: &csv::Error) -> String {
@@ -301,6 +359,30 @@ mod tests {
         assert_eq!(t.rows[1].line, 5);
         let e = t.number(&t.rows[1], 1).unwrap_err().to_string();
         assert!(e.contains("line 5") && e.contains("'y'") && e.contains("zz"), "{e}");
+    }
+
+    #[test]
+    fn line_numbers_are_right_for_crlf_cr_and_mixed_line_endings() {
+        for text in ["x,y\r\n1,2\r\n\r\n3,zz\r\n", "x,y\r1,2\r\r3,zz\r", "x,y\n1,2\r\n\r3,zz"] {
+            let t = table(text);
+            assert_eq!((t.rows[0].line, t.rows[1].line), (2, 4), "{text:?}");
+            let e = t.number(&t.rows[1], 1).unwrap_err().to_string();
+            assert!(e.contains("line 4") && e.contains("zz"), "{e}");
+        }
+        let e = Table::parse("t.csv", b"x,y\r\n1,2\r\n3\r\n", b',').unwrap_err().to_string();
+        assert!(e.contains("line 3"), "{e}");
+    }
+
+    #[test]
+    fn duplicate_column_names_are_an_error_naming_both() {
+        let e = Table::parse("t.csv", b"# note\nIC50 (nM),compound,ic50 [uM]\n1,a,2\n", b',').unwrap_err().to_string();
+        assert!(
+            e.contains("t.csv, line 2") && e.contains("column 1 ('IC50 (nM)')") && e.contains("column 3 ('ic50 [uM]')"),
+            "{e}"
+        );
+        let t = table("s,substrate\n1,2\n");
+        let e = t.require(&ColumnSpec::new("substrate", &["s"])).unwrap_err().to_string();
+        assert!(e.contains("column 1 ('s')") && e.contains("column 2 ('substrate')"), "{e}");
     }
 
     #[test]

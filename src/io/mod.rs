@@ -1,6 +1,8 @@
 //! Reading assay tables and writing results. Nothing here computes.
 
+pub mod identity;
 pub mod input;
+pub mod line_endings;
 pub mod output;
 pub mod stream;
 

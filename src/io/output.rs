@@ -34,9 +34,11 @@ pub fn write_output(path: Option<&Path>, bytes: &[u8], inputs: &[&str]) -> Resul
     if is_special_file(path) {
         return std::fs::write(path, bytes).map_err(write_error);
     }
-    let file_name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_else(|| "output".into());
-    let temp = path.with_file_name(format!(".{file_name}.{}.tmp", std::process::id()));
-    std::fs::write(&temp, bytes).map_err(write_error)?;
+    let temp = super::identity::temp_sibling(path);
+    std::fs::write(&temp, bytes).map_err(|source| {
+        let _ = std::fs::remove_file(&temp); // a full disk leaves no half-written temporary
+        write_error(source)
+    })?;
     std::fs::rename(&temp, path).map_err(|source| {
         let _ = std::fs::remove_file(&temp);
         write_error(source)
@@ -53,8 +55,15 @@ pub(crate) fn refuse_inputs(path: &Path, inputs: &[&str]) -> Result<()> {
     let Ok(target) = path.canonicalize() else {
         return Ok(()); // does not exist yet, so it is no input
     };
-    for input in inputs.iter().filter(|i| **i != "-") {
-        if Path::new(input).canonicalize().is_ok_and(|i| i == target) {
+    for input in inputs {
+        let clash = match *input {
+            "-" => super::identity::is_stdin(path),
+            input => {
+                Path::new(input).canonicalize().is_ok_and(|i| i == target)
+                    || super::identity::same_file(Path::new(input), path)
+            }
+        };
+        if clash {
             return Err(Error::OutputIsInput { path: path.to_path_buf() });
         }
     }

@@ -12,7 +12,8 @@
 use std::io::{BufReader, BufWriter, Read, Write};
 use std::path::{Path, PathBuf};
 
-use super::input::{Column, Record, Table, describe_csv_error};
+use super::input::{Column, Record, Table, check_unique_columns, describe_csv_error};
+use super::line_endings::{LineLog, UnifiedLineEndings};
 use crate::error::{Error, Result};
 
 /// Rows of a CSV, one at a time.
@@ -21,6 +22,9 @@ pub struct RowStream {
     reader: csv::Reader<Box<dyn Read + Send>>,
     record: csv::StringRecord,
     rows: u64,
+    lines: LineLog,
+    /// The line the record in `record` starts on.
+    line: u64,
 }
 
 impl RowStream {
@@ -40,7 +44,9 @@ impl RowStream {
     /// lines and comments (first cell starting with `#`) are skipped, as by
     /// [`Table::parse`]; the first other line is the header.
     pub fn new(source: &str, input: Box<dyn Read + Send>, delimiter: u8) -> Result<RowStream> {
-        let input: Box<dyn Read + Send> = Box::new(BufReader::with_capacity(1 << 16, input));
+        let lines = LineLog::default();
+        let input: Box<dyn Read + Send> =
+            Box::new(UnifiedLineEndings::new(BufReader::with_capacity(1 << 16, input), lines.clone()));
         let reader = csv::ReaderBuilder::new()
             .delimiter(delimiter)
             .trim(csv::Trim::All)
@@ -48,15 +54,16 @@ impl RowStream {
             .flexible(true)
             .from_reader(input);
         let table = Table { source: source.to_string(), columns: Vec::new(), header_line: 1, rows: Vec::new() };
-        let mut stream = RowStream { table, reader, record: csv::StringRecord::new(), rows: 0 };
+        let mut stream = RowStream { table, reader, record: csv::StringRecord::new(), rows: 0, lines, line: 1 };
         if !stream.next_content()? {
             return Err(Error::Empty { path: source.to_string() });
         }
         stream.table.columns = stream.record.iter().map(Column::parse).collect();
-        stream.table.header_line = stream.record.position().map_or(1, |p| p.line());
+        stream.table.header_line = stream.line;
         if stream.table.columns.iter().all(|c| c.key.is_empty()) {
             return Err(Error::Empty { path: source.to_string() });
         }
+        check_unique_columns(source, stream.table.header_line, &stream.table.columns)?;
         Ok(stream)
     }
 
@@ -66,13 +73,17 @@ impl RowStream {
             match self.reader.read_record(&mut self.record) {
                 Ok(false) => return Ok(false),
                 Ok(true) => {
+                    self.line = self.lines.line_at(self.record.position().map_or(0, |p| p.byte()));
                     let r = &self.record;
                     if r.iter().all(str::is_empty) || r.get(0).is_some_and(|c| c.starts_with('#')) {
                         continue;
                     }
                     return Ok(true);
                 }
-                Err(e) => return Err(csv_error(&self.table.source, &e)),
+                Err(e) => {
+                    let line = self.lines.line_at(e.position().map_or(0, |p| p.byte()));
+                    return Err(Error::Csv { path: self.table.source.clone(), line, message: describe_csv_error(&e) });
+                }
             }
         }
     }
@@ -89,7 +100,7 @@ impl RowStream {
             return if self.rows == 0 { Err(Error::Empty { path: self.table.source.clone() }) } else { Ok(false) };
         }
         self.rows += 1;
-        row.line = self.record.position().map_or(0, |p| p.line());
+        row.line = self.line;
         let width = self.table.columns.len();
         if self.record.len() != width {
             return Err(Error::Csv {
@@ -113,10 +124,6 @@ impl RowStream {
     pub fn bytes_read(&self) -> u64 {
         self.reader.position().byte()
     }
-}
-
-fn csv_error(source: &str, e: &csv::Error) -> Error {
-    Error::Csv { path: source.to_string(), line: e.position().map_or(0, |p| p.line()), message: describe_csv_error(e) }
 }
 
 /// Tab for `.tsv`/`.tab`, comma otherwise (as [`Table::read`]).
@@ -146,8 +153,7 @@ impl OutputSink {
                 .map_err(|source| Error::Write { path: path.to_path_buf(), source })?;
             return Ok(OutputSink { writer: BufWriter::new(Box::new(device)), temp: None });
         }
-        let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_else(|| "output".into());
-        let temp = path.with_file_name(format!(".{name}.{}.tmp", std::process::id()));
+        let temp = super::identity::temp_sibling(path);
         let file = std::fs::File::create(&temp).map_err(|source| Error::Write { path: path.to_path_buf(), source })?;
         Ok(OutputSink { writer: BufWriter::new(Box::new(file)), temp: Some((temp, path.to_path_buf())) })
     }
@@ -206,6 +212,27 @@ mod tests {
         let e = s.table().number(&row, 1).unwrap_err().to_string();
         assert!(e.contains("line 6") && e.contains("zz"), "{e}");
         assert!(!s.next_into(&mut row).unwrap());
+    }
+
+    #[test]
+    fn streamed_line_numbers_are_right_for_crlf_and_cr_line_endings() {
+        for text in ["x,y\r\n1,2\r\n\r\n3,zz\r\n", "x,y\r1,2\r\r3,zz\r"] {
+            let mut s =
+                RowStream::new("t.csv", Box::new(std::io::Cursor::new(text.as_bytes().to_vec())), b',').unwrap();
+            let mut row = Record { line: 0, cells: Vec::new() };
+            assert!(s.next_into(&mut row).unwrap());
+            assert_eq!(row.line, 2);
+            assert!(s.next_into(&mut row).unwrap());
+            assert_eq!(row.line, 4, "{text:?}");
+        }
+    }
+
+    #[test]
+    fn streamed_duplicate_column_names_are_an_error_naming_both() {
+        let text = "plate,compound,Compound\r\n1,a,b\r\n";
+        let e = RowStream::new("t.csv", Box::new(std::io::Cursor::new(text.as_bytes().to_vec())), b',').err().unwrap();
+        let e = e.to_string();
+        assert!(e.contains("column 2 ('compound')") && e.contains("column 3 ('Compound')"), "{e}");
     }
 
     #[test]

@@ -80,6 +80,7 @@ impl Axis {
         let (mut lo, mut hi) = values
             .into_iter()
             .filter(usable_value)
+            .map(|v| v.clamp(-DRAWABLE, DRAWABLE))
             .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| (lo.min(v), hi.max(v)));
         if !lo.is_finite() {
             (lo, hi) = if self.scale == Scale::Log { (1.0, 10.0) } else { (0.0, 1.0) };
@@ -111,18 +112,33 @@ impl Axis {
     }
 }
 
+/// The largest magnitude an axis reaches. Data beyond it (a typo such as
+/// `1.7e308`) sit at the edge: a range reaching f64::MAX would overflow when
+/// padded, and its width, tick count and tick positions would be infinite.
+const DRAWABLE: f64 = 1e300;
+
+/// The smallest positive value a log axis reaches, for the same reason at
+/// the other end (10^-320 is subnormal; its logarithm loses its decades).
+const LOG_FLOOR: f64 = 1e-300;
+
+/// Most ticks any axis computes before thinning (a guard against a range
+/// that the 1-2-5 step cannot divide into a sensible count).
+const TICK_LIMIT: f64 = 1000.0;
+
 fn usable(scale: Scale, lo: f64, hi: f64) -> bool {
     lo.is_finite() && hi.is_finite() && hi > lo && (scale != Scale::Log || lo > 0.0)
 }
 
 fn log_range(lo: f64, hi: f64) -> AxisRange {
-    let (mut a, mut b) = (lo.log10(), hi.log10());
+    let (mut a, mut b) = (lo.max(LOG_FLOOR).log10(), hi.max(LOG_FLOOR).log10());
     if b - a < 0.3 {
         let mid = 0.5 * (a + b);
         (a, b) = (mid - 0.5, mid + 0.5);
     }
     let pad = 0.06 * (b - a);
-    AxisRange { lo: 10f64.powf(a - pad), hi: 10f64.powf(b + pad), scale: Scale::Log }
+    // The padding may not carry the range past what f64 holds (10^±307).
+    let (a, b) = ((a - pad).max(-307.0), (b + pad).min(307.0));
+    AxisRange { lo: 10f64.powf(a), hi: 10f64.powf(b), scale: Scale::Log }
 }
 
 /// A fixed axis range: the coordinate type every kimech chart is drawn in.
@@ -188,7 +204,11 @@ impl AxisRange {
     }
 
     fn log_ticks(&self, max: usize) -> Vec<f64> {
-        let (a, b) = (self.lo.log10(), self.hi.log10());
+        let floor = LOG_FLOOR.log10();
+        let (a, b) = (self.lo.log10().clamp(floor, -floor), self.hi.log10().clamp(floor, -floor));
+        if !(a.is_finite() && b.is_finite()) {
+            return Vec::new();
+        }
         let decades = (a.ceil() as i32)..=(b.floor() as i32);
         let count = decades.clone().count();
         if count >= 2 {
@@ -230,8 +250,11 @@ fn nice_step(raw: f64) -> f64 {
 
 fn linear_ticks(lo: f64, hi: f64, max: usize) -> Vec<f64> {
     let step = nice_step((hi - lo) / max as f64);
-    let first = (lo / step).ceil() as i64;
-    let last = (hi / step).floor() as i64;
+    let (first, last) = ((lo / step).ceil(), (hi / step).floor());
+    if !(first.is_finite() && last.is_finite() && last - first <= TICK_LIMIT) {
+        return Vec::new(); // an unusable range (NaN, infinite, or finer than f64 can step)
+    }
+    let (first, last) = (first as i64, last as i64);
     (first..=last).map(|k| k as f64 * step).map(|v| if v.abs() < step * 1e-9 { 0.0 } else { v }).collect()
 }
 
@@ -326,6 +349,30 @@ mod tests {
         let r = AxisRange { lo: 1e-9, hi: 1e-5, scale: Scale::Log };
         assert_relative_eq!(r.fraction(1e-7), 0.5, epsilon = 1e-12);
         assert_relative_eq!(r.at_fraction(0.25), 1e-8, max_relative = 1e-12);
+    }
+
+    #[test]
+    fn axes_survive_huge_tiny_and_non_finite_values_without_panic() {
+        let extremes = [1.7e308, f64::MAX, -f64::MAX, 5e-324, 1e-320, 0.0, -0.0, f64::NAN, f64::INFINITY];
+        for a in extremes {
+            for b in extremes {
+                for axis in [Axis::linear("x"), Axis::linear("x").from_zero().symmetric(), Axis::log("x")] {
+                    let r = axis.range_for([a, b, 1.0]);
+                    assert!(r.lo.is_finite() && r.hi.is_finite() && r.hi >= r.lo, "{a} {b}: {r:?}");
+                    let ticks = r.ticks(8);
+                    assert!(ticks.len() <= TICK_LIMIT as usize + 1);
+                    for t in ticks {
+                        let _ = r.label(t, 8);
+                    }
+                    let _ = r.map(&a, (0, 500));
+                }
+                for scale in [Scale::Linear, Scale::Log] {
+                    let r = AxisRange { lo: a.min(b), hi: a.max(b), scale };
+                    assert!(r.ticks(8).len() <= 3 * 700, "{r:?}");
+                    let _ = (r.label(a, 8), r.map(&b, (0, 500)), r.samples(5));
+                }
+            }
+        }
     }
 
     #[test]

@@ -1,0 +1,255 @@
+//! Bad and awkward input, end to end through the real binary: line endings,
+//! duplicate columns, outputs over inputs, extreme numbers. Each test pins
+//! one behaviour found by fuzzing or by hand-made bad files (issue 14).
+
+mod common;
+
+use common::kimech;
+use serde_json::Value;
+
+/// Writes `text` to `name` in a fresh directory and returns the directory.
+fn file(name: &str, text: &str) -> tempfile::TempDir {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join(name), text).unwrap();
+    dir
+}
+
+fn stderr(out: &std::process::Output) -> String {
+    String::from_utf8_lossy(&out.stderr).into_owned()
+}
+
+#[test]
+fn crlf_line_numbers_are_right_in_error_messages() {
+    // Windows (CRLF), old Mac (CR) and mixed endings: the bad cell is on line 3.
+    for text in [
+        "substrate (uM),rate\r\n1,2\r\n2,x\r\n",
+        "substrate (uM),rate\r1,2\r2,x\r",
+        "substrate (uM),rate\n1,2\r\n2,x\r",
+    ] {
+        let out = kimech(std::env::temp_dir().as_path()).args(["km", "-"]).write_stdin(text).output().unwrap();
+        let e = stderr(&out);
+        assert!(e.contains("<stdin>, line 3, column 'rate'") && e.contains("'x'"), "{text:?}: {e}");
+    }
+}
+
+#[test]
+fn crlf_line_numbers_are_right_in_exported_row_fields() {
+    let dir = file("k.csv", "compound,ic50 (nM)\r\n\r\na,100\r\nb,200\r\n");
+    let out =
+        kimech(dir.path()).args(["ki", "k.csv", "--mechanism", "noncompetitive", "--format", "json"]).output().unwrap();
+    assert!(out.status.success(), "{}", stderr(&out));
+    let doc: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let rows: Vec<u64> = doc["results"].as_array().unwrap().iter().map(|r| r["row"].as_u64().unwrap()).collect();
+    assert_eq!(rows, [3, 4]);
+}
+
+#[test]
+fn crlf_line_numbers_are_right_in_the_streaming_reader() {
+    let text = "plate,compound,concentration (nM),response\r\n\r\nP1,a,1,100\r\nP1,a,x,90\r\n";
+    let out = kimech(std::env::temp_dir().as_path()).args(["ic50", "-"]).write_stdin(text).output().unwrap();
+    let e = stderr(&out);
+    assert!(e.contains("line 4") && e.contains("'x'"), "{e}");
+}
+
+#[test]
+fn duplicate_column_names_are_an_error_naming_both_in_every_command() {
+    let text = "compound,x,Compound (nM)\n1,2,3\n";
+    for command in ["rates", "km", "ic50", "mode", "ki", "rank"] {
+        let dir = file("d.csv", text);
+        let out = kimech(dir.path()).args([command, "d.csv"]).output().unwrap();
+        assert_eq!(out.status.code(), Some(2), "{command}");
+        let e = stderr(&out);
+        assert!(
+            e.contains("d.csv, line 1")
+                && e.contains("column 1 ('compound')")
+                && e.contains("column 3 ('Compound (nM)')"),
+            "{command}: {e}"
+        );
+    }
+}
+
+#[test]
+fn plots_of_values_near_the_largest_double_do_not_panic() {
+    let cases = [
+        ("km", "substrate (uM),rate\n1,2\n2,3\n1.7e308,4\n"),
+        ("km", "substrate (uM),rate\n1,1e300\n2,1.7e308\n3,-1.7e308\n4,4\n5,6\n"),
+        ("km", "substrate (uM),rate\n1e-300,2\n2e-300,3\n3e-300,4\n"),
+        (
+            "ic50",
+            "compound,concentration (nM),response\na,0,100\na,1,90\na,10,50\na,100,10\na,1.7e308,5\nb,1,1.7e308\nb,2,-1.7e308\nb,3,4\n",
+        ),
+        (
+            "mode",
+            "substrate (uM),inhibitor (uM),rate\n1,0,1.7e308\n2,0,2\n4,0,3\n1,1e300,1\n2,1e300,1.5\n4,1e300,2\n1,1,1\n2,1,2\n4,1,2.5\n",
+        ),
+    ];
+    for (command, text) in cases {
+        let dir = file("p.csv", text);
+        let out =
+            kimech(dir.path()).args([command, "p.csv", "--plot", "plots", "--report", "r.html"]).output().unwrap();
+        let code = out.status.code();
+        assert!(matches!(code, Some(0 | 2 | 3)), "{command} {text:?}: exit {code:?}: {}", stderr(&out));
+        assert!(!stderr(&out).contains("panicked"), "{}", stderr(&out));
+    }
+}
+
+/// Runs `command - -o in.csv < in.csv` and checks that it refuses and leaves the input as it was.
+fn refuses_output_over_stdin(command: &[&str], text: &str) {
+    let dir = file("in.csv", text);
+    let input = dir.path().join("in.csv");
+    // A real file on stdin, as the shell's `<` gives (not a pipe).
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_kimech"))
+        .current_dir(dir.path())
+        .args(command)
+        .args(["-", "-o", "in.csv"])
+        .stdin(std::fs::File::open(&input).unwrap())
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2), "{command:?}: {}", stderr(&out));
+    assert!(stderr(&out).contains("refusing to write the output over an input file"), "{command:?}: {}", stderr(&out));
+    assert_eq!(std::fs::read_to_string(&input).unwrap(), text, "{command:?} replaced its input");
+    // The same through another name for the same file (a hard link).
+    std::fs::hard_link(&input, dir.path().join("link.csv")).unwrap();
+    let out = kimech(dir.path()).args(command).args(["in.csv", "-o", "link.csv"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(2), "{command:?} via a hard link: {}", stderr(&out));
+    assert_eq!(std::fs::read_to_string(&input).unwrap(), text);
+}
+
+#[test]
+fn output_over_stdin_is_refused_by_file_identity_in_every_command() {
+    let km = "substrate (uM),rate\n1,1\n2,1.6\n5,2.5\n10,3\n20,3.4\n40,3.6\n";
+    refuses_output_over_stdin(&["km"], km);
+    refuses_output_over_stdin(&["rates"], &common::fixture_text("rates/progress.csv"));
+    refuses_output_over_stdin(&["mode"], &common::fixture_text("mode/competitive.csv"));
+    let ic50 = "compound,concentration (nM),response\na,0,100\na,1,95\na,10,70\na,100,30\na,1000,5\na,10000,2\n";
+    refuses_output_over_stdin(&["ic50"], ic50);
+    let ki = "compound,ic50 (nM)\na,100\nb,250\n";
+    refuses_output_over_stdin(&["ki", "--mechanism", "noncompetitive"], ki);
+    let dir = file("ki.csv", ki);
+    let out =
+        kimech(dir.path()).args(["ki", "ki.csv", "--mechanism", "noncompetitive", "--format", "csv"]).output().unwrap();
+    refuses_output_over_stdin(&["rank"], &String::from_utf8(out.stdout).unwrap());
+}
+
+#[test]
+fn flat_rates_say_km_is_not_determined_instead_of_converging() {
+    let dir = file("f.csv", "substrate (uM),rate\n1,5\n2,5\n5,5\n10,5\n20,5\n");
+    let out = kimech(dir.path()).args(["km", "f.csv", "--format", "csv"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(3), "the one series failed");
+    let e = stderr(&out);
+    assert!(e.contains("Km is not determined") && e.contains("every rate is 5"), "{e}");
+    assert!(!String::from_utf8_lossy(&out.stdout).contains("NaN"));
+}
+
+#[test]
+fn underflowing_and_overflowing_cells_are_errors_at_their_cell() {
+    for (cell, problem) in [("1e-400", "too small"), ("1e400", "too large")] {
+        let dir = file("u.csv", &format!("substrate (uM),rate\n1,2\n2,{cell}\n5,4\n"));
+        let out = kimech(dir.path()).args(["km", "u.csv"]).output().unwrap();
+        let e = stderr(&out);
+        assert!(e.contains("u.csv, line 3, column 'rate'") && e.contains(problem) && e.contains(cell), "{e}");
+    }
+    // A value that a unit conversion carries below the smallest double.
+    let dir = file("c.csv", "compound,ic50\na,1e-300 pM\n");
+    let out = kimech(dir.path()).args(["ki", "c.csv", "--mechanism", "noncompetitive"]).output().unwrap();
+    let e = stderr(&out);
+    assert!(e.contains("line 2, column 'ic50'") && e.contains("beyond what a double can hold"), "{e}");
+}
+
+/// No number cell of a CSV holds `NaN` or `inf`.
+fn assert_no_non_finite_cells(csv: &[u8]) {
+    let text = String::from_utf8_lossy(csv);
+    for (i, line) in text.lines().enumerate() {
+        for cell in line.split(',') {
+            let lower = cell.to_ascii_lowercase();
+            assert!(!["nan", "inf", "-inf", "+inf", "infinity"].contains(&lower.as_str()), "line {}: {line}", i + 1);
+        }
+    }
+}
+
+#[test]
+fn ki_beyond_double_range_is_an_error_row_not_zero_or_infinite_pki() {
+    let dir = file("k.csv", "compound,ic50 (nM),substrate (uM),km (uM)\nbig,100,1e300,1e-300\nok,100,10,10\n");
+    let out =
+        kimech(dir.path()).args(["ki", "k.csv", "--mechanism", "competitive", "--format", "csv"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(3), "{}", stderr(&out));
+    assert!(stderr(&out).contains("beyond what a double can hold"), "{}", stderr(&out));
+    assert_no_non_finite_cells(&out.stdout);
+    let out =
+        kimech(dir.path()).args(["ki", "k.csv", "--mechanism", "competitive", "--format", "json"]).output().unwrap();
+    let doc: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let big = &doc["results"][0];
+    assert!(big["ki"]["value"].is_null() && big["pki"].is_null() && big["error"].is_string(), "{big}");
+}
+
+#[test]
+fn extreme_km_inputs_never_write_nan_or_inf_in_a_number_cell() {
+    for text in [
+        "substrate (uM),rate\n1,1e300\n2,1.7e308\n3,-1.7e308\n4,1e-300\n5,4\n",
+        "substrate (uM),rate\n1e-300,2\n2e-300,3\n3e-300,4\n",
+        "substrate (uM),rate\n1,2\n2,3\n1.7e308,4\n",
+        "substrate (uM),rate\n1,5\n2,5\n5,5.000001\n10,5\n",
+    ] {
+        let dir = file("x.csv", text);
+        let out = kimech(dir.path()).args(["km", "x.csv", "--format", "csv"]).output().unwrap();
+        assert!(matches!(out.status.code(), Some(0 | 2 | 3)), "{text:?}");
+        assert_no_non_finite_cells(&out.stdout);
+    }
+}
+
+/// The adequacy figures (runs-test and lack-of-fit p) of `kimech mode` on `text`.
+fn mode_adequacy(text: &str) -> (f64, f64) {
+    let dir = file("m.csv", text);
+    let out = kimech(dir.path()).args(["mode", "m.csv", "--format", "json"]).output().unwrap();
+    assert!(out.status.success(), "{}", stderr(&out));
+    let doc: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let a = &doc["results"][0]["adequacy"];
+    (a["runs_p"].as_f64().unwrap(), a["lack_of_fit_p"].as_f64().unwrap())
+}
+
+#[test]
+fn mode_replicates_group_by_level_whatever_unit_each_cell_is_written_in() {
+    let text = common::fixture_text("mode/competitive.csv");
+    let mut mixed = String::new();
+    for (k, line) in text.lines().enumerate() {
+        let cells: Vec<&str> = line.split(',').collect();
+        if k == 0 || k % 2 == 1 {
+            mixed.push_str(line);
+        } else {
+            let nm = cells[1].parse::<f64>().unwrap() * 1000.0;
+            mixed.push_str(&format!("{},{nm} nM,{}", cells[0], cells[2]));
+        }
+        mixed.push('\n');
+    }
+    let (runs_uniform, lof_uniform) = mode_adequacy(&text);
+    let (runs_mixed, lof_mixed) = mode_adequacy(&mixed);
+    approx::assert_relative_eq!(runs_uniform, runs_mixed, max_relative = 1e-9);
+    approx::assert_relative_eq!(lof_uniform, lof_mixed, max_relative = 1e-6);
+}
+
+#[test]
+fn rates_reject_negative_or_decreasing_times_at_their_cell() {
+    let text = "curve,time (min),product (uM)\nA,0,0\nA,1,1\nA,0.5,2\nA,2,3\n";
+    let dir = file("t.csv", text);
+    let out = kimech(dir.path()).args(["rates", "t.csv"]).output().unwrap();
+    let e = stderr(&out);
+    assert!(e.contains("t.csv, line 4, column 'time (min)'") && e.contains("goes back from 1 on line 3"), "{e}");
+    let dir = file("n.csv", "curve,time (min),product (uM)\r\nA,-1,0\r\nA,1,1\r\nA,2,2\r\n");
+    let out = kimech(dir.path()).args(["rates", "n.csv"]).output().unwrap();
+    let e = stderr(&out);
+    assert!(e.contains("n.csv, line 2, column 'time (min)'") && e.contains("negative"), "{e}");
+}
+
+#[test]
+fn group_failures_name_the_file_and_shorten_long_ids() {
+    let long = "x".repeat(500);
+    let text = format!(
+        "series,substrate (uM),rate\n{long},1,1\n{long},1,2\n{long},1,3\nok,1,1\nok,2,1.6\nok,5,2.5\nok,10,3\n"
+    );
+    let dir = file("g.csv", &text);
+    let out = kimech(dir.path()).args(["km", "g.csv"]).output().unwrap();
+    let e = stderr(&out);
+    let message = e.lines().find(|l| l.contains("distinct substrate")).unwrap_or_else(|| panic!("{e}"));
+    assert!(message.contains("g.csv, lines 2-4") && message.contains('…'), "{message}");
+    assert!(message.len() < 400, "the 500-character id is shortened: {message}");
+}
