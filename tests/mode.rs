@@ -412,7 +412,13 @@ fn reads_stdin_and_writes_csv_to_a_file() {
     let input = std::fs::read(format!("{ROOT}/fixtures/mode/all.csv")).unwrap();
     kimech().args(["mode", "-", "--format", "csv", "-o"]).arg(&out).write_stdin(input).assert().success();
     let text = std::fs::read_to_string(&out).unwrap();
-    assert_eq!(text.lines().count(), 1 + 4 * 5, "a header and one row per compound and model");
-    assert!(text.lines().next().unwrap().starts_with("compound,model,chosen,choice"));
+    assert_eq!(text.lines().count(), 1 + 4 * 7, "a header and one row per compound and model (five + two extensions)");
+    let header = text.lines().next().unwrap();
+    assert!(header.starts_with("compound,model,chosen,choice"));
+    for column in
+        ["weighting", "runs_p", "lack_of_fit_p", "headline_basis", "headline_ki_low", "ki_se", "rate_unit", "beta"]
+    {
+        assert!(header.split(',').any(|c| c == column), "CSV lacks {column}: {header}");
+    }
     assert!(text.contains("mixed,true,mixed"));
 }
