@@ -892,6 +892,27 @@ mod tests {
     }
 
     #[test]
+    fn range_warnings_only_from_a_model_still_standing() {
+        // Substrate 1–4 against a fitted Km of 100: km-not-spanned from a standing fit, none without one.
+        let matrix = Matrix {
+            label: None,
+            origin: "test".into(),
+            lines: (0..9).collect(),
+            substrate: [1.0, 2.0, 4.0].repeat(3),
+            inhibitor: [0.0, 0.0, 0.0, 1.0, 1.0, 1.0, 2.0, 2.0, 2.0].to_vec(),
+            rate: vec![1.0; 9],
+            sd: None,
+        };
+        let theta = vec![10.0, 100.0, 1000.0];
+        let codes = |w: Vec<Warning>| w.iter().map(|w| w.code).collect::<Vec<_>>();
+        let standing = codes(design_warnings(&matrix, Some((&theta, Mechanism::Competitive)), 2.0, &Units::default()));
+        assert!(standing.contains(&"km-not-spanned") && standing.contains(&"inhibitor-range-far-from-ki"));
+        let rejected = codes(design_warnings(&matrix, None, 2.0, &Units::default()));
+        assert!(!rejected.contains(&"km-not-spanned") && !rejected.contains(&"inhibitor-range-far-from-ki"));
+        assert!(rejected.contains(&"few-inhibitor-levels"), "design-only warnings stay");
+    }
+
+    #[test]
     fn limits_are_pulled_back_keeping_the_finite_constant() {
         // α·Ki beyond 10⁶ × I_max: competitive edge, Ki kept.
         let mut t = [1.0, 2.0, 3.0, 1e9];
