@@ -564,7 +564,14 @@ fn block(r: &ModeResult) -> String {
         Criterion::Aicc => "AICc",
         Criterion::FTest => "F test",
     };
-    out.push_str(&format!("choice ({criterion}): {}\n", r.evidence));
+    if r.extensions.iter().any(|e| e.named) {
+        out.push_str(&format!(
+            "choice: {} (diagnosis); among the five laws alone ({criterion}): {}\n",
+            r.chosen, r.evidence
+        ));
+    } else {
+        out.push_str(&format!("choice ({criterion}): {}\n", r.evidence));
+    }
     if let Some(m) = r.models.iter().find(|m| m.model == r.chosen) {
         let level = format!("{:.0}%", r.confidence * 100.0);
         let consts: Vec<String> = [("Ki", &m.params.ki), ("α", &m.params.alpha), ("Kiu", &m.params.kiu)]
