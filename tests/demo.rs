@@ -13,6 +13,9 @@ fn demo_runs_every_stage_states_the_caution_and_writes_its_report() {
         .success()
         .stdout(predicate::str::contains("Stage 1 — progress curves → initial rates"))
         .stdout(predicate::str::contains("Michaelis–Menten fit — series batch-A"))
+        .stdout(predicate::str::contains("Inhibition mode — KX-206 — headline"))
+        .stdout(predicate::str::contains("MECHANISM UNCERTAIN"))
+        .stdout(predicate::str::contains("warning [partial-inhibition]"))
         .stdout(predicate::str::contains("IC50 → Ki"))
         // The raw plates fitted with and without --normalise give the same calls (issue 9).
         .stdout(predicate::str::contains("the same call and qualifier for 30 of 30 compounds"))

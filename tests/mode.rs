@@ -412,7 +412,45 @@ fn reads_stdin_and_writes_csv_to_a_file() {
     let input = std::fs::read(format!("{ROOT}/fixtures/mode/all.csv")).unwrap();
     kimech().args(["mode", "-", "--format", "csv", "-o"]).arg(&out).write_stdin(input).assert().success();
     let text = std::fs::read_to_string(&out).unwrap();
-    assert_eq!(text.lines().count(), 1 + 4 * 5, "a header and one row per compound and model");
-    assert!(text.lines().next().unwrap().starts_with("compound,model,chosen,choice"));
+    assert_eq!(text.lines().count(), 1 + 4 * 7, "a header and one row per compound and model (five + two extensions)");
+    let header = text.lines().next().unwrap();
+    assert!(header.starts_with("compound,model,chosen,choice"));
+    for column in
+        ["weighting", "runs_p", "lack_of_fit_p", "headline_basis", "headline_ki_low", "ki_se", "rate_unit", "beta"]
+    {
+        assert!(header.split(',').any(|c| c == column), "CSV lacks {column}: {header}");
+    }
     assert!(text.contains("mixed,true,mixed"));
+}
+
+// ---------------------------------------------------------------------------
+// scipy reference for the extension models (issue 10):
+// tests/reference/mode_extensions_reference.py → fixtures/reference/mode_extensions_scipy.json
+// (scipy.optimize.least_squares 'lm', 392 starts per model, scipy 1.17.1), four simulated matrices.
+
+#[test]
+fn extension_fits_reach_scipy_multistart_optima_and_are_named() {
+    let reference: Value = serde_json::from_str(
+        &std::fs::read_to_string(Path::new(ROOT).join("fixtures/reference/mode_extensions_scipy.json")).unwrap(),
+    )
+    .unwrap();
+    let doc = json_of(&["mode", &format!("{ROOT}/fixtures/mode/extensions.csv"), "--format", "json"]);
+    let results = doc["results"].as_array().unwrap();
+    assert_eq!(results.len(), 4);
+    for r in results {
+        let name = r["compound"].as_str().unwrap();
+        let dataset = &reference["datasets"][name];
+        for e in r["extensions"].as_array().unwrap() {
+            let model = e["model"].as_str().unwrap();
+            let scipy_sse = dataset["models"][model]["sse"].as_f64().unwrap();
+            let sse = e["sse"].as_f64().unwrap();
+            assert!(sse <= scipy_sse * (1.0 + 1e-6), "{name}/{model}: SSE {sse} above scipy's {scipy_sse}");
+        }
+        // Each matrix is named as the law it was simulated from, with its warning and a headline from it.
+        let law = dataset["law"].as_str().unwrap();
+        assert_eq!(r["chosen"], law, "{name}");
+        assert!(r["warnings"].as_array().unwrap().iter().any(|w| w["code"] == law), "{name}");
+        assert_eq!(r["headline"]["basis"], "diagnosis", "{name}");
+        assert!(r["headline"]["ki"]["value"].as_f64().is_some(), "{name}");
+    }
 }

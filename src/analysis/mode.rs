@@ -37,9 +37,19 @@ use crate::fit::intervals::{Bound, Interval, profile, wald};
 use crate::fit::stats::{aicc, akaike_weights, extra_sum_of_squares, lack_of_fit, runs_test};
 use crate::fit::{Data, Fit, FitSettings, Model, WeightProblem, Weighting, fit, fit_from, weights};
 use crate::io::output::sig;
-use crate::models::inhibition::{Mechanism, MixedAlphaKiu, MixedKiu, Point, RateLaw};
+use crate::models::inhibition::{Extension, Mechanism, MixedAlphaKiu, MixedKiu, Point, RateLaw};
 use crate::report::{Param, Warning};
 use crate::units::same_levels;
+
+mod extensions;
+pub mod headline;
+
+pub use extensions::{
+    DIAGNOSIS_LEVEL, ExtensionParams, ExtensionResult, HINT_LEVEL, MAX_KSI_FACTOR, MIN_RESIDUAL_ACTIVITY,
+};
+use extensions::{diagnose, diagnosis_warning, fit_extensions, partial_hint};
+use headline::uncertain;
+pub use headline::{Basis, Headline};
 
 /// Width of the parsimony window in AICc units (Burnham & Anderson 2002, §2.6).
 pub const PARSIMONY_WINDOW: f64 = 2.0;
@@ -132,14 +142,20 @@ pub struct ModeResult {
     pub compound: Option<String>,
     /// Number of observations.
     pub n: usize,
-    /// The chosen model's name, or `no-model-adequate`.
+    /// The chosen model's name; a diagnosis (`partial-inhibition`,
+    /// `substrate-inhibition`) when an extension model was named; or
+    /// `no-model-adequate`.
     pub chosen: String,
+    /// The constants the output leads with, carrying the model uncertainty.
+    pub headline: Headline,
     /// The criterion used for the choice.
     pub criterion: Criterion,
     /// The evidence for the choice in words.
     pub evidence: String,
     /// The five fits, simplest first.
     pub models: Vec<ModelResult>,
+    /// The extension models (diagnoses), fitted and compared with the five.
+    pub extensions: Vec<ExtensionResult>,
     /// F tests of every nested pair.
     pub tests: Vec<NestedTest>,
     /// Adequacy of the model the criterion picked.
@@ -230,12 +246,14 @@ struct Fitted {
     params: ModelParams,
 }
 
-/// Analyses one compound.
+/// Analyses one compound: a pure function of the matrix and the options
+/// (no I/O), so that design planning can call it on simulated matrices.
 pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<ModeResult> {
     check_matrix(matrix, options)?;
     let data = build_data(matrix, options)?;
     let i_max = matrix.inhibitor.iter().cloned().fold(0.0, f64::max);
     let fits = fit_all(&data, &options.settings);
+    let ext_fits = fit_extensions(&data, &fits[4], &options.settings);
     let fitted: Vec<Fitted> =
         Mechanism::ALL.iter().map(|&m| describe(m, &fits, &data, i_max, units, options)).collect();
     let aiccs: Vec<Option<f64>> = fitted.iter().map(|f| aicc(f.fit.n, f.fit.n_free, f.fit.sse)).collect();
@@ -245,19 +263,35 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
         Criterion::Aicc => choose_by_aicc(&aiccs, &weights),
         Criterion::FTest => choose_by_f(&fitted, options.alpha_level),
     };
-    let adequacy = adequacy(matrix, &data, &fitted[picked]);
-    let mut warnings = design_warnings(matrix, &fitted[picked], i_max, units);
-    let chosen = if adequacy.adequate {
-        Mechanism::ALL[picked].name().to_string()
-    } else {
-        warnings.push(inadequacy_warning(&adequacy));
-        "no-model-adequate".to_string()
+    let adequacy = adequacy_of(matrix, &data, &fitted[picked].fit, fitted[picked].mechanism.name());
+    let best_five = aiccs.iter().flatten().cloned().fold(f64::INFINITY, f64::min);
+    let (extensions, named) =
+        diagnose(matrix, &data, &ext_fits, &fits[4], best_five, adequacy.adequate, units, options);
+    let mut warnings = Vec::new();
+    // Range and spacing warnings come only from a model still standing.
+    let standing = match named {
+        Some(k) => Some((&ext_fits[k].theta, Mechanism::Mixed)),
+        None if adequacy.adequate => Some((&fitted[picked].fit.theta, fitted[picked].mechanism)),
+        None => None,
+    };
+    warnings.extend(design_warnings(matrix, standing, i_max, units));
+    let chosen = match named {
+        Some(k) => {
+            warnings.push(diagnosis_warning(&extensions[k], adequacy.adequate, units));
+            Extension::ALL[k].name().to_string()
+        }
+        None if adequacy.adequate => Mechanism::ALL[picked].name().to_string(),
+        None => {
+            warnings.push(inadequacy_warning(&adequacy));
+            "no-model-adequate".to_string()
+        }
     };
     let alpha_interpretation = interpret_alpha(&fitted[4]);
-    if picked == 4 && fitted[4].params.alpha.as_ref().is_some_and(|a| a.low.is_none() || a.high.is_none()) {
+    let plain = named.is_none() && adequacy.adequate;
+    if plain && picked == 4 && fitted[4].params.alpha.as_ref().is_some_and(|a| a.low.is_none() || a.high.is_none()) {
         warnings.push(Warning::new("alpha-not-determined", alpha_interpretation.clone()));
     }
-    if picked == 0 && adequacy.adequate {
+    if plain && picked == 0 {
         warnings.push(Warning::new(
             "no-inhibition-detected",
             "the rates do not depend on the inhibitor clearly enough to prefer any inhibition model over none; \
@@ -274,7 +308,7 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
             ),
         ));
     }
-    let models = fitted
+    let models: Vec<ModelResult> = fitted
         .into_iter()
         .zip(aiccs)
         .zip(weights)
@@ -289,13 +323,24 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
             params: f.params,
         })
         .collect();
+    if plain {
+        warnings.extend(uncertain(&models, picked));
+        warnings.extend(partial_hint(&extensions));
+    }
+    let headline = match named {
+        Some(k) => headline::from_extension(&extensions[k]),
+        None if adequacy.adequate => headline::from_five(&models, picked),
+        None => headline::inadequate(),
+    };
     Ok(ModeResult {
         compound: matrix.label.clone(),
         n: matrix.rate.len(),
         chosen,
+        headline,
         criterion: options.criterion,
         evidence,
         models,
+        extensions,
         tests,
         adequacy,
         alpha_interpretation,
@@ -682,9 +727,8 @@ fn choose_by_f(fitted: &[Fitted], level: f64) -> (usize, String) {
     }
 }
 
-/// Runs test and lack-of-fit test of one model.
-fn adequacy(matrix: &Matrix, data: &Data<Point>, fitted: &Fitted) -> Adequacy {
-    let fit = &fitted.fit;
+/// Runs test and lack-of-fit test of one fit.
+fn adequacy_of(matrix: &Matrix, data: &Data<Point>, fit: &Fit, model: &'static str) -> Adequacy {
     // Replicates by level, not by bit pattern: 1000 nM and 1 uM differ in the last bit after conversion.
     let (substrate, inhibitor) = (same_levels(&matrix.substrate), same_levels(&matrix.inhibitor));
     let mut order: Vec<usize> = (0..data.len()).collect();
@@ -702,13 +746,7 @@ fn adequacy(matrix: &Matrix, data: &Data<Point>, fitted: &Fitted) -> Adequacy {
         .collect();
     let lof = lack_of_fit(&fit.residuals, &data.weights, &groups, fit.n_free);
     let adequate = !runs.is_some_and(|p| p < ADEQUACY_LEVEL) && !lof.is_some_and(|t| t.1 < ADEQUACY_LEVEL);
-    Adequacy {
-        model: fitted.mechanism.name(),
-        runs_p: runs,
-        lack_of_fit_f: lof.map(|t| t.0),
-        lack_of_fit_p: lof.map(|t| t.1),
-        adequate,
-    }
+    Adequacy { model, runs_p: runs, lack_of_fit_f: lof.map(|t| t.0), lack_of_fit_p: lof.map(|t| t.1), adequate }
 }
 
 fn inadequacy_warning(a: &Adequacy) -> Warning {
@@ -771,8 +809,16 @@ fn interpret_alpha(mixed: &Fitted) -> String {
     }
 }
 
-/// Warnings about the design rather than the fit.
-fn design_warnings(matrix: &Matrix, picked: &Fitted, i_max: f64, units: &Units) -> Vec<Warning> {
+/// Warnings about the design rather than the fit. Those that compare the
+/// design with fitted constants use the model still standing (`standing`:
+/// its parameters and the mechanism they are laid out as), and are skipped
+/// when every model was rejected.
+fn design_warnings(
+    matrix: &Matrix,
+    standing: Option<(&Vec<f64>, Mechanism)>,
+    i_max: f64,
+    units: &Units,
+) -> Vec<Warning> {
     let mut warnings = Vec::new();
     let levels = distinct(&matrix.inhibitor);
     let nonzero: Vec<f64> = levels.iter().cloned().filter(|l| *l > 0.0).collect();
@@ -792,8 +838,11 @@ fn design_warnings(matrix: &Matrix, picked: &Fitted, i_max: f64, units: &Units) 
             "no rows at inhibitor 0: Vmax and Km of the free enzyme rest on extrapolation",
         ));
     }
+    let Some((theta, mechanism)) = standing else {
+        return warnings;
+    };
     let s = distinct(&matrix.substrate);
-    let km = picked.fit.theta[1];
+    let km = theta[1];
     if let (Some(lo), Some(hi)) = (s.first(), s.last())
         && (*lo > km || *hi < km)
     {
@@ -809,8 +858,7 @@ fn design_warnings(matrix: &Matrix, picked: &Fitted, i_max: f64, units: &Units) 
             ),
         ));
     }
-    let theta = &picked.fit.theta;
-    let constant = match picked.mechanism {
+    let constant = match mechanism {
         Mechanism::None => None,
         Mechanism::Mixed => Some(theta[2].min(theta[2] * theta[3])),
         _ => Some(theta[2]),
@@ -843,6 +891,27 @@ mod tests {
         assert_eq!(wider(Bound::At(1.0), Bound::At(2.0), 1.0), Bound::At(2.0));
         assert_eq!(wider(Bound::At(1.0), Bound::Unbounded, -1.0), Bound::Unbounded);
         assert_eq!(wider(Bound::NotDetermined, Bound::At(3.0), 1.0), Bound::At(3.0));
+    }
+
+    #[test]
+    fn range_warnings_only_from_a_model_still_standing() {
+        // Substrate 1–4 against a fitted Km of 100: km-not-spanned from a standing fit, none without one.
+        let matrix = Matrix {
+            label: None,
+            origin: "test".into(),
+            lines: (0..9).collect(),
+            substrate: [1.0, 2.0, 4.0].repeat(3),
+            inhibitor: [0.0, 0.0, 0.0, 1.0, 1.0, 1.0, 2.0, 2.0, 2.0].to_vec(),
+            rate: vec![1.0; 9],
+            sd: None,
+        };
+        let theta = vec![10.0, 100.0, 1000.0];
+        let codes = |w: Vec<Warning>| w.iter().map(|w| w.code).collect::<Vec<_>>();
+        let standing = codes(design_warnings(&matrix, Some((&theta, Mechanism::Competitive)), 2.0, &Units::default()));
+        assert!(standing.contains(&"km-not-spanned") && standing.contains(&"inhibitor-range-far-from-ki"));
+        let rejected = codes(design_warnings(&matrix, None, 2.0, &Units::default()));
+        assert!(!rejected.contains(&"km-not-spanned") && !rejected.contains(&"inhibitor-range-far-from-ki"));
+        assert!(rejected.contains(&"few-inhibitor-levels"), "design-only warnings stay");
     }
 
     #[test]

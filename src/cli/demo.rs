@@ -14,6 +14,8 @@ const PROGRESS_CURVES: &str = include_str!("../../demo-compounds/progress-curves
 
 /// The invented rate matrix of five compounds (demo-compounds/make_rate_matrix.py).
 const RATE_MATRIX: &str = include_str!("../../demo-compounds/rate-matrix.csv");
+/// Two matrices the five rate laws cannot settle (demo-compounds/make_difficult_matrices.py).
+const DIFFICULT_MATRIX: &str = include_str!("../../demo-compounds/rate-matrix-difficult.csv");
 
 /// The invented dose-response plates (demo-compounds/make_dose_response.py).
 const DOSE_RESPONSE: &str = include_str!("../../demo-compounds/dose-response.csv");
@@ -44,7 +46,7 @@ pub fn run(args: &Args) -> Result<()> {
     let mut sections = Vec::new();
     let rate_table = rates_stage(&mut sections)?;
     let km_status = km_stage(&rate_table, &mut sections);
-    let mode_status = mode_stage(&mut sections);
+    let mode_status = mode_stage(&mut sections).and(difficult_mode_stage(&mut sections));
     let (ic50_csv, ic50_status) = dose_response_stage_into(&mut sections)?;
     let ki_status = ki_rank_stage(&ic50_csv, &mut sections);
     let path = args.report.clone().unwrap_or_else(|| PathBuf::from(DEFAULT_REPORT));
@@ -125,8 +127,20 @@ fn km_stage(rate_table: &Table, sections: &mut Vec<Section>) -> Result<()> {
 fn mode_stage(sections: &mut Vec<Section>) -> Result<()> {
     println!("\nStage 3 — [S]×[I] rate matrices → mechanism, Ki, α (five invented compounds, one per mechanism)");
     println!("  $ kimech mode demo-compounds/rate-matrix.csv\n");
-    let path = "demo-compounds/rate-matrix.csv";
-    let table = crate::io::Table::parse(path, RATE_MATRIX.as_bytes(), b',')?;
+    mode_file_stage(sections, "demo-compounds/rate-matrix.csv", RATE_MATRIX)
+}
+
+/// Stage 3b: an uncertain mechanism and partial inhibition → what mode says about each.
+fn difficult_mode_stage(sections: &mut Vec<Section>) -> Result<()> {
+    println!("\nStage 3b — two harder matrices: a thin design that cannot settle the mechanism (KX-206),");
+    println!("and an inhibitor that leaves a third of the activity (KX-207)");
+    println!("  $ kimech mode demo-compounds/rate-matrix-difficult.csv\n");
+    mode_file_stage(sections, "demo-compounds/rate-matrix-difficult.csv", DIFFICULT_MATRIX)
+}
+
+/// Runs `mode` on one bundled file, prints the table and adds the report section.
+fn mode_file_stage(sections: &mut Vec<Section>, path: &str, text: &str) -> Result<()> {
+    let table = crate::io::Table::parse(path, text.as_bytes(), b',')?;
     let args = mode::Args {
         file: path.into(),
         substrate_unit: None,

@@ -325,6 +325,139 @@ pub fn ki_grid(data: &Data<Point>, count: usize) -> Vec<f64> {
     (0..count).map(|k| (lo + (hi - lo) * k as f64 / (count.max(2) - 1) as f64).exp()).collect()
 }
 
+/// Rate laws beyond the five, fitted as diagnoses of what the five cannot
+/// describe. Each reduces to mixed inhibition at an edge of its extra
+/// parameter, so the extra-sum-of-squares F test against mixed applies.
+///
+/// | extension | v = |
+/// |---|---|
+/// | partial | Vmax·S·(1 + β·I/(α·Ki)) / (Km·(1 + I/Ki) + S·(1 + I/(α·Ki))) |
+/// | substrate inhibition | Vmax·S / (Km·(1 + I/Ki) + S·(1 + I/(α·Ki)) + S²/Ksi) |
+///
+/// Partial (hyperbolic) inhibition: the ESI complex still turns over, at β
+/// times the rate of ES (Segel, *Enzyme Kinetics*, 1975, ch. 4, the general
+/// hyperbolic mixed-type system with the EI and ESI dissociation constants
+/// Ki and αKi; Cornish-Bowden, *Fundamentals of Enzyme Kinetics*, 4th ed.,
+/// 2012, ch. 6). Rates level off at a fraction ≈ β of the uninhibited rate
+/// (at high S) instead of falling to zero; β → 0 is mixed inhibition.
+///
+/// Substrate inhibition: a second substrate molecule binds ES to give a dead
+/// SES complex (Haldane, *Enzymes*, 1930; Cornish-Bowden 2012, §5.9), so the
+/// uninhibited series falls at high S; Ksi → ∞ is mixed inhibition.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Extension {
+    /// ESI keeps a fraction β of the activity of ES.
+    Partial,
+    /// A second substrate molecule inhibits (Haldane).
+    SubstrateInhibition,
+}
+
+impl Extension {
+    /// Both, in the order they are reported.
+    pub const ALL: [Extension; 2] = [Extension::Partial, Extension::SubstrateInhibition];
+
+    /// The diagnosis's name, also its warning code.
+    pub fn name(self) -> &'static str {
+        match self {
+            Extension::Partial => "partial-inhibition",
+            Extension::SubstrateInhibition => "substrate-inhibition",
+        }
+    }
+
+    /// Parameter names in vector order.
+    pub fn names(self) -> &'static [&'static str] {
+        match self {
+            Extension::Partial => &["vmax", "km", "ki", "alpha", "beta"],
+            Extension::SubstrateInhibition => &["vmax", "km", "ki", "alpha", "ksi"],
+        }
+    }
+}
+
+/// All five parameters are positive: logarithmic scales.
+const LOG5: [Scale; 5] = [Scale::Log; 5];
+
+/// An extension rate law, usable by the fitting engine.
+#[derive(Debug, Clone, Copy)]
+pub struct ExtensionLaw(pub Extension);
+
+impl Model for ExtensionLaw {
+    type Point = Point;
+
+    fn names(&self) -> &[&'static str] {
+        self.0.names()
+    }
+
+    fn scales(&self) -> &[Scale] {
+        &LOG5
+    }
+
+    fn value(&self, theta: &[f64], x: &Point) -> f64 {
+        let (s, i) = *x;
+        let (vmax, km, ki, alpha, extra) = (theta[0], theta[1], theta[2], theta[3], theta[4]);
+        let a = 1.0 + i / ki;
+        let b = 1.0 + i / (alpha * ki);
+        match self.0 {
+            Extension::Partial => vmax * s * (1.0 + extra * i / (alpha * ki)) / (km * a + s * b),
+            Extension::SubstrateInhibition => vmax * s / (km * a + s * b + s * s / extra),
+        }
+    }
+
+    fn gradient(&self, theta: &[f64], x: &Point, grad: &mut [f64]) {
+        let (s, i) = *x;
+        let (vmax, km, ki, alpha, extra) = (theta[0], theta[1], theta[2], theta[3], theta[4]);
+        let a = 1.0 + i / ki;
+        let b = 1.0 + i / (alpha * ki);
+        // ∂a/∂Ki, ∂b/∂Ki, ∂b/∂α
+        let (da_ki, db_ki, db_alpha) = (-i / (ki * ki), -i / (alpha * ki * ki), -i / (alpha * alpha * ki));
+        match self.0 {
+            Extension::Partial => {
+                // v = Vmax·S·N/D with N = 1 + β·I/(αKi), D = Km·a + S·b.
+                let n = 1.0 + extra * i / (alpha * ki);
+                let d = km * a + s * b;
+                let (dn_ki, dn_alpha, dn_beta) =
+                    (-extra * i / (alpha * ki * ki), -extra * i / (alpha * alpha * ki), i / (alpha * ki));
+                let u = vmax * s / d;
+                let q = -vmax * s * n / (d * d);
+                grad[0] = s * n / d;
+                grad[1] = q * a;
+                grad[2] = u * dn_ki + q * (km * da_ki + s * db_ki);
+                grad[3] = u * dn_alpha + q * s * db_alpha;
+                grad[4] = u * dn_beta;
+            }
+            Extension::SubstrateInhibition => {
+                let d = km * a + s * b + s * s / extra;
+                let q = -vmax * s / (d * d);
+                grad[0] = s / d;
+                grad[1] = q * a;
+                grad[2] = q * (km * da_ki + s * db_ki);
+                grad[3] = q * s * db_alpha;
+                grad[4] = q * (-s * s / (extra * extra));
+            }
+        }
+    }
+
+    /// Mixed-model starts crossed with a few values of the extra parameter
+    /// (β ∈ {0.05, 0.3, 0.6}; Ksi ∈ {1, 5} × the highest substrate
+    /// concentration, with Vmax doubled for the fall at high S). The analysis
+    /// adds starts from the fitted mixed optimum.
+    fn starts(&self, data: &Data<Point>) -> Vec<Vec<f64>> {
+        let s_max = data.x.iter().map(|x| x.0).fold(0.0, f64::max).max(1e-300);
+        let mut starts = Vec::new();
+        for t in RateLaw(Mechanism::Mixed).starts(data) {
+            match self.0 {
+                Extension::Partial => {
+                    starts.extend([0.05, 0.3, 0.6].iter().map(|&b| vec![t[0], t[1], t[2], t[3], b]));
+                }
+                Extension::SubstrateInhibition => {
+                    starts.extend([1.0, 5.0].iter().map(|&k| vec![2.0 * t[0], t[1], t[2], t[3], k * s_max]));
+                }
+            }
+        }
+        starts
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -353,6 +486,10 @@ mod tests {
         }
         check_gradient(&MixedKiu, &[10.0, 50.0, 2.0, 8.0]);
         check_gradient(&MixedAlphaKiu, &[10.0, 50.0, 8.0, 4.0]);
+        for e in Extension::ALL {
+            check_gradient(&ExtensionLaw(e), &[10.0, 50.0, 2.0, 3.0, 0.3]);
+            check_gradient(&ExtensionLaw(e), &[10.0, 50.0, 2.0, 0.5, 120.0]);
+        }
     }
 
     #[test]
@@ -362,6 +499,21 @@ mod tests {
             assert_relative_eq!(MixedKiu.value(&[9.0, 40.0, 2.0, 8.0], &x), v, max_relative = 1e-15);
             assert_relative_eq!(MixedAlphaKiu.value(&[9.0, 40.0, 8.0, 4.0], &x), v, max_relative = 1e-15);
         }
+    }
+
+    #[test]
+    fn extensions_reduce_to_mixed_at_their_edges() {
+        let mixed = RateLaw(Mechanism::Mixed);
+        for x in [(10.0, 0.0), (50.0, 2.0), (400.0, 8.0)] {
+            let v = mixed.value(&[9.0, 40.0, 2.0, 4.0], &x);
+            let partial = ExtensionLaw(Extension::Partial).value(&[9.0, 40.0, 2.0, 4.0, 1e-12], &x);
+            let haldane = ExtensionLaw(Extension::SubstrateInhibition).value(&[9.0, 40.0, 2.0, 4.0, 1e15], &x);
+            assert_relative_eq!(partial, v, max_relative = 1e-10);
+            assert_relative_eq!(haldane, v, max_relative = 1e-10);
+        }
+        // Partial: at saturating inhibitor and substrate the rate levels off at β·Vmax.
+        let v = ExtensionLaw(Extension::Partial).value(&[9.0, 40.0, 2.0, 1.0, 0.3], &(1e9, 1e9));
+        assert_relative_eq!(v, 0.3 * 9.0, max_relative = 1e-6);
     }
 
     #[test]

@@ -11,11 +11,11 @@ use std::rc::Rc;
 
 use super::charts::{RatePoint, RateUnits, View, evidence_panel, linear_view, rate_family, residual_panel};
 use super::html::{Block, Section, without_caution};
-use super::xy::XyChart;
+use super::xy::{Layer, XyChart};
 use super::{PANEL, Svg};
 use crate::analysis::mode::{Matrix, ModeResult, ModelResult, Units};
 use crate::error::{Error, Result};
-use crate::fit::Model;
+use crate::fit::{Model, Weighting};
 use crate::models::inhibition::{Mechanism, RateLaw};
 
 /// The mechanism of a model result, by its name.
@@ -134,7 +134,40 @@ fn evidence(r: &ModeResult) -> XyChart {
     chart
 }
 
-/// One residual panel per model, all on the same symmetric scale.
+/// The residual the fit minimised, on the scale a reader can judge: under
+/// relative weighting (1/v²) it is (observed − fitted)/observed, so that the
+/// small rates, which carry the weight, are not hidden under the large ones.
+fn weighted_residual(r: &ModeResult, observed: f64, fitted: f64) -> f64 {
+    if r.weighting == Weighting::Relative && observed != 0.0 {
+        (observed - fitted) / observed
+    } else {
+        observed - fitted
+    }
+}
+
+/// Three significant digits without padding zeros (1, 0.5, 2.25).
+fn trimmed(v: f64) -> String {
+    let t = crate::io::output::sig(v, 3);
+    if t.contains('.') && !t.contains('e') { t.trim_end_matches('0').trim_end_matches('.').to_string() } else { t }
+}
+
+/// Names each point series by its inhibitor level, so the panel has a legend.
+fn label_levels(chart: &mut XyChart, res: &[(f64, f64, f64)], ru: &RateUnits) {
+    let mut levels: Vec<f64> = res.iter().map(|p| p.1).collect();
+    levels.sort_by(f64::total_cmp);
+    levels.dedup_by(|a, b| (*a - *b).abs() <= 1e-12 * b.abs().max(1e-300));
+    let unit = ru.i.as_deref().map_or(String::new(), |u| format!(" {u}"));
+    for layer in chart.layers.iter_mut() {
+        if let Layer::Points { label, series, .. } = layer
+            && let Some(i) = levels.get(*series)
+        {
+            *label = Some(format!("I = {}{unit}", trimmed(*i)));
+        }
+    }
+}
+
+/// One residual panel per model, all on the same symmetric scale (weighted
+/// residuals under relative weighting), with a legend of inhibitor levels.
 fn residuals(r: &ModeResult, pts: &[RatePoint], ru: &RateUnits) -> Vec<XyChart> {
     type Residuals<'a> = Vec<(&'a ModelResult, Vec<(f64, f64, f64)>)>;
     let per_model: Residuals = r
@@ -142,9 +175,10 @@ fn residuals(r: &ModeResult, pts: &[RatePoint], ru: &RateUnits) -> Vec<XyChart> 
         .iter()
         .filter_map(|m| {
             let f = law(m)?;
-            Some((m, pts.iter().map(|p| (p.s, p.i, p.v - f(p.s, p.i))).collect()))
+            Some((m, pts.iter().map(|p| (p.s, p.i, weighted_residual(r, p.v, f(p.s, p.i)))).collect()))
         })
         .collect();
+    let relative = r.weighting == Weighting::Relative;
     let largest = per_model.iter().flat_map(|(_, res)| res.iter().map(|p| p.2.abs())).fold(0.0, f64::max);
     let span = if largest > 0.0 { largest * 1.1 } else { 1.0 };
     per_model
@@ -152,6 +186,10 @@ fn residuals(r: &ModeResult, pts: &[RatePoint], ru: &RateUnits) -> Vec<XyChart> 
         .map(|(m, res)| {
             let mut chart = residual_panel(&format!("Residuals — {}", m.model), &res, ru);
             chart.y = chart.y.clone().fixed(-span, span);
+            if relative {
+                chart.y.label = "relative residual (observed − fitted)/observed".into();
+            }
+            label_levels(&mut chart, &res, ru);
             let mark = if m.model == r.chosen { " (chosen)" } else { "" };
             chart.subtitle = Some(format!(
                 "SSE {}; AICc weight {}{mark}",
@@ -193,4 +231,55 @@ pub fn section(
     }
     blocks.push(Block::Failures(failures.iter().map(|e| e.to_string()).collect()));
     Ok(Section { heading: "Mechanism".into(), command: Some(command.to_string()), blocks })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::analysis::mode::{Options, analyse};
+
+    /// A competitive matrix (Vmax 10, Km 50, Ki 2) with deterministic ±3 % scatter.
+    fn matrix() -> Matrix {
+        let law = RateLaw(Mechanism::Competitive);
+        let mut m = Matrix {
+            label: None,
+            origin: "test".into(),
+            lines: Vec::new(),
+            substrate: Vec::new(),
+            inhibitor: Vec::new(),
+            rate: Vec::new(),
+            sd: None,
+        };
+        for (a, i) in [0.0, 1.0, 2.0, 4.0].into_iter().enumerate() {
+            for (b, s) in [10.0, 25.0, 50.0, 100.0, 200.0].into_iter().enumerate() {
+                let wobble = if (a + b) % 2 == 0 { 1.03 } else { 0.97 };
+                m.lines.push(m.rate.len() as u64 + 2);
+                m.substrate.push(s);
+                m.inhibitor.push(i);
+                m.rate.push(law.value(&[10.0, 50.0, 2.0], &(s, i)) * wobble);
+            }
+        }
+        m
+    }
+
+    #[test]
+    fn residual_panels_are_relative_under_relative_weighting_and_have_a_legend() {
+        let m = matrix();
+        let units = Units { inhibitor: Some("uM".into()), ..Units::default() };
+        for (weighting, relative) in [(Weighting::Relative, true), (Weighting::None, false)] {
+            let r = analyse(&m, &units, &Options { weighting, ..Options::default() }).unwrap();
+            let panels = panels(&r, &m, &units).unwrap();
+            let res = panels.iter().find(|p| p.title.starts_with("Residuals — competitive")).unwrap();
+            assert_eq!(res.y.label.starts_with("relative residual"), relative, "{}", res.y.label);
+            let labels: Vec<&str> = res
+                .layers
+                .iter()
+                .filter_map(|l| match l {
+                    Layer::Points { label, .. } => label.as_deref(),
+                    _ => None,
+                })
+                .collect();
+            assert_eq!(labels, ["I = 0 uM", "I = 1 uM", "I = 2 uM", "I = 4 uM"]);
+        }
+    }
 }

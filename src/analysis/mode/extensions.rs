@@ -1,0 +1,297 @@
+//! Diagnoses: the extension rate laws of [`crate::models::inhibition::Extension`]
+//! (partial inhibition, substrate inhibition) fitted beside the five and
+//! compared by the same criteria.
+//!
+//! Each extension reduces to mixed inhibition at an edge of its extra
+//! parameter (β → 0, Ksi → ∞), so the extra-sum-of-squares F test against
+//! mixed applies (Bates & Watts 1988, §3.10). Because the null value lies on
+//! the boundary of the parameter space, the nominal p-value is conservative
+//! (Self & Liang, J. Am. Stat. Assoc. 82, 605–610, 1987): the test errs
+//! towards the five laws.
+//!
+//! An extension is named (the diagnosis) when it has a lower AICc than every
+//! one of the five, shows an effect one can see ([`MIN_RESIDUAL_ACTIVITY`] ≤
+//! β < 1; Ksi ≤ [`MAX_KSI_FACTOR`] × the highest substrate concentration), and
+//! either beats mixed by the F test at [`DIAGNOSIS_LEVEL`], or is adequate
+//! (runs and lack-of-fit tests, as for the five) where the five are not. The
+//! first route is what catches mild partial inhibition that the five laws fit
+//! "adequately" but systematically worse; on it the extension's own adequacy
+//! is reported but not required (a correct model fails one of the two tests
+//! in about 2 % of datasets, and the five are worse still).
+
+use serde::Serialize;
+
+use super::{Adequacy, Matrix, Options, Units, adequacy_of, p_text};
+use crate::fit::intervals::{Interval, profile, wald};
+use crate::fit::stats::{aicc, extra_sum_of_squares};
+use crate::fit::{Data, Fit, FitSettings, Model, fit_from};
+use crate::io::output::sig;
+use crate::models::inhibition::{Extension, ExtensionLaw, Point};
+use crate::report::{Param, Warning};
+
+/// F-test level at which an extension must beat mixed to be named when the
+/// five laws are adequate: strict, because naming a diagnosis replaces a
+/// mechanism.
+pub const DIAGNOSIS_LEVEL: f64 = 0.01;
+
+/// Smallest residual activity β for a partial-inhibition diagnosis: below 5 %
+/// the inhibition is complete for any practical purpose.
+pub const MIN_RESIDUAL_ACTIVITY: f64 = 0.05;
+
+/// Largest Ksi, as a multiple of the highest substrate concentration, for a
+/// substrate-inhibition diagnosis: at 3 × S_max the rate at S_max is still
+/// about 25 % below the Michaelis–Menten curve, a fall one can see.
+pub const MAX_KSI_FACTOR: f64 = 3.0;
+
+/// F-test level below which a plain call gets the note that partial
+/// inhibition is possible (the diagnosis itself needs [`DIAGNOSIS_LEVEL`]).
+pub const HINT_LEVEL: f64 = 0.05;
+
+/// One extension's fit and its comparison with the five.
+#[derive(Debug, Clone, Serialize)]
+pub struct ExtensionResult {
+    /// The diagnosis's name (`partial-inhibition`, `substrate-inhibition`).
+    pub model: &'static str,
+    /// Weighted sum of squared residuals.
+    pub sse: f64,
+    /// Residual degrees of freedom.
+    pub df: usize,
+    /// AICc; null when n ≤ K + 1.
+    pub aicc: Option<f64>,
+    /// Whether the minimiser stopped at a trustworthy minimum.
+    pub converged: bool,
+    /// Extra-sum-of-squares F statistic against mixed.
+    pub f_vs_mixed: Option<f64>,
+    /// Its p-value (nominal; conservative at the boundary).
+    pub p_vs_mixed: Option<f64>,
+    /// Runs and lack-of-fit tests of this fit.
+    pub adequacy: Adequacy,
+    /// Whether this extension is the diagnosis.
+    pub named: bool,
+    /// Estimated constants (profile intervals when named, Wald on the log scale otherwise).
+    pub params: ExtensionParams,
+}
+
+/// Constants of an extension model.
+#[derive(Debug, Clone, Serialize)]
+pub struct ExtensionParams {
+    /// Limiting rate of the uninhibited enzyme, in the rate's unit.
+    pub vmax: Param,
+    /// Michaelis constant, in the substrate's unit.
+    pub km: Param,
+    /// Dissociation constant of EI (Kic), in the inhibitor's unit.
+    pub ki: Param,
+    /// α: ESI dissociation constant over Ki.
+    pub alpha: Param,
+    /// Kiu = α·Ki (interval from the delta method on the log scale).
+    pub kiu: Param,
+    /// Partial inhibition: relative activity of ESI (dimensionless).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub beta: Option<Param>,
+    /// Substrate inhibition: the substrate-inhibition constant, in the substrate's unit.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub ksi: Option<Param>,
+}
+
+/// Fits both extensions, starting also from the mixed optimum (so that an
+/// extension never ends above mixed, which it contains).
+pub fn fit_extensions(data: &Data<Point>, mixed: &Fit, settings: &FitSettings) -> Vec<Fit> {
+    let s_max = data.x.iter().map(|x| x.0).fold(0.0, f64::max).max(1e-300);
+    let m = &mixed.theta;
+    Extension::ALL
+        .iter()
+        .map(|&e| {
+            let law = ExtensionLaw(e);
+            let mut starts = law.starts(data);
+            match e {
+                Extension::Partial => {
+                    starts.extend([1e-6, 0.1, 0.3].iter().map(|&b| vec![m[0], m[1], m[2], m[3], b]));
+                    starts.extend([0.2, 0.5].iter().map(|&b| vec![m[0], m[1], 0.3 * m[2], 1.0, b]));
+                }
+                Extension::SubstrateInhibition => {
+                    starts.push(vec![m[0], m[1], m[2], m[3], 1e6 * s_max]);
+                    starts.extend([0.5, 2.0].iter().map(|&k| vec![2.0 * m[0], 2.0 * m[1], m[2], m[3], k * s_max]));
+                }
+            }
+            starts.retain(|s| s.iter().all(|v| v.is_finite() && *v > 0.0));
+            fit_from(&law, data, &starts, &[None; 5], settings)
+        })
+        .collect()
+}
+
+/// The comparison of the extensions with the five, and the diagnosis (index
+/// into `Extension::ALL`), if any.
+#[allow(clippy::too_many_arguments)]
+pub fn diagnose(
+    matrix: &Matrix,
+    data: &Data<Point>,
+    ext_fits: &[Fit],
+    mixed: &Fit,
+    best_five_aicc: f64,
+    five_adequate: bool,
+    units: &Units,
+    options: &Options,
+) -> (Vec<ExtensionResult>, Option<usize>) {
+    let s_max = matrix.substrate.iter().cloned().fold(0.0, f64::max);
+    let mut candidates = Vec::new();
+    let mut pre = Vec::new();
+    for (k, (&e, f)) in Extension::ALL.iter().zip(ext_fits).enumerate() {
+        let a = aicc(f.n, f.n_free, f.sse);
+        let test = extra_sum_of_squares(mixed.sse, mixed.df, f.sse, f.df);
+        let adequacy = adequacy_of(matrix, data, f, e.name());
+        let physical = match e {
+            Extension::Partial => (MIN_RESIDUAL_ACTIVITY..1.0).contains(&f.theta[4]),
+            Extension::SubstrateInhibition => f.theta[4] <= MAX_KSI_FACTOR * s_max,
+        };
+        let better = a.is_some_and(|a| a < best_five_aicc);
+        let significant = test.is_some_and(|t| t.1 < DIAGNOSIS_LEVEL);
+        let rescue = !five_adequate && adequacy.adequate;
+        if f.converged() && physical && better && (significant || rescue) {
+            candidates.push((k, a.unwrap_or(f64::INFINITY)));
+        }
+        pre.push((a, test, adequacy));
+    }
+    let named = candidates.iter().min_by(|a, b| a.1.total_cmp(&b.1)).map(|c| c.0);
+    let results = Extension::ALL
+        .iter()
+        .zip(ext_fits)
+        .zip(pre)
+        .enumerate()
+        .map(|(k, ((&e, f), (a, test, adequacy)))| ExtensionResult {
+            model: e.name(),
+            sse: f.sse,
+            df: f.df,
+            aicc: a,
+            converged: f.converged(),
+            f_vs_mixed: test.map(|t| t.0),
+            p_vs_mixed: test.map(|t| t.1),
+            adequacy,
+            named: named == Some(k),
+            params: describe(e, f, data, named == Some(k), units, options),
+        })
+        .collect();
+    (results, named)
+}
+
+/// Constants with intervals: profile likelihood for the diagnosis, Wald on
+/// the log scale for the others (they are only reported, not used).
+fn describe(
+    e: Extension,
+    f: &Fit,
+    data: &Data<Point>,
+    named: bool,
+    units: &Units,
+    options: &Options,
+) -> ExtensionParams {
+    let law = ExtensionLaw(e);
+    let profiled = named && f.converged();
+    let method = if profiled { "profile" } else { "wald-log" };
+    let settings = super::profile_settings(&options.settings);
+    let iv = |j: usize| -> Interval {
+        if profiled {
+            profile(&law, data, f, j, options.confidence, &settings)
+        } else {
+            wald(&law, f, j, options.confidence)
+        }
+    };
+    let p = |j: usize, unit: &Option<String>| Param::new(f.theta[j], f.se[j], iv(j), method, unit.clone());
+    let (ki, alpha) = (f.theta[2], f.theta[3]);
+    let kiu = ki * alpha;
+    // var(ln Kiu) = var(ln Ki) + var(ln α) + 2 cov(ln Ki, ln α) (delta method).
+    let kiu_se = f.covariance.as_ref().filter(|c| c.nrows() == 5).map(|c| {
+        let var_log = c[(2, 2)] / (ki * ki) + c[(3, 3)] / (alpha * alpha) + 2.0 * c[(2, 3)] / (ki * alpha);
+        kiu * var_log.max(0.0).sqrt()
+    });
+    let kiu_iv = match (kiu_se, crate::fit::intervals::t_quantile(options.confidence, f.df)) {
+        (Some(se), Some(t)) => {
+            let half = t * se / kiu;
+            Interval {
+                low: crate::fit::intervals::Bound::At(kiu * (-half).exp()),
+                high: crate::fit::intervals::Bound::At(kiu * half.exp()),
+            }
+        }
+        _ => Interval {
+            low: crate::fit::intervals::Bound::NotDetermined,
+            high: crate::fit::intervals::Bound::NotDetermined,
+        },
+    };
+    ExtensionParams {
+        vmax: p(0, &units.rate),
+        km: p(1, &units.substrate),
+        ki: p(2, &units.inhibitor),
+        alpha: p(3, &None),
+        kiu: Param::new(kiu, kiu_se, kiu_iv, "wald-log", units.inhibitor.clone()),
+        beta: (e == Extension::Partial).then(|| p(4, &None)),
+        ksi: (e == Extension::SubstrateInhibition).then(|| p(4, &units.substrate)),
+    }
+}
+
+/// The warning that names a diagnosis, with its constants and evidence.
+pub fn diagnosis_warning(r: &ExtensionResult, five_adequate: bool, units: &Units) -> Warning {
+    let why = if five_adequate {
+        format!(
+            "it fits significantly better than mixed inhibition (F test {}, level {DIAGNOSIS_LEVEL}) and has the lowest AICc",
+            p_text(r.p_vs_mixed)
+        )
+    } else {
+        "none of the five rate laws describes the data, and this one does (with the lowest AICc)".to_string()
+    };
+    let range = |p: &Param| match (p.low, p.high) {
+        (Some(l), Some(h)) => format!("{}–{}", sig(l, 3), sig(h, 3)),
+        (Some(l), None) => format!("{}–open", sig(l, 3)),
+        (None, Some(h)) => format!("open–{}", sig(h, 3)),
+        (None, None) => "open".into(),
+    };
+    let iu = units.inhibitor.clone().unwrap_or_default();
+    let what = match (&r.params.beta, &r.params.ksi) {
+        (Some(b), _) => format!(
+            "partial (hyperbolic) inhibition: the enzyme–substrate–inhibitor complex keeps a fraction β = {} ({}) of the \
+             activity, so rates level off instead of falling to zero (Segel 1975, ch. 4); Ki = {} ({}) {iu}, Kiu = {} {iu}",
+            sig(b.value, 3),
+            range(b),
+            sig(r.params.ki.value, 3),
+            range(&r.params.ki),
+            sig(r.params.kiu.value, 3)
+        ),
+        (None, Some(k)) => format!(
+            "substrate inhibition: the uninhibited rate falls at high substrate, Ksi = {} ({}) {} (Haldane 1930); \
+             Ki = {} ({}) {iu}, α = {}",
+            sig(k.value, 3),
+            range(k),
+            units.substrate.clone().unwrap_or_default(),
+            sig(r.params.ki.value, 3),
+            range(&r.params.ki),
+            sig(r.params.alpha.value, 3)
+        ),
+        _ => String::new(),
+    };
+    let caveat = if r.adequacy.adequate {
+        ""
+    } else {
+        " It does not describe every feature of the data either (see its adequacy tests)."
+    };
+    Warning::new(r.model, format!("{what}; named because {why}. No plain mechanism is given.{caveat}"))
+}
+
+/// A note on a plain call when partial inhibition fits better than mixed at
+/// [`HINT_LEVEL`] but not at [`DIAGNOSIS_LEVEL`], with a residual activity
+/// worth mentioning: the mechanism stands, but mild partial inhibition is
+/// not excluded.
+pub fn partial_hint(extensions: &[ExtensionResult]) -> Option<Warning> {
+    let r = extensions.iter().find(|r| r.model == Extension::Partial.name())?;
+    let beta = r.params.beta.as_ref()?.value;
+    let p = r.p_vs_mixed?;
+    (p < HINT_LEVEL && (MIN_RESIDUAL_ACTIVITY..1.0).contains(&beta)).then(|| {
+        Warning::new(
+            "partial-inhibition-possible",
+            format!(
+                "partial inhibition (residual activity β = {} at saturating inhibitor) fits better than mixed \
+                 (F test {}), though not at the level {DIAGNOSIS_LEVEL} needed to name it; the constants may be \
+                 biased if the inhibitor leaves activity — test higher inhibitor concentrations to see whether rates \
+                 level off",
+                sig(beta, 2),
+                p_text(Some(p))
+            ),
+        )
+    })
+}
