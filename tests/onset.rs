@@ -262,3 +262,26 @@ fn every_warning_code_is_in_the_readme() {
         assert!(readme.contains(&format!("`{}`", w.code())), "README lacks {}", w.code());
     }
 }
+
+/// `ki` refuses an exact Ki for a row that says the inhibitor is
+/// time-dependent (Copeland 2013, ch. 9) and converts the others.
+#[test]
+fn ki_refuses_a_time_dependent_row() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("k.csv"), "compound,ic50 (nM),time_dependent\nKX-1,100,yes\nKX-2,100,no\n").unwrap();
+    let out = kimech(dir.path())
+        .args(["ki", "k.csv", "--substrate", "10 uM", "--km", "10 uM", "--format", "csv"])
+        .output()
+        .unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(!out.status.success());
+    assert!(
+        stderr.contains("k.csv, line 2") && stderr.contains("time-dependent") && stderr.contains("onset"),
+        "{stderr}"
+    );
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    let kx2 = stdout.lines().find(|l| l.contains("KX-2")).unwrap();
+    assert!(kx2.contains(",50,"), "{kx2}");
+    let kx1 = stdout.lines().find(|l| l.contains("KX-1")).unwrap();
+    assert!(!kx1.contains(",50,"), "{kx1}");
+}

@@ -295,7 +295,7 @@ pub struct GlobalCurve {
     pub kobs: f64,
     /// Initial rate.
     pub vi: f64,
-    /// Steady-state rate.
+    /// Steady-state rate, vi·koff/kobs (0 when irreversible).
     pub vs: f64,
     /// Signal at time zero.
     pub p0: f64,
@@ -418,7 +418,7 @@ pub fn analyse(compound: &Compound, units: &Units, options: &Options) -> Result<
     let model = OnsetModel::new(onset.scheme(), reversible, inhibitor.clone());
     let chosen = &fitted[pick];
     let constants = Constants::from_fit(&model, &data, chosen, compound, units, options);
-    let curve_results = curve_results(&curves, &singles, &model, chosen, reversible, scale, units);
+    let curve_results = curve_results(&curves, &singles, &model, chosen, reversible, scale, units, options.confidence);
     let mut warnings = warnings(compound, &curves, &model, chosen, &constants, options);
     if !chosen.converged() {
         warnings.insert(
@@ -634,11 +634,22 @@ fn shared_starts(onset: Onset, inhibitor: &[f64], replot: &[Replot], singles: &[
     out
 }
 
-/// A full parameter vector: shared constants, koff = 0, then each curve's
-/// vi, P0 (and vs) from its own fit.
+/// A full parameter vector: shared constants, koff from the curves' own
+/// fits (vs/vi·kobs, their median), then each curve's vi and P0 from its own fit.
 fn full_start(model: &OnsetModel, shared: &[f64], singles: &[Single]) -> Vec<f64> {
     let mut theta = vec![0.0; model.len()];
     theta[..shared.len()].copy_from_slice(shared);
+    if let Some(j) = model.koff_index() {
+        let mut koff: Vec<f64> = singles
+            .iter()
+            .filter_map(|s| s.reversible.as_ref())
+            .map(|f| f.theta[CurveModel::VS] / f.theta[CurveModel::VI] * f.theta[CurveModel::KOBS])
+            .filter(|k| k.is_finite())
+            .map(|k| k.max(0.0))
+            .collect();
+        koff.sort_by(f64::total_cmp);
+        theta[j] = koff.get(koff.len() / 2).copied().unwrap_or(0.0);
+    }
     for (slots, s) in model.layout().iter().zip(singles) {
         let own = if model.scheme() == Scheme::None {
             None
@@ -651,9 +662,6 @@ fn full_start(model: &OnsetModel, shared: &[f64], singles: &[Single]) -> Vec<f64
             Some(f) => {
                 theta[slots.vi] = f.theta[CurveModel::VI];
                 theta[slots.p0] = f.theta[CurveModel::P0];
-                if let Some(j) = slots.vs {
-                    theta[j] = f.theta[CurveModel::VS];
-                }
             }
             None => {
                 theta[slots.vi] = s.line.theta[1];
@@ -826,22 +834,21 @@ fn curve_results(
     reversible: bool,
     scale: f64,
     units: &Units,
+    confidence: f64,
 ) -> Vec<CurveResult> {
-    let confidence = 0.95;
     curves
         .iter()
         .zip(singles)
         .enumerate()
         .map(|(k, (c, s))| {
             let slots = model.layout()[k];
+            let kobs = model.kobs(&global.theta, k);
+            let vi = global.theta[slots.vi] * scale;
+            let koff = model.koff_index().map_or(0.0, |j| global.theta[j]);
             let global_curve = GlobalCurve {
-                kobs: model.kobs(&global.theta, k),
-                vi: global.theta[slots.vi] * scale,
-                vs: if model.is_line(k) {
-                    global.theta[slots.vi] * scale
-                } else {
-                    slots.vs.map_or(0.0, |j| global.theta[j] * scale)
-                },
+                kobs,
+                vi,
+                vs: if model.is_line(k) || kobs == 0.0 { vi } else { vi * koff / kobs },
                 p0: global.theta[slots.p0] * scale,
             };
             let own = if reversible { s.reversible.as_ref() } else { s.irreversible.as_ref() };

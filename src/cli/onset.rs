@@ -4,7 +4,7 @@
 
 use super::mode::CriterionArg;
 use super::{OutputArgs, finish, parse_flag_concentration, parse_fraction};
-use crate::analysis::onset::{Options, SubstrateMechanism, analyse};
+use crate::analysis::onset::{Compound, OnsetResult, Options, SubstrateMechanism, analyse};
 use crate::error::{Error, Result};
 use crate::io::onset::{ReadOptions, TimeUnit, read};
 use crate::io::{Table, write_output};
@@ -47,6 +47,9 @@ pub struct Args {
     /// Output format and destination.
     #[command(flatten)]
     pub output: OutputArgs,
+    /// Pictures (one SVG per compound) and the HTML report.
+    #[command(flatten)]
+    pub pictures: super::PictureArgs,
 }
 
 /// `--mechanism-vs-substrate` values.
@@ -92,18 +95,44 @@ pub fn run(args: &Args) -> Result<()> {
         substrate_mechanism: args.mechanism_vs_substrate.into(),
         ..Options::default()
     };
-    let mut results = Vec::new();
+    let mut pairs = Vec::new();
     let mut failures: Vec<Error> = Vec::new();
     for compound in &input.compounds {
         match analyse(compound, &input.units, &options) {
-            Ok(r) => results.push(r),
+            Ok(r) => pairs.push((compound, r)),
             Err(e) => failures.push(e),
         }
     }
-    if results.is_empty() && !failures.is_empty() && failures.len() == 1 {
+    if pairs.is_empty() && failures.len() == 1 {
         return Err(failures.remove(0));
     }
+    let results: Vec<OnsetResult> = pairs.iter().map(|(_, r)| r.clone()).collect();
     let bytes = crate::view::onset::render(&results, args.output.format)?;
     write_output(args.output.output.as_deref(), &bytes, &[&args.file])?;
+    let pairs: Vec<(&Compound, &OnsetResult)> = pairs.iter().map(|(c, r)| (*c, r)).collect();
+    write_pictures(&pairs, &failures, args)?;
     finish(&failures, input.compounds.len(), "compounds")
+}
+
+/// Writes `--plot` SVGs (one per compound) and the `--report` page.
+fn write_pictures(pairs: &[(&Compound, &OnsetResult)], failures: &[Error], args: &Args) -> Result<()> {
+    if let Some(dir) = &args.pictures.plot {
+        let ids: Vec<Option<&str>> = pairs.iter().map(|(_, r)| r.compound.as_deref()).collect();
+        let mut files = Vec::new();
+        for (name, (c, r)) in crate::plot::files::unique_names("onset", &ids).into_iter().zip(pairs) {
+            files.push((name, crate::plot::onset::compound_figure(c, r)?.text));
+        }
+        crate::plot::files::write_plots(dir, &files, &[&args.file])?;
+    }
+    if let Some(path) = &args.pictures.report {
+        let command = std::env::args().collect::<Vec<_>>().join(" ");
+        let page = crate::plot::html::Page {
+            title: format!("kimech onset — {}", args.file),
+            intro: vec![format!("Time-dependent inhibition of {} compound(s) from {}.", pairs.len(), args.file)],
+            sections: vec![crate::plot::onset::section(pairs, failures, &command)?],
+            caution: crate::view::CAUTION.to_string(),
+        };
+        write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[&args.file])?;
+    }
+    Ok(())
 }

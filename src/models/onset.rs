@@ -13,9 +13,14 @@
 //! * two-step (E + I ⇌ E·I → EI*): kobs = koff + kinact·[I]/(KI + [I]);
 //!
 //! where koff (the return from EI*) is present only for reversible inhibitors.
+//! For both schemes the steady-state rate is then vs = vi·koff/kobs (Morrison
+//! & Walsh 1988, mechanisms A and B: with vi = v0/(1 + [I]/KI) and
+//! vs = v0/(1 + [I]/Ki*), Ki* = KI·koff/(kinact + koff), the ratio vs/vi is
+//! koff/kobs), so the reversible global model has one parameter more than the
+//! irreversible one (koff; koff = 0 is vs = 0), not one per curve.
 //! [`OnsetModel`] fits every curve of a compound at once with shared kinetic
-//! constants and per-curve vi, P0 (and vs); [`CurveModel`] fits one curve;
-//! [`ReplotModel`] fits kobs against [I].
+//! constants and per-curve vi and P0; [`CurveModel`] fits one curve with a
+//! free vs; [`ReplotModel`] fits kobs against [I].
 
 use crate::fit::{Data, Model, Scale};
 
@@ -100,8 +105,7 @@ pub struct Reading {
 /// All curves of one compound with shared kinetic constants.
 ///
 /// Parameter vector: the scheme's constants, then koff when reversible, then
-/// per curve vi, P0 and (reversible, inhibited curves only) vs. An
-/// uninhibited curve has no vs: at kobs = koff it would be redundant with vi.
+/// per curve vi and P0. An uninhibited curve is a straight line vi·t + P0.
 #[derive(Debug, Clone)]
 pub struct OnsetModel {
     scheme: Scheme,
@@ -120,8 +124,6 @@ pub struct CurveSlots {
     pub vi: usize,
     /// Index of P0.
     pub p0: usize,
-    /// Index of vs (reversible, inhibited curves only).
-    pub vs: Option<usize>,
 }
 
 impl OnsetModel {
@@ -139,12 +141,8 @@ impl OnsetModel {
             let vi = names.len();
             names.extend(["vi", "p0"]);
             scales.extend([Scale::Linear, Scale::Linear]);
-            let vs = (reversible && i > 0.0).then(|| {
-                names.push("vs");
-                scales.push(Scale::Linear);
-                names.len() - 1
-            });
-            layout.push(CurveSlots { vi, p0: vi + 1, vs });
+            let _ = i;
+            layout.push(CurveSlots { vi, p0: vi + 1 });
         }
         OnsetModel { scheme, reversible, inhibitor, names, scales, layout, starts: Vec::new() }
     }
@@ -225,42 +223,41 @@ impl Model for OnsetModel {
 
     fn value(&self, theta: &[f64], x: &Reading) -> f64 {
         let slots = self.layout[x.curve];
-        let vi = theta[slots.vi];
-        let p0 = theta[slots.p0];
-        if self.is_line(x.curve) {
+        let (vi, p0) = (theta[slots.vi], theta[slots.p0]);
+        let k = self.kobs(theta, x.curve);
+        if self.is_line(x.curve) || k == 0.0 {
             return vi * x.time + p0;
         }
-        let k = self.kobs(theta, x.curve);
-        let vs = slots.vs.map_or(0.0, |j| theta[j]);
+        let r = self.koff_index().map_or(0.0, |j| theta[j] / k);
         let (g, _) = onset_term(k, x.time);
-        vs * x.time + (vi - vs) * g + p0
+        vi * (r * x.time + (1.0 - r) * g) + p0
     }
 
     fn gradient(&self, theta: &[f64], x: &Reading, grad: &mut [f64]) {
         grad.iter_mut().for_each(|g| *g = 0.0);
         let slots = self.layout[x.curve];
         grad[slots.p0] = 1.0;
-        if self.is_line(x.curve) {
+        let mut dk = [0.0; 2];
+        let koff = self.koff_index().map_or(0.0, |j| theta[j]);
+        let k =
+            if self.is_line(x.curve) { 0.0 } else { koff + self.scheme.rate(theta, self.inhibitor[x.curve], &mut dk) };
+        if k == 0.0 {
             grad[slots.vi] = x.time;
             return;
         }
-        let mut dk = [0.0; 2];
-        let koff = self.koff_index().map_or(0.0, |k| theta[k]);
-        let k = koff + self.scheme.rate(theta, self.inhibitor[x.curve], &mut dk);
         let vi = theta[slots.vi];
-        let vs = slots.vs.map_or(0.0, |j| theta[j]);
-        let (g, dg) = onset_term(k, x.time);
-        grad[slots.vi] = g;
-        if let Some(j) = slots.vs {
-            grad[j] = x.time - g;
-        }
-        let d_kobs = (vi - vs) * dg;
+        let t = x.time;
+        let r = koff / k;
+        let (g, dg) = onset_term(k, t);
+        grad[slots.vi] = r * t + (1.0 - r) * g;
+        // P = vi·(r·t + (1 − r)·g(k)) + P0 with r = koff/k.
+        let d_k = vi * (-koff / (k * k) * (t - g) + (1.0 - r) * dg);
         let n = self.scheme.shared_names().len();
         for (j, d) in dk.iter().take(n).enumerate() {
-            grad[j] = d_kobs * d;
+            grad[j] = d_k * d;
         }
         if let Some(j) = self.koff_index() {
-            grad[j] = d_kobs;
+            grad[j] = vi * (t - g) / k + d_k;
         }
     }
 
@@ -482,7 +479,6 @@ mod tests {
                         "ki" => 3.0,
                         "koff" => 0.004,
                         "vi" => 1.5 + j as f64 * 0.1,
-                        "vs" => 0.2,
                         _ => 5.0,
                     };
                 }

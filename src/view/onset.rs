@@ -149,6 +149,17 @@ pub fn human(results: &[OnsetResult]) -> String {
     out
 }
 
+/// The constants of one compound as a table (header, rows), shared by the
+/// terminal and the HTML report.
+pub fn constant_table(r: &OnsetResult) -> (Vec<String>, Vec<Vec<String>>) {
+    let level = format!("{:.0}%", r.confidence * 100.0);
+    let header = ["constant", "estimate", &format!("{level} low"), &format!("{level} high"), "unit", "interval"];
+    let params: [(&str, &Option<Param>); 5] =
+        [("kinact", &r.kinact), ("KI", &r.ki), ("KI,app", &r.ki_app), ("kinact/KI", &r.kinact_ki), ("koff", &r.koff)];
+    let rows = params.iter().filter_map(|(label, p)| p.as_ref().map(|p| param_row(label, p))).collect();
+    (header.map(String::from).to_vec(), rows)
+}
+
 fn compound_block(r: &OnsetResult) -> String {
     let name = r.compound.as_deref().unwrap_or("the data");
     let mut out = format!("{name}: onset {}", r.onset.name());
@@ -156,21 +167,11 @@ fn compound_block(r: &OnsetResult) -> String {
         out.push_str(if rev { ", reversible (slow-binding)" } else { ", irreversible (covalent)" });
     }
     out.push_str(&format!("; chosen by {}: {}\n", criterion_name(r), r.evidence));
-    let level = format!("{:.0}%", r.confidence * 100.0);
-    let params: Vec<(&str, &Option<Param>)> = vec![
-        ("kinact", &r.kinact),
-        ("KI", &r.ki),
-        ("KI,app", &r.ki_app),
-        ("kinact/KI", &r.kinact_ki),
-        ("koff", &r.koff),
-    ];
-    if params.iter().any(|(_, p)| p.is_some()) {
-        let header = ["constant", "estimate", &format!("{level} low"), &format!("{level} high"), "unit", "interval"];
-        let mut grid = new_grid(header.map(String::from).to_vec());
-        for (label, p) in params {
-            if let Some(p) = p {
-                grid.add_row(param_row(label, p));
-            }
+    let (header, rows) = constant_table(r);
+    if !rows.is_empty() {
+        let mut grid = new_grid(header);
+        for row in rows {
+            grid.add_row(row);
         }
         out.push_str(&format!("{grid}\nsubstrate correction: {}\n", r.substrate_correction));
     }
