@@ -80,6 +80,34 @@ fn parse_time_unit(text: &str) -> std::result::Result<TimeUnit, String> {
 /// Runs `kimech onset`.
 pub fn run(args: &Args) -> Result<()> {
     let table = Table::read(&args.file)?;
+    let mut outcome = process(&table, args)?;
+    if outcome.pairs.is_empty() && outcome.failures.len() == 1 {
+        return Err(outcome.failures.remove(0));
+    }
+    let bytes = crate::view::onset::render(&outcome.results(), args.output.format)?;
+    write_output(args.output.output.as_deref(), &bytes, &[&args.file])?;
+    write_pictures(&outcome, args)?;
+    finish(&outcome.failures, outcome.pairs.len() + outcome.failures.len(), "compounds")
+}
+
+/// What one run produced: each compound's input with its result, and the
+/// errors of the compounds that could not be analysed.
+pub struct Outcome {
+    /// Input and result, in input order.
+    pub pairs: Vec<(Compound, OnsetResult)>,
+    /// One error per compound that failed.
+    pub failures: Vec<Error>,
+}
+
+impl Outcome {
+    /// The results alone.
+    pub fn results(&self) -> Vec<OnsetResult> {
+        self.pairs.iter().map(|(_, r)| r.clone()).collect()
+    }
+}
+
+/// Reads the compounds of `table` and analyses each one.
+pub fn process(table: &Table, args: &Args) -> Result<Outcome> {
     let read_options = ReadOptions {
         inhibitor_unit: args.inhibitor_unit,
         time_unit: args.time_unit,
@@ -87,7 +115,7 @@ pub fn run(args: &Args) -> Result<()> {
         km: args.km.map(|c| c.molar),
         enzyme: args.enzyme.map(|c| c.molar),
     };
-    let input = read(&table, &read_options)?;
+    let input = read(table, &read_options)?;
     let options = Options {
         criterion: args.criterion.into(),
         alpha_level: args.alpha_level,
@@ -95,31 +123,46 @@ pub fn run(args: &Args) -> Result<()> {
         substrate_mechanism: args.mechanism_vs_substrate.into(),
         ..Options::default()
     };
-    let mut pairs = Vec::new();
-    let mut failures: Vec<Error> = Vec::new();
-    for compound in &input.compounds {
-        match analyse(compound, &input.units, &options) {
-            Ok(r) => pairs.push((compound, r)),
-            Err(e) => failures.push(e),
+    let mut outcome = Outcome { pairs: Vec::new(), failures: Vec::new() };
+    for compound in input.compounds {
+        match analyse(&compound, &input.units, &options) {
+            Ok(r) => outcome.pairs.push((compound, r)),
+            Err(e) => outcome.failures.push(e),
         }
     }
-    if pairs.is_empty() && failures.len() == 1 {
-        return Err(failures.remove(0));
+    Ok(outcome)
+}
+
+/// The report section of a run (for `--report` and the demo).
+pub fn report_section(outcome: &Outcome, command: &str) -> Result<crate::plot::html::Section> {
+    let pairs: Vec<(&Compound, &OnsetResult)> = outcome.pairs.iter().map(|(c, r)| (c, r)).collect();
+    crate::plot::onset::section(&pairs, &outcome.failures, command)
+}
+
+/// Default arguments for `file` (table output to stdout), as the demo uses them.
+pub fn default_args(file: &str) -> Args {
+    Args {
+        file: file.to_string(),
+        inhibitor_unit: None,
+        time_unit: None,
+        substrate: None,
+        km: None,
+        enzyme: None,
+        mechanism_vs_substrate: MechanismArg::Competitive,
+        criterion: CriterionArg::Aicc,
+        alpha_level: 0.05,
+        confidence: 0.95,
+        output: OutputArgs { format: crate::io::Format::Table, output: None },
+        pictures: super::PictureArgs::default(),
     }
-    let results: Vec<OnsetResult> = pairs.iter().map(|(_, r)| r.clone()).collect();
-    let bytes = crate::view::onset::render(&results, args.output.format)?;
-    write_output(args.output.output.as_deref(), &bytes, &[&args.file])?;
-    let pairs: Vec<(&Compound, &OnsetResult)> = pairs.iter().map(|(c, r)| (*c, r)).collect();
-    write_pictures(&pairs, &failures, args)?;
-    finish(&failures, input.compounds.len(), "compounds")
 }
 
 /// Writes `--plot` SVGs (one per compound) and the `--report` page.
-fn write_pictures(pairs: &[(&Compound, &OnsetResult)], failures: &[Error], args: &Args) -> Result<()> {
+fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
     if let Some(dir) = &args.pictures.plot {
-        let ids: Vec<Option<&str>> = pairs.iter().map(|(_, r)| r.compound.as_deref()).collect();
+        let ids: Vec<Option<&str>> = outcome.pairs.iter().map(|(_, r)| r.compound.as_deref()).collect();
         let mut files = Vec::new();
-        for (name, (c, r)) in crate::plot::files::unique_names("onset", &ids).into_iter().zip(pairs) {
+        for (name, (c, r)) in crate::plot::files::unique_names("onset", &ids).into_iter().zip(&outcome.pairs) {
             files.push((name, crate::plot::onset::compound_figure(c, r)?.text));
         }
         crate::plot::files::write_plots(dir, &files, &[&args.file])?;
@@ -128,8 +171,12 @@ fn write_pictures(pairs: &[(&Compound, &OnsetResult)], failures: &[Error], args:
         let command = std::env::args().collect::<Vec<_>>().join(" ");
         let page = crate::plot::html::Page {
             title: format!("kimech onset — {}", args.file),
-            intro: vec![format!("Time-dependent inhibition of {} compound(s) from {}.", pairs.len(), args.file)],
-            sections: vec![crate::plot::onset::section(pairs, failures, &command)?],
+            intro: vec![format!(
+                "Time-dependent inhibition of {} compound(s) from {}.",
+                outcome.pairs.len(),
+                args.file
+            )],
+            sections: vec![report_section(outcome, &command)?],
             caution: crate::view::CAUTION.to_string(),
         };
         write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[&args.file])?;
