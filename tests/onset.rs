@@ -28,7 +28,7 @@ fn curves(inhibitor: &[f64], curve: impl Fn(f64) -> (f64, f64, f64)) -> Compound
                 .enumerate()
                 .map(|(k, &t)| {
                     let g = if kobs > 0.0 { (1.0 - (-kobs * t).exp()) / kobs } else { t };
-                    let wiggle = if (k * 7 + (i * 8.0) as usize) % 3 == 0 { 1.0 } else { -0.5 };
+                    let wiggle = if (k * 7 + (i * 8.0) as usize).is_multiple_of(3) { 1.0 } else { -0.5 };
                     vs * t + (vi - vs) * g + 1000.0 + wiggle * 50.0
                 })
                 .collect();
@@ -150,7 +150,7 @@ fn table(levels: &[f64], points: usize) -> String {
             let t = k as f64 * 3.0;
             let kobs = 0.1 * i / (1.0 + i);
             let g = if kobs > 0.0 { (1.0 - (-kobs * t).exp()) / kobs } else { t };
-            let wiggle = if k % 3 == 0 { 20.0 } else { -10.0 };
+            let wiggle = if k.is_multiple_of(3) { 20.0 } else { -10.0 };
             out.push_str(&format!("KX-1,{i},{t},{}\n", 900.0 / (1.0 + i) * g + 1500.0 + wiggle));
         }
     }

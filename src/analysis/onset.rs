@@ -418,7 +418,7 @@ pub fn analyse(compound: &Compound, units: &Units, options: &Options) -> Result<
     let model = OnsetModel::new(onset.scheme(), reversible, inhibitor.clone());
     let chosen = &fitted[pick];
     let constants = Constants::from_fit(&model, &data, chosen, compound, units, options);
-    let curve_results = curve_results(&curves, &singles, &model, chosen, reversible, scale, units, options.confidence);
+    let curve_results = curve_results(&curves, &singles, &model, chosen, scale, units, options.confidence);
     let mut warnings = warnings(compound, &curves, &model, chosen, &constants, options);
     if !chosen.converged() {
         warnings.insert(
@@ -558,36 +558,42 @@ struct Replot {
 }
 
 fn replot_fits(singles: &[Single], inhibitor: &[f64], settings: &FitSettings) -> Vec<Replot> {
-    let (x, y): (Vec<f64>, Vec<f64>) = singles
-        .iter()
-        .zip(inhibitor)
-        .filter_map(|(s, &i)| s.irreversible.as_ref().map(|f| (i, f.theta[CurveModel::KOBS])))
-        .filter(|(_, k)| k.is_finite() && *k > 0.0)
-        .unzip();
-    let data = Data::unweighted(x, y);
     let mut out = Vec::new();
-    for (onset, scheme) in [(Onset::OneStep, Scheme::OneStep), (Onset::TwoStep, Scheme::TwoStep)] {
-        let model = ReplotModel { scheme, reversible: false };
-        if data.len() < model.names().len() {
-            continue;
+    for reversible in [false, true] {
+        let (x, y): (Vec<f64>, Vec<f64>) = singles
+            .iter()
+            .zip(inhibitor)
+            .filter_map(|(s, &i)| {
+                let own = if reversible { s.reversible.as_ref() } else { s.irreversible.as_ref() };
+                own.map(|f| (i, f.theta[CurveModel::KOBS]))
+            })
+            .filter(|(_, k)| k.is_finite() && *k > 0.0)
+            .unzip();
+        let data = Data::unweighted(x, y);
+        for (onset, scheme) in [(Onset::OneStep, Scheme::OneStep), (Onset::TwoStep, Scheme::TwoStep)] {
+            let model = ReplotModel { scheme, reversible };
+            if data.len() <= model.names().len() {
+                continue;
+            }
+            let f = fit(&model, &data, &vec![None; model.names().len()], settings);
+            let (kinact, ki_app, ratio) = match scheme {
+                Scheme::OneStep => (None, None, f.theta[0]),
+                _ => (Some(f.theta[0]), Some(f.theta[1]), f.theta[0] / f.theta[1]),
+            };
+            let koff = reversible.then(|| f.theta[model.names().len() - 1]);
+            out.push(Replot {
+                summary: ReplotFit {
+                    scheme: onset,
+                    kinact,
+                    ki_app,
+                    kinact_ki_app: ratio,
+                    koff,
+                    sse: f.sse,
+                    aicc: aicc(f.n, f.n_free, f.sse),
+                },
+                theta: f.theta,
+            });
         }
-        let f = fit(&model, &data, &vec![None; model.names().len()], settings);
-        let (kinact, ki_app, ratio) = match scheme {
-            Scheme::OneStep => (None, None, f.theta[0]),
-            _ => (Some(f.theta[0]), Some(f.theta[1]), f.theta[0] / f.theta[1]),
-        };
-        out.push(Replot {
-            summary: ReplotFit {
-                scheme: onset,
-                kinact,
-                ki_app,
-                kinact_ki_app: ratio,
-                koff: None,
-                sse: f.sse,
-                aicc: aicc(f.n, f.n_free, f.sse),
-            },
-            theta: f.theta,
-        });
     }
     out
 }
@@ -603,21 +609,28 @@ fn global_fit(
     settings: &FitSettings,
 ) -> Fit {
     let model = OnsetModel::new(onset.scheme(), reversible, inhibitor.to_vec());
-    let starts: Vec<Vec<f64>> = shared_starts(onset, inhibitor, replot, singles)
-        .into_iter()
-        .map(|shared| full_start(&model, &shared, singles))
-        .collect();
+    let mut starts: Vec<Vec<f64>> = Vec::new();
+    for shared in shared_starts(onset, inhibitor, replot, singles) {
+        let start = full_start(&model, &shared, singles);
+        // A replot with koff gives its own koff start as well.
+        if let (Some(j), Some(&koff)) = (model.koff_index(), shared.get(model.koff_index().unwrap_or(usize::MAX))) {
+            let mut with_koff = start.clone();
+            with_koff[j] = koff.max(0.0);
+            starts.push(with_koff);
+        }
+        starts.push(start);
+    }
     let model = model.with_starts(starts);
     fit(&model, data, &vec![None; model.len()], settings)
 }
 
 /// Starting values of the scheme's constants (and koff = 0 when reversible).
 fn shared_starts(onset: Onset, inhibitor: &[f64], replot: &[Replot], singles: &[Single]) -> Vec<Vec<f64>> {
-    let from_replot = replot.iter().find(|r| r.summary.scheme == onset).map(|r| r.theta.clone());
+    let from_replot = replot.iter().filter(|r| r.summary.scheme == onset).map(|r| r.theta.clone());
     let positive: Vec<f64> = inhibitor.iter().cloned().filter(|i| *i > 0.0).collect();
     let (i_min, i_max) = positive.iter().fold((f64::INFINITY, 0.0f64), |(a, b), &i| (a.min(i), b.max(i)));
     let span = singles.iter().map(|s| s.data.x.last().unwrap_or(&1.0) - s.data.x[0]).fold(0.0, f64::max).max(1e-300);
-    let mut out: Vec<Vec<f64>> = from_replot.into_iter().collect();
+    let mut out: Vec<Vec<f64>> = from_replot.collect();
     match onset {
         Onset::None => return vec![Vec::new()],
         Onset::OneStep => {
@@ -638,7 +651,8 @@ fn shared_starts(onset: Onset, inhibitor: &[f64], replot: &[Replot], singles: &[
 /// fits (vs/vi·kobs, their median), then each curve's vi and P0 from its own fit.
 fn full_start(model: &OnsetModel, shared: &[f64], singles: &[Single]) -> Vec<f64> {
     let mut theta = vec![0.0; model.len()];
-    theta[..shared.len()].copy_from_slice(shared);
+    let n = shared.len().min(model.shared() - usize::from(model.reversible()));
+    theta[..n].copy_from_slice(&shared[..n]);
     if let Some(j) = model.koff_index() {
         let mut koff: Vec<f64> = singles
             .iter()
@@ -831,11 +845,11 @@ fn curve_results(
     singles: &[Single],
     model: &OnsetModel,
     global: &Fit,
-    reversible: bool,
     scale: f64,
     units: &Units,
     confidence: f64,
 ) -> Vec<CurveResult> {
+    let reversible = model.reversible();
     curves
         .iter()
         .zip(singles)

@@ -56,13 +56,17 @@ pub fn kobs_panel(r: &OnsetResult) -> XyChart {
         None => "no onset: kobs not determined".into(),
     });
     let i_max = r.curves.iter().map(|c| c.inhibitor).fold(0.0, f64::max) * 1.05;
-    for fit in &r.replot {
+    let reversible = r.reversible.unwrap_or(false);
+    for fit in r.replot.iter().filter(|f| f.koff.is_some() == reversible) {
         let chosen = fit.scheme == r.onset;
+        let koff = fit.koff.unwrap_or(0.0);
         let (label, f): (String, Box<dyn Fn(f64) -> f64>) = match (fit.scheme, fit.kinact, fit.ki_app) {
-            (Onset::TwoStep, Some(kinact), Some(ki)) => ("two-step".into(), Box::new(move |i| kinact * i / (ki + i))),
+            (Onset::TwoStep, Some(kinact), Some(ki)) => {
+                ("two-step".into(), Box::new(move |i| koff + kinact * i / (ki + i)))
+            }
             _ => {
                 let slope = fit.kinact_ki_app;
-                ("one-step".into(), Box::new(move |i| slope * i))
+                ("one-step".into(), Box::new(move |i| koff + slope * i))
             }
         };
         chart.layers.push(Layer::Function {
