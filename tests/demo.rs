@@ -15,6 +15,7 @@ fn demo_runs_every_stage_states_the_caution_and_writes_its_report() {
         .stdout(predicate::str::contains("Michaelis–Menten fit — series batch-A"))
         .stdout(predicate::str::contains("IC50 → Ki"))
         .stdout(predicate::str::contains("Ranking by pKi"))
+        .stdout(predicate::str::contains("KX-302: onset two-step, reversible (slow-binding)"))
         .stdout(predicate::str::contains("research estimates"))
         .stdout(predicate::str::contains("Report written to kimech-demo-report.html"));
     let report = std::fs::read_to_string(dir.path().join("kimech-demo-report.html")).unwrap();

@@ -285,3 +285,17 @@ fn ki_refuses_a_time_dependent_row() {
     let kx1 = stdout.lines().find(|l| l.contains("KX-1")).unwrap();
     assert!(!kx1.contains(",50,"), "{kx1}");
 }
+
+#[test]
+fn plot_and_report_draw_both_panels() {
+    let dir = tempfile::tempdir().unwrap();
+    kimech(dir.path())
+        .args(["onset", fixture("onset/two_step.csv").to_str().unwrap(), "--plot", "plots", "--report", "r.html"])
+        .args(["-o", "out.txt"])
+        .assert()
+        .success();
+    let svg = std::fs::read_to_string(dir.path().join("plots/onset-KX-sim.svg")).unwrap();
+    assert!(svg.contains("Progress curves") && svg.contains("kobs vs [I]"), "panels missing");
+    let html = std::fs::read_to_string(dir.path().join("r.html")).unwrap();
+    assert!(html.contains("Time-dependent inhibition") && html.contains("<svg") && html.contains("research estimates"));
+}
