@@ -299,3 +299,22 @@ fn plot_and_report_draw_both_panels() {
     let html = std::fs::read_to_string(dir.path().join("r.html")).unwrap();
     assert!(html.contains("Time-dependent inhibition") && html.contains("<svg") && html.contains("research estimates"));
 }
+
+#[test]
+fn fails_when_the_substrate_changes_within_a_compound() {
+    let text = table(&[0.0, 1.0, 4.0], 12).replace("signal\n", "signal,substrate (uM)\n");
+    let text: String = text
+        .lines()
+        .enumerate()
+        .map(|(k, l)| match k {
+            0 => format!("{l}\n"),
+            5 => format!("{l},30\n"),
+            _ => format!("{l},20\n"),
+        })
+        .collect();
+    run_csv("s.csv", &text).failure().stderr(
+        predicate::str::contains("s.csv, line 6, column 'substrate (uM)'")
+            .and(predicate::str::contains("found '30'"))
+            .and(predicate::str::contains("line 2")),
+    );
+}

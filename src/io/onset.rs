@@ -200,9 +200,27 @@ fn read_compound(
         curves[k].signal.push(table.number(row, cols.signal)?);
         curves[k].origin = lines(first_line[k], row.line);
     }
+    same_on_every_row(table, rows, &[cols.substrate, cols.km, cols.enzyme])?;
     let conditions = conditions(table, cols, rows[0], inhibitor_unit, options)?;
     let origin = lines(rows.first().map_or(0, |r| r.line), rows.last().map_or(0, |r| r.line));
     Ok(Compound { label, origin, curves, conditions })
+}
+
+/// The assay conditions describe the whole compound: a row that differs from
+/// the compound's first row is an error, not silently ignored.
+fn same_on_every_row(table: &Table, rows: &[&Record], cols: &[Option<usize>]) -> Result<()> {
+    let first = rows[0];
+    for row in &rows[1..] {
+        if let Some(c) = cols.iter().flatten().find(|&&c| table.text(row, c) != table.text(first, c)) {
+            return Err(table.cell_error(
+                row,
+                *c,
+                format!("differs from '{}' on line {} of the same compound", table.text(first, *c), first.line),
+                "substrate, km and enzyme describe the compound's assay and must be the same on each of its rows",
+            ));
+        }
+    }
+    Ok(())
 }
 
 /// "line 4" or "lines 4-9".
