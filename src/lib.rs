@@ -18,5 +18,6 @@ pub mod models;
 pub mod plot;
 pub mod report;
 pub mod units;
+pub mod view;
 
 pub use error::{Error, Result};

@@ -20,6 +20,7 @@ fn demo_runs_every_stage_states_the_caution_and_writes_its_report() {
         // The raw plates fitted with and without --normalise give the same calls (issue 9).
         .stdout(predicate::str::contains("the same call and qualifier for 30 of 30 compounds"))
         .stdout(predicate::str::contains("Ranking by pKi"))
+        .stdout(predicate::str::contains("KX-302: onset two-step, reversible (slow-binding)"))
         .stdout(predicate::str::contains("research estimates"))
         .stdout(predicate::str::contains("Report written to kimech-demo-report.html"));
     let report = std::fs::read_to_string(dir.path().join("kimech-demo-report.html")).unwrap();

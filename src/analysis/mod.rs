@@ -4,5 +4,6 @@
 pub mod ic50;
 pub mod km;
 pub mod mode;
+pub mod onset;
 pub mod rank;
 pub mod rates;

@@ -23,6 +23,9 @@ const DOSE_RESPONSE: &str = include_str!("../../demo-compounds/dose-response.csv
 /// The invented IC50 table of a second assay at other conditions (see its header comments).
 const SECOND_ASSAY: &str = include_str!("../../demo-compounds/second-assay-ic50.csv");
 
+/// Invented progress curves of a covalent and a slow-binding compound (demo-compounds/make_onset_curves.py).
+const ONSET_CURVES: &str = include_str!("../../demo-compounds/onset-curves.csv");
+
 /// Where the report goes when `--report` is not given.
 const DEFAULT_REPORT: &str = "kimech-demo-report.html";
 
@@ -49,10 +52,25 @@ pub fn run(args: &Args) -> Result<()> {
     let mode_status = mode_stage(&mut sections).and(difficult_mode_stage(&mut sections));
     let (ic50_csv, ic50_status) = dose_response_stage_into(&mut sections)?;
     let ki_status = ki_rank_stage(&ic50_csv, &mut sections);
+    let onset_status = onset_stage(&mut sections);
     let path = args.report.clone().unwrap_or_else(|| PathBuf::from(DEFAULT_REPORT));
     write_report(&path, sections)?;
     println!("\nReport written to {}", path.display());
-    km_status.and(mode_status).and(ic50_status).and(ki_status)
+    km_status.and(mode_status).and(ic50_status).and(ki_status).and(onset_status)
+}
+
+/// Time-dependent inhibition: a covalent and a slow-binding compound.
+fn onset_stage(sections: &mut Vec<Section>) -> Result<()> {
+    let path = "demo-compounds/onset-curves.csv";
+    println!(
+        "\nTime-dependent inhibition — progress curves → onset, kinact, KI, kinact/KI (a covalent and a slow-binding compound)"
+    );
+    println!("  $ kimech onset {path}\n");
+    let table = Table::parse(path, ONSET_CURVES.as_bytes(), b',')?;
+    let outcome = super::onset::process(&table, &super::onset::default_args(path))?;
+    print!("{}", crate::view::onset::human(&outcome.results()));
+    sections.push(super::onset::report_section(&outcome, &format!("kimech onset {path}"))?);
+    super::finish(&outcome.failures, outcome.pairs.len() + outcome.failures.len(), "compounds")
 }
 
 /// Writes the demo's report page.

@@ -416,6 +416,7 @@ pub const PARTIAL_REFUSED: &str = "a partial-inhibition curve";
 
 /// Reads the measurement and conditions of one row; the first bad cell is the row's error.
 fn read_row(table: &Table, cols: &Columns, record: &Record, args: &Args) -> Result<RowInput> {
+    refuse_time_dependent(table, record)?;
     if table.text(record, cols.compound).is_empty() {
         return Err(table.cell_error(record, cols.compound, "no compound name", "give the compound code"));
     }
@@ -501,6 +502,43 @@ fn read_row(table: &Table, cols: &Columns, record: &Record, args: &Args) -> Resu
     described.push(format!("{} assay", if assay == Assay::Enzyme { "enzyme" } else { "binding" }));
     let conditions = Conditions { assay, mechanism, substrate, km, km_se, enzyme, alpha, ligand, kd };
     Ok(RowInput { measurement, conditions, described: described.join("; ") })
+}
+
+/// A column saying whether the inhibitor is time-dependent: `time_dependent`
+/// (yes/no), or `onset` as `kimech onset` writes it (none/one-step/two-step).
+const TIME_DEPENDENT: ColumnSpec = ColumnSpec::new("time_dependent", &["onset"]);
+
+/// The IC50 of a time-dependent (slow-binding or covalent) inhibitor depends on
+/// how long enzyme and inhibitor were together, so no exact Ki follows from it
+/// (Copeland, *Evaluation of Enzyme Inhibitors in Drug Discovery*, 2nd ed.,
+/// 2013, ch. 9): such a row is refused with the reason.
+fn refuse_time_dependent(table: &Table, record: &Record) -> Result<()> {
+    let Some(col) = table.find(&TIME_DEPENDENT) else { return Ok(()) };
+    let text = table.text(record, col);
+    let time_dependent = match text.to_ascii_lowercase().as_str() {
+        "" | "no" | "false" | "0" | "none" => false,
+        "yes" | "true" | "1" | "one-step" | "two-step" => true,
+        _ => {
+            return Err(table.cell_error(
+                record,
+                col,
+                "not a yes/no answer",
+                "use yes or no (or none, one-step, two-step as kimech onset writes)",
+            ));
+        }
+    };
+    if !time_dependent {
+        return Ok(());
+    }
+    Err(Error::Data {
+        group: format!("{}, line {}", table.source, record.line),
+        problem: format!(
+            "the inhibitor is time-dependent ('{text}' in column '{}'): its IC50 depends on the preincubation time, \
+             so no exact Ki can be derived from it",
+            table.columns[col].header
+        ),
+        expected: "rank it by kinact/KI from kimech onset (Copeland 2013, ch. 9)".into(),
+    })
 }
 
 /// Cells that mean "no value" in an interval column (as fitters write unbounded ends).

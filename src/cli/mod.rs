@@ -14,6 +14,7 @@ pub mod ic50;
 pub mod ki;
 pub mod km;
 pub mod mode;
+pub mod onset;
 pub mod rank;
 pub mod rates;
 
@@ -40,6 +41,8 @@ enum Command {
     Mode(mode::Args),
     /// Convert IC50 values to Ki with the relation, mechanism and assumption checks behind each.
     Ki(ki::Args),
+    /// Time-dependent inhibition from progress curves: onset, kinact, KI, kinact/KI.
+    Onset(onset::Args),
     /// Aggregate, rank and export Ki results: the registry table.
     Rank(rank::Args),
     /// Run the whole chain on the bundled invented demo scenario.
@@ -67,6 +70,7 @@ pub fn run(args: impl IntoIterator<Item = impl Into<OsString> + Clone>) -> Resul
         Command::Rank(args) => rank::run(&args),
         Command::Demo(args) => demo::run(&args),
         Command::Mode(args) => mode::run(&args),
+        Command::Onset(args) => onset::run(&args),
     }
 }
 

@@ -8,3 +8,4 @@ pub mod stream;
 
 pub use input::{ColumnSpec, Table};
 pub use output::{Format, neutralise_formula, write_output};
+pub mod onset;

@@ -10,3 +10,4 @@ pub use polynomial::Polynomial;
 pub mod logistic;
 
 pub use logistic::{Dose, Logistic, Morrison};
+pub mod onset;

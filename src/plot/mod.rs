@@ -19,6 +19,7 @@ pub mod html;
 pub mod ic50;
 pub mod km;
 pub mod mode;
+pub mod onset;
 pub mod rank;
 pub mod style;
 pub mod xy;

@@ -1,0 +1,185 @@
+//! `kimech onset`: time-dependent (slow-binding and covalent) inhibition from
+//! progress curves. Reads with [`crate::io::onset`], computes with
+//! [`crate::analysis::onset`], writes with [`crate::view::onset`].
+
+use super::mode::CriterionArg;
+use super::{OutputArgs, finish, parse_flag_concentration, parse_fraction};
+use crate::analysis::onset::{Compound, OnsetResult, Options, SubstrateMechanism, analyse};
+use crate::error::{Error, Result};
+use crate::io::onset::{ReadOptions, TimeUnit, read};
+use crate::io::{Table, write_output};
+use crate::units::{ConcUnit, ConcentrationArg};
+
+/// Fit progress curves at several inhibitor concentrations: is there an
+/// onset, one-step or two-step, reversible or not; kinact, KI and kinact/KI.
+#[derive(Debug, Clone, clap::Args)]
+pub struct Args {
+    /// CSV with columns compound, inhibitor, time, signal (optionally curve, replicate,
+    /// substrate, km, enzyme); `-` reads stdin.
+    pub file: String,
+    /// Unit of inhibitor values that carry none in the cell or header.
+    #[arg(long, value_name = "UNIT")]
+    pub inhibitor_unit: Option<ConcUnit>,
+    /// Unit of time values that carry none in the cell or header (s, min, h).
+    #[arg(long, value_name = "UNIT", value_parser = parse_time_unit)]
+    pub time_unit: Option<TimeUnit>,
+    /// Substrate concentration of the assay, e.g. "50 uM" (a substrate column overrides it).
+    #[arg(long, value_name = "CONC", value_parser = parse_flag_concentration)]
+    pub substrate: Option<ConcentrationArg>,
+    /// Km of the substrate, e.g. "20 uM" (a km column overrides it).
+    #[arg(long, value_name = "CONC", value_parser = parse_flag_concentration)]
+    pub km: Option<ConcentrationArg>,
+    /// Total enzyme concentration, e.g. "5 nM": checks that [I] is in excess.
+    #[arg(long, value_name = "CONC", value_parser = parse_flag_concentration)]
+    pub enzyme: Option<ConcentrationArg>,
+    /// How the first binding step relates to the substrate, for KI = KI,app/(…).
+    #[arg(long, value_enum, default_value_t = MechanismArg::Competitive)]
+    pub mechanism_vs_substrate: MechanismArg,
+    /// How the model is chosen: aicc (lowest AICc; simplest within 2 units) or f-test.
+    #[arg(long, value_enum, default_value_t = CriterionArg::Aicc)]
+    pub criterion: CriterionArg,
+    /// Significance level of the F-test steps (with --criterion f-test).
+    #[arg(long, default_value_t = 0.05, value_parser = parse_fraction)]
+    pub alpha_level: f64,
+    /// Confidence level of the intervals.
+    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
+    pub confidence: f64,
+    /// Output format and destination.
+    #[command(flatten)]
+    pub output: OutputArgs,
+    /// Pictures (one SVG per compound) and the HTML report.
+    #[command(flatten)]
+    pub pictures: super::PictureArgs,
+}
+
+/// `--mechanism-vs-substrate` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum MechanismArg {
+    /// KI = KI,app/(1 + S/Km).
+    Competitive,
+    /// KI = KI,app.
+    Noncompetitive,
+    /// KI = KI,app/(1 + Km/S).
+    Uncompetitive,
+}
+
+impl From<MechanismArg> for SubstrateMechanism {
+    fn from(m: MechanismArg) -> Self {
+        match m {
+            MechanismArg::Competitive => SubstrateMechanism::Competitive,
+            MechanismArg::Noncompetitive => SubstrateMechanism::Noncompetitive,
+            MechanismArg::Uncompetitive => SubstrateMechanism::Uncompetitive,
+        }
+    }
+}
+
+fn parse_time_unit(text: &str) -> std::result::Result<TimeUnit, String> {
+    TimeUnit::parse(text).ok_or_else(|| format!("'{text}' is not a unit of time; use one of {}", TimeUnit::ACCEPTED))
+}
+
+/// Runs `kimech onset`.
+pub fn run(args: &Args) -> Result<()> {
+    let table = Table::read(&args.file)?;
+    let mut outcome = process(&table, args)?;
+    if outcome.pairs.is_empty() && outcome.failures.len() == 1 {
+        return Err(outcome.failures.remove(0));
+    }
+    let bytes = crate::view::onset::render(&outcome.results(), args.output.format)?;
+    write_output(args.output.output.as_deref(), &bytes, &[&args.file])?;
+    write_pictures(&outcome, args)?;
+    finish(&outcome.failures, outcome.pairs.len() + outcome.failures.len(), "compounds")
+}
+
+/// What one run produced: each compound's input with its result, and the
+/// errors of the compounds that could not be analysed.
+pub struct Outcome {
+    /// Input and result, in input order.
+    pub pairs: Vec<(Compound, OnsetResult)>,
+    /// One error per compound that failed.
+    pub failures: Vec<Error>,
+}
+
+impl Outcome {
+    /// The results alone.
+    pub fn results(&self) -> Vec<OnsetResult> {
+        self.pairs.iter().map(|(_, r)| r.clone()).collect()
+    }
+}
+
+/// Reads the compounds of `table` and analyses each one.
+pub fn process(table: &Table, args: &Args) -> Result<Outcome> {
+    let read_options = ReadOptions {
+        inhibitor_unit: args.inhibitor_unit,
+        time_unit: args.time_unit,
+        substrate: args.substrate.map(|c| c.molar),
+        km: args.km.map(|c| c.molar),
+        enzyme: args.enzyme.map(|c| c.molar),
+    };
+    let input = read(table, &read_options)?;
+    let options = Options {
+        criterion: args.criterion.into(),
+        alpha_level: args.alpha_level,
+        confidence: args.confidence,
+        substrate_mechanism: args.mechanism_vs_substrate.into(),
+        ..Options::default()
+    };
+    let mut outcome = Outcome { pairs: Vec::new(), failures: Vec::new() };
+    for compound in input.compounds {
+        match analyse(&compound, &input.units, &options) {
+            Ok(r) => outcome.pairs.push((compound, r)),
+            Err(e) => outcome.failures.push(e),
+        }
+    }
+    Ok(outcome)
+}
+
+/// The report section of a run (for `--report` and the demo).
+pub fn report_section(outcome: &Outcome, command: &str) -> Result<crate::plot::html::Section> {
+    let pairs: Vec<(&Compound, &OnsetResult)> = outcome.pairs.iter().map(|(c, r)| (c, r)).collect();
+    crate::plot::onset::section(&pairs, &outcome.failures, command)
+}
+
+/// Default arguments for `file` (table output to stdout), as the demo uses them.
+pub fn default_args(file: &str) -> Args {
+    Args {
+        file: file.to_string(),
+        inhibitor_unit: None,
+        time_unit: None,
+        substrate: None,
+        km: None,
+        enzyme: None,
+        mechanism_vs_substrate: MechanismArg::Competitive,
+        criterion: CriterionArg::Aicc,
+        alpha_level: 0.05,
+        confidence: 0.95,
+        output: OutputArgs { format: crate::io::Format::Table, output: None },
+        pictures: super::PictureArgs::default(),
+    }
+}
+
+/// Writes `--plot` SVGs (one per compound) and the `--report` page.
+fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
+    if let Some(dir) = &args.pictures.plot {
+        let ids: Vec<Option<&str>> = outcome.pairs.iter().map(|(_, r)| r.compound.as_deref()).collect();
+        let mut files = Vec::new();
+        for (name, (c, r)) in crate::plot::files::unique_names("onset", &ids).into_iter().zip(&outcome.pairs) {
+            files.push((name, crate::plot::onset::compound_figure(c, r)?.text));
+        }
+        crate::plot::files::write_plots(dir, &files, &[&args.file])?;
+    }
+    if let Some(path) = &args.pictures.report {
+        let command = std::env::args().collect::<Vec<_>>().join(" ");
+        let page = crate::plot::html::Page {
+            title: format!("kimech onset — {}", args.file),
+            intro: vec![format!(
+                "Time-dependent inhibition of {} compound(s) from {}.",
+                outcome.pairs.len(),
+                args.file
+            )],
+            sections: vec![report_section(outcome, &command)?],
+            caution: crate::view::CAUTION.to_string(),
+        };
+        write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[&args.file])?;
+    }
+    Ok(())
+}
