@@ -1033,7 +1033,7 @@ fn csv_row(r: &Ic50Result, morrison: bool) -> Vec<String> {
         neutralise_formula(&r.compound),
         r.n.to_string(),
         r.converged.to_string(),
-        r.qualifier.symbol().to_string(),
+        crate::io::output::qualifier_cell(r.qualifier),
         qualified(r.qualifier, r.ic50.value),
         opt(r.ic50.se),
         opt(r.ic50.low),
