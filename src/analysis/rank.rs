@@ -237,7 +237,7 @@ struct Group {
     values: Vec<Bounded>,
     assays: Vec<u32>,
     /// (file, line) of every row, at most LISTED.
-    sources: Vec<(u32, u64)>,
+    sources: Vec<(u32, u32)>,
     flags: Vec<u32>,
     mechanisms: Vec<u32>,
     methods: Vec<u32>,
@@ -284,7 +284,7 @@ impl Aggregator {
         let file = self.names.id(&e.file);
         let g = &mut self.groups[i];
         if g.sources.len() < LISTED {
-            g.sources.push((file, e.line));
+            g.sources.push((file, u32::try_from(e.line).unwrap_or(u32::MAX)));
         }
         if let Some(message) = &e.error {
             g.failed += 1;
@@ -331,17 +331,104 @@ impl Aggregator {
         }
     }
 
-    /// Aggregates, ranks and adds selectivity. Groups keep first-appearance
-    /// order of targets; within a target and endpoint, rows are sorted by pKi,
-    /// most potent first; rows without a value come last, unranked.
+    /// Aggregates, ranks and adds selectivity: every row at once (see [`Aggregator::rank`]).
     pub fn finish(self, options: &Options) -> Vec<RankRow> {
-        let names = &self.names;
-        let mut rows: Vec<RankRow> = self.groups.iter().map(|g| g.row(names, options.confidence)).collect();
-        rank_rows(&mut rows);
-        if let Some(versus) = &options.versus {
-            selectivity(&mut rows, versus);
+        self.rank(options).rows().collect()
+    }
+
+    /// Ranks the groups. Groups keep first-appearance order of targets; within
+    /// a target and endpoint, rows are sorted by pKi, most potent first; rows
+    /// without a value come last, unranked. Rows are built one at a time by
+    /// [`Ranking::rows`], so the ranking holds only the groups.
+    pub fn rank(self, options: &Options) -> Ranking {
+        let headlines: Vec<(Option<f64>, Qualifier)> = self.groups.iter().map(Group::headline).collect();
+        let mut place: HashMap<(u32, u32), usize> = HashMap::new();
+        for g in &self.groups {
+            let next = place.len();
+            place.entry((g.target, g.endpoint)).or_insert(next);
         }
-        rows
+        let mut order: Vec<usize> = (0..self.groups.len()).collect();
+        let names = &self.names;
+        let groups = &self.groups;
+        order.sort_by(|&a, &b| {
+            let (ga, gb) = (&groups[a], &groups[b]);
+            let ((pa, qa), (pb, qb)) = (headlines[a], headlines[b]);
+            place[&(ga.target, ga.endpoint)]
+                .cmp(&place[&(gb.target, gb.endpoint)])
+                .then_with(|| pb.unwrap_or(f64::NEG_INFINITY).total_cmp(&pa.unwrap_or(f64::NEG_INFINITY)))
+                .then_with(|| qa.is_bound().cmp(&qb.is_bound()))
+                .then_with(|| names.get(ga.compound).cmp(names.get(gb.compound)))
+        });
+        let mut ranks = Vec::with_capacity(order.len());
+        let mut previous = None;
+        let mut rank = 0;
+        for &i in &order {
+            let key = (groups[i].target, groups[i].endpoint);
+            rank = if previous == Some(key) { rank + 1 } else { 1 };
+            previous = Some(key);
+            ranks.push((i, headlines[i].0.map(|_| rank)));
+        }
+        let counter = options.versus.as_ref().map(|versus| {
+            let id = names.index.get(versus.as_str()).copied();
+            let values: HashMap<(u32, u32), (Option<f64>, Qualifier)> = groups
+                .iter()
+                .zip(&headlines)
+                .filter(|(g, _)| Some(g.target) == id)
+                .map(|(g, &(p, q))| ((g.compound, g.endpoint), (p, q.reversed())))
+                .collect();
+            (versus.clone(), id, values)
+        });
+        Ranking { names: self.names, groups: self.groups, order: ranks, counter, confidence: options.confidence }
+    }
+}
+
+/// Ranked groups; [`Ranking::rows`] builds the output rows one at a time.
+#[derive(Debug)]
+pub struct Ranking {
+    names: Names,
+    groups: Vec<Group>,
+    /// Group index and rank, in output order.
+    order: Vec<(usize, Option<usize>)>,
+    /// Counter-target name, its id, and its (pKi, pKi qualifier) per compound and endpoint.
+    counter: Option<Counter>,
+    confidence: f64,
+}
+
+type Counter = (String, Option<u32>, HashMap<(u32, u32), (Option<f64>, Qualifier)>);
+
+impl Ranking {
+    /// Number of rows.
+    pub fn len(&self) -> usize {
+        self.order.len()
+    }
+
+    /// Whether there are no rows.
+    pub fn is_empty(&self) -> bool {
+        self.order.is_empty()
+    }
+
+    /// The distinct targets, sorted.
+    pub fn targets(&self) -> Vec<&str> {
+        let mut t: Vec<&str> = self.groups.iter().map(|g| self.names.get(g.target)).collect();
+        t.sort_unstable();
+        t.dedup();
+        t
+    }
+
+    /// The rows in output order, each built when asked for.
+    pub fn rows(&self) -> impl Iterator<Item = RankRow> + '_ {
+        self.order.iter().map(|&(i, rank)| {
+            let g = &self.groups[i];
+            let mut row = g.row(&self.names, self.confidence);
+            row.rank = rank;
+            if let Some((versus, id, values)) = &self.counter
+                && Some(g.target) != *id
+                && let Some(&counter) = values.get(&(g.compound, g.endpoint))
+            {
+                selectivity(&mut row, versus, counter);
+            }
+            row
+        })
     }
 }
 
@@ -361,30 +448,6 @@ pub fn aggregate(entries: &[Entry], options: &Options) -> Vec<RankRow> {
         a.add(e);
     }
     a.finish(options)
-}
-
-fn rank_rows(rows: &mut [RankRow]) {
-    let mut order: HashMap<(String, String), usize> = HashMap::new();
-    for r in rows.iter() {
-        let next = order.len();
-        order.entry((r.target.clone(), r.endpoint.clone())).or_insert(next);
-    }
-    let position = |r: &RankRow| order.get(&(r.target.clone(), r.endpoint.clone())).copied();
-    rows.sort_by(|a, b| {
-        position(a)
-            .cmp(&position(b))
-            .then_with(|| b.pki.unwrap_or(f64::NEG_INFINITY).total_cmp(&a.pki.unwrap_or(f64::NEG_INFINITY)))
-            .then_with(|| a.qualifier.is_bound().cmp(&b.qualifier.is_bound()))
-            .then_with(|| a.compound.cmp(&b.compound))
-    });
-    let mut previous: Option<(String, String)> = None;
-    let mut rank = 0;
-    for r in rows.iter_mut() {
-        let key = (r.target.clone(), r.endpoint.clone());
-        rank = if previous.as_ref() == Some(&key) { rank + 1 } else { 1 };
-        previous = Some(key);
-        r.rank = r.pki.map(|_| rank);
-    }
 }
 
 impl Group {
@@ -417,6 +480,19 @@ impl Group {
             failed: 0,
             first_error: None,
         }
+    }
+
+    /// The pKi and qualifier the row will have (as [`Group::row`] computes them), for ranking.
+    fn headline(&self) -> (Option<f64>, Qualifier) {
+        if self.n > 0 {
+            return (Some(self.mean), if self.approximate { Qualifier::About } else { Qualifier::Equal });
+        }
+        let chosen = match (self.lower, self.upper) {
+            (Some(l), Some(u)) if l.value < u.value => Some(l),
+            (Some(_), Some(_)) => None,
+            (l, u) => l.or(u),
+        };
+        chosen.map_or((None, Qualifier::Equal), |b| (Some(crate::units::p_value(b.value)), b.qualifier))
     }
 
     /// Counts a value: Welford's update for an exact one, the tightest bound for a bound.
@@ -480,7 +556,7 @@ impl Group {
             versus: None,
             delta_pki: None,
             error: None,
-            lines: self.sources.iter().map(|&(_, l)| l).collect(),
+            lines: self.sources.iter().map(|&(_, l)| u64::from(l)).collect(),
             source: source_text(&self.sources, names),
         };
         if self.n > 0 {
@@ -683,7 +759,7 @@ fn tighter(current: Option<Bounded>, b: Bounded, lower: bool) -> Bounded {
 }
 
 /// `ki.csv:2,3; other.csv:7` from (file, line) pairs in input order.
-fn source_text(sources: &[(u32, u64)], names: &Names) -> String {
+fn source_text(sources: &[(u32, u32)], names: &Names) -> String {
     let mut parts: Vec<(u32, Vec<String>)> = Vec::new();
     for &(file, line) in sources {
         match parts.iter_mut().find(|(f, _)| *f == file) {
@@ -703,41 +779,32 @@ fn direction(q: Qualifier) -> i8 {
     }
 }
 
-/// ΔpKi = pKi(row) − pKi(versus) for every compound measured on both.
-fn selectivity(rows: &mut [RankRow], versus: &str) {
-    let counter: HashMap<(String, String), (Option<f64>, Qualifier)> = rows
-        .iter()
-        .filter(|r| r.target == versus)
-        .map(|r| ((r.compound.clone(), r.endpoint.clone()), (r.pki, r.pki_qualifier)))
-        .collect();
-    for r in rows.iter_mut().filter(|r| r.target != versus) {
-        let Some((pv, qv)) = counter.get(&(r.compound.clone(), r.endpoint.clone())) else {
-            continue;
-        };
-        r.versus = Some(versus.to_string());
-        let (Some(pa), Some(pv)) = (r.pki, *pv) else { continue };
-        let qa = r.pki_qualifier;
-        // ΔpKi inherits pA's direction and the reverse of pV's.
-        let (da, dv) = (direction(qa), -direction(*qv));
-        let d = match (da, dv) {
-            (0, d) | (d, 0) => d,
-            (a, b) if a == b => a,
-            _ => {
-                r.flags.push(Flag::new(
-                    "selectivity-undetermined",
-                    format!(
-                        "pKi is {qa} {pa:.2} here and {qv} {pv:.2} on {versus}: two bounds on the same side leave their difference open both ways, so ΔpKi against {versus} is unknown"
-                    ),
-                ));
-                continue;
-            }
-        };
-        let qualifier = match (d, r.qualifier == Qualifier::About || *qv == Qualifier::About) {
-            (-1, _) => Qualifier::Less,
-            (1, _) => Qualifier::Greater,
-            (_, true) => Qualifier::About,
-            _ => Qualifier::Equal,
-        };
-        r.delta_pki = Some(Bounded { qualifier, value: pa - pv });
-    }
+/// ΔpKi = pKi(row) − pKi(versus), for a compound measured on both;
+/// `counter` is the counter-target's (pKi, pKi qualifier).
+fn selectivity(r: &mut RankRow, versus: &str, (pv, qv): (Option<f64>, Qualifier)) {
+    r.versus = Some(versus.to_string());
+    let (Some(pa), Some(pv)) = (r.pki, pv) else { return };
+    let qa = r.pki_qualifier;
+    // ΔpKi inherits pA's direction and the reverse of pV's.
+    let (da, dv) = (direction(qa), -direction(qv));
+    let d = match (da, dv) {
+        (0, d) | (d, 0) => d,
+        (a, b) if a == b => a,
+        _ => {
+            r.flags.push(Flag::new(
+                "selectivity-undetermined",
+                format!(
+                    "pKi is {qa} {pa:.2} here and {qv} {pv:.2} on {versus}: two bounds on the same side leave their difference open both ways, so ΔpKi against {versus} is unknown"
+                ),
+            ));
+            return;
+        }
+    };
+    let qualifier = match (d, qa == Qualifier::About || qv == Qualifier::About) {
+        (-1, _) => Qualifier::Less,
+        (1, _) => Qualifier::Greater,
+        (_, true) => Qualifier::About,
+        _ => Qualifier::Equal,
+    };
+    r.delta_pki = Some(Bounded { qualifier, value: pa - pv });
 }

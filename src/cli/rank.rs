@@ -114,13 +114,11 @@ pub fn run(args: &Args) -> Result<()> {
             }
         }
     }
-    let rows = aggregator.finish(&Options { versus: args.versus.clone(), confidence: args.confidence });
+    let ranking = aggregator.rank(&Options { versus: args.versus.clone(), confidence: args.confidence });
     if let Some(v) = &args.versus
-        && !rows.iter().any(|r| &r.target == v)
+        && !ranking.targets().contains(&v.as_str())
     {
-        let mut targets: Vec<&str> = rows.iter().map(|r| r.target.as_str()).collect();
-        targets.sort_unstable();
-        targets.dedup();
+        let targets = ranking.targets();
         return Err(Error::Option {
             option: "--versus".into(),
             value: v.clone(),
@@ -130,9 +128,12 @@ pub fn run(args: &Args) -> Result<()> {
     }
     let inputs: Vec<&str> = args.files.iter().map(String::as_str).collect();
     let mut sink = OutputSink::create(args.output.output.as_deref(), &inputs)?;
-    render_to(&rows, args.unit, args.output.format, &mut sink)?;
+    render_to(ranking.rows(), args.unit, args.output.format, &mut sink)?;
     sink.commit()?;
-    write_pictures(&rows, &failures, args, &inputs)?;
+    if args.pictures.plot.is_some() || args.pictures.report.is_some() {
+        let rows: Vec<RankRow> = ranking.rows().collect();
+        write_pictures(&rows, &failures, args, &inputs)?;
+    }
     if failed == 0 { Ok(()) } else { Err(Error::Partial { failed, total, what: "rows" }) }
 }
 
@@ -410,12 +411,17 @@ fn merge_qualifier(table: &Table, cols: &Columns, record: &Record, cell: Qualifi
 /// Serialises ranked rows (Ki in mol/L) in the chosen format, Ki values in `unit`.
 pub fn render(rows: &[RankRow], unit: ConcUnit, format: Format) -> Result<Vec<u8>> {
     let mut bytes = Vec::new();
-    render_to(rows, unit, format, &mut bytes)?;
+    render_to(rows.iter().cloned(), unit, format, &mut bytes)?;
     Ok(bytes)
 }
 
 /// [`render`] into a writer, one row at a time (no second copy of the rows).
-pub fn render_to(rows: &[RankRow], unit: ConcUnit, format: Format, out: &mut impl Write) -> Result<()> {
+pub fn render_to(
+    rows: impl Iterator<Item = RankRow>,
+    unit: ConcUnit,
+    format: Format,
+    out: &mut impl Write,
+) -> Result<()> {
     let io = |e: std::io::Error| Error::Serialise(e.to_string());
     match format {
         Format::Json => {
@@ -427,7 +433,7 @@ pub fn render_to(rows: &[RankRow], unit: ConcUnit, format: Format, out: &mut imp
             };
             let mut json = crate::io::output::JsonRows::start(out, &head)?;
             for r in rows {
-                json.row(&in_unit(r, unit))?;
+                json.row(&in_unit(&r, unit))?;
             }
             json.finish().map(|_| ())
         }
@@ -436,7 +442,7 @@ pub fn render_to(rows: &[RankRow], unit: ConcUnit, format: Format, out: &mut imp
             registry::write(rows, &context, out).map(|_| ())
         }
         Format::Table => {
-            let converted: Vec<RankRow> = rows.iter().map(|r| in_unit(r, unit)).collect();
+            let converted: Vec<RankRow> = rows.map(|r| in_unit(&r, unit)).collect();
             out.write_all(human(&converted, unit).as_bytes()).map_err(io)
         }
     }

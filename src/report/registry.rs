@@ -184,11 +184,11 @@ pub fn header() -> Vec<String> {
     COLUMNS.iter().map(|c| c.name.to_string()).collect()
 }
 
-/// Writes the registry CSV of `rows` (Ki in mol/L) to `out`.
-pub fn write<W: Write>(rows: &[RankRow], context: &Context, out: W) -> Result<W> {
+/// Writes the registry CSV of `rows` (Ki in mol/L) to `out`, one row at a time.
+pub fn write<W: Write>(rows: impl Iterator<Item = RankRow>, context: &Context, out: W) -> Result<W> {
     let mut export = CsvExport::new(out, &header())?;
     for r in rows {
-        let cells: Vec<Cell> = COLUMNS.iter().map(|c| (c.value)(r, context)).collect();
+        let cells: Vec<Cell> = COLUMNS.iter().map(|c| (c.value)(&r, context)).collect();
         export.row(&cells)?;
     }
     export.finish()
