@@ -161,3 +161,55 @@ fn the_readme_lists_the_registry_contract() {
     assert_eq!(listed, declared);
     assert!(section.contains(&format!("version {}", kimech::report::registry::REGISTRY_VERSION)));
 }
+
+/// SHA-256 by an independent implementation: GNU coreutils' `sha256sum`, else Python's hashlib.
+fn reference_sha256(path: &Path) -> Option<String> {
+    let out = std::process::Command::new("sha256sum").arg(path).output().ok().filter(|o| o.status.success());
+    let out = out.or_else(|| {
+        let code = "import hashlib,sys;print(hashlib.sha256(open(sys.argv[1],'rb').read()).hexdigest())";
+        std::process::Command::new("python3").args(["-c", code]).arg(path).output().ok()
+    })?;
+    String::from_utf8_lossy(&out.stdout).split_whitespace().next().map(String::from)
+}
+
+/// Every JSON output and the report carry the provenance record: tool, the
+/// command as typed, the start time and each input's size and SHA-256, which
+/// must equal an independent implementation's.
+#[test]
+fn outputs_record_their_provenance_with_the_inputs_sha256() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("ic50.csv"), IC50_TABLE).unwrap();
+    common::kimech(dir.path()).args(["ki", "ic50.csv", "--format", "csv", "-o", "ki.csv"]).output().unwrap();
+    let Some(expected) = reference_sha256(&dir.path().join("ic50.csv")) else {
+        println!("SKIPPED: neither sha256sum nor python3 is available for an independent SHA-256");
+        return;
+    };
+    let out = common::kimech(dir.path()).args(["ki", "ic50.csv", "--format", "json", "--km", "1 uM"]).output().unwrap();
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let p = &doc["provenance"];
+    assert_eq!(p["tool"], format!("kimech {}", env!("CARGO_PKG_VERSION")));
+    let command: Vec<&str> = p["command"].as_array().unwrap().iter().map(|v| v.as_str().unwrap()).collect();
+    assert_eq!(&command[1..], ["ki", "ic50.csv", "--format", "json", "--km", "1 uM"]);
+    let started = p["started"].as_str().unwrap();
+    assert!(started.len() == 20 && started.ends_with('Z') && &started[10..11] == "T", "{started}");
+    assert_eq!(p["inputs"][0]["path"], "ic50.csv");
+    assert_eq!(p["inputs"][0]["sha256"], expected.as_str());
+    assert_eq!(p["inputs"][0]["bytes"], IC50_TABLE.len());
+    // Stdin is hashed as it is read.
+    let out =
+        common::kimech(dir.path()).args(["ki", "-", "--format", "json"]).write_stdin(IC50_TABLE).output().unwrap();
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(doc["provenance"]["inputs"][0]["path"], "-");
+    assert_eq!(doc["provenance"]["inputs"][0]["sha256"], expected.as_str());
+    // rank: JSON and the report name ki.csv with its hash.
+    let ki_sha = reference_sha256(&dir.path().join("ki.csv")).unwrap();
+    let out = common::kimech(dir.path())
+        .args(["rank", "ki.csv", "--format", "json", "--report", "rank.html", "--confidence", "0.9"])
+        .output()
+        .unwrap();
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(doc["provenance"]["inputs"][0]["sha256"], ki_sha.as_str());
+    let html = std::fs::read_to_string(dir.path().join("rank.html")).unwrap();
+    assert!(html.contains(&ki_sha), "the report shows the input's SHA-256");
+    assert!(html.contains("rank ki.csv --format json --report rank.html --confidence 0.9"), "the command as typed");
+}

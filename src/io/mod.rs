@@ -2,6 +2,7 @@
 
 pub mod input;
 pub mod output;
+pub mod provenance;
 pub mod stream;
 
 pub use input::{ColumnSpec, Table};

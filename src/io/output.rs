@@ -155,7 +155,7 @@ pub fn csv_bytes<T: serde::Serialize>(rows: &[T]) -> Result<Vec<u8>> {
 pub fn json_bytes<T: serde::Serialize>(value: &T) -> Result<Vec<u8>> {
     let mut bytes = serde_json::to_vec_pretty(value).map_err(|e| Error::Serialise(e.to_string()))?;
     bytes.push(b'\n');
-    Ok(bytes)
+    Ok(super::provenance::append_to_json(bytes))
 }
 
 /// A JSON document written a row at a time, laid out exactly as serde_json's
@@ -188,10 +188,14 @@ impl<W: Write> JsonRows<W> {
         self.out.write_all(text.replace('\n', "\n    ").as_bytes()).map_err(serialise_io)
     }
 
-    /// Closes the list and the document.
+    /// Closes the list and the document, with the run's provenance as its last field.
     pub fn finish(mut self) -> Result<W> {
-        let tail: &[u8] = if self.rows == 0 { b"[]\n}\n" } else { b"\n  ]\n}\n" };
-        self.out.write_all(tail).map_err(serialise_io)?;
+        let list: &str = if self.rows == 0 { "[]\n}\n" } else { "\n  ]\n}\n" };
+        let tail =
+            String::from_utf8(super::provenance::append_to_json(format!("{{\n  \"results\": {list}").into_bytes()))
+                .unwrap_or_default();
+        let tail = tail.strip_prefix("{\n  \"results\": ").unwrap_or(list);
+        self.out.write_all(tail.as_bytes()).map_err(serialise_io)?;
         Ok(self.out)
     }
 }
