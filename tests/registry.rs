@@ -123,6 +123,20 @@ fn every_compound_reaches_the_registry_with_hand_computed_cells() {
     assert_eq!(ranks, [("KX-2", "1"), ("KX-1", "2"), ("KX-5", "3"), ("KX-3", "4"), ("KX-4", "")]);
 }
 
+/// ki's table: a failed row before the others takes no footnote number, so the
+/// first relation is `[1]` in the table and in the legend.
+#[test]
+fn ki_footnotes_are_numbered_without_gaps() {
+    let dir = tempfile::tempdir().unwrap();
+    let table =
+        "compound,ic50,substrate,km,mechanism\nBAD,12 mg/mL,1 uM,1 uM,competitive\nOK,10 nM,1 uM,1 uM,competitive\n";
+    std::fs::write(dir.path().join("t.csv"), table).unwrap();
+    let out = common::kimech(dir.path()).args(["ki", "t.csv"]).output().unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains("[1] competitive"), "{text}");
+    assert!(!text.contains("[2]"), "{text}");
+}
+
 #[test]
 fn python_reads_numbers_where_numbers_are_expected_and_no_formulas() {
     let dir = tempfile::tempdir().unwrap();

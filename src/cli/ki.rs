@@ -684,7 +684,9 @@ pub fn human(rows: &[KiRow]) -> String {
             .to_vec(),
     );
     for r in rows {
+        // Failed rows get no footnote, so the numbers in the table and the legend match.
         let m = match methods.iter().position(|m| *m == r.method) {
+            _ if r.error.is_some() => 0,
             Some(i) => i + 1,
             None => {
                 methods.push(&r.method);
@@ -711,7 +713,7 @@ pub fn human(rows: &[KiRow]) -> String {
         ]);
     }
     let mut out = format!("IC50 → Ki\n{grid}\n");
-    for (i, m) in methods.iter().enumerate().filter(|(_, m)| **m != "not converted") {
+    for (i, m) in methods.iter().enumerate() {
         out.push_str(&format!("[{}] {m}\n", i + 1));
     }
     for r in rows {
