@@ -253,7 +253,7 @@ fn qualified_ic50_gives_a_qualified_ki_without_interval() {
                C,>=2 uM,,,50 uM,50 uM\n\
                D,~200 nM,150 nM,260 nM,50 uM,50 uM\n";
     let (_, rows) = run_json(csv, &["--mechanism", "competitive"]);
-    // An approximate IC50 gives an approximate Ki, never an exact one (issue 9).
+    // `~200 nM` stays approximate: `~` 100 nM, never a number pretending to be exact.
     let expect = [(">", 5000.0), ("<", 2.5), (">=", 1000.0), ("~", 100.0)];
     for (r, (q, v)) in rows.iter().zip(expect) {
         assert_eq!(r["ki"]["qualifier"], q, "{r}");

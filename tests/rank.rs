@@ -139,9 +139,11 @@ fn all_censored_groups_report_the_tightest_bound() {
     let conflict = find(&rows, "conflict", "T");
     assert!(conflict["ki"].is_null() && conflict["pki"].is_null());
     assert!(codes(conflict).contains(&"censored-conflict".to_string()));
-    // Bounds rank by their value, after an exact value of the same potency; conflicts last.
+    // Bounds rank by their value, after an exact value of the same potency; a conflict has
+    // no value, so no rank, and its error says why.
     assert_eq!(up["rank"], 1);
-    assert_eq!(conflict["rank"], 4);
+    assert!(conflict["rank"].is_null());
+    assert!(conflict["error"].as_str().unwrap().contains("contradict"), "{conflict}");
 }
 
 #[test]
@@ -150,7 +152,12 @@ fn the_qualifier_column_and_the_cell_must_agree() {
     assert_eq!(r.code, 3);
     assert!(r.stderr.contains("line 2") && r.stderr.contains("disagrees"), "{}", r.stderr);
     let doc: Value = serde_json::from_slice(&r.stdout).unwrap();
-    assert_eq!(doc["results"].as_array().unwrap().len(), 1, "B is still ranked");
+    let results = doc["results"].as_array().unwrap();
+    assert_eq!(results[0]["compound"], "B", "B is still ranked");
+    assert_eq!(results[0]["rank"], 1);
+    // A keeps its row, without a value, saying why.
+    assert_eq!(results[1]["compound"], "A");
+    assert!(results[1]["ki"].is_null() && results[1]["error"].as_str().unwrap().contains("disagrees"));
 }
 
 #[test]
@@ -203,22 +210,30 @@ fn the_registry_export_has_the_documented_columns() {
         "qualifier",
         "value",
         "unit",
-        "p_value",
-        "interval",
+        "pki",
+        "pki_qualifier",
+        "low",
+        "high",
+        "interval_method",
         "n",
+        "n_censored",
+        "values",
+        "assays",
+        "pki_sd",
+        "rank",
         "mechanism",
         "method",
         "flags",
         "conditions",
-        "tool_version",
-        "rank",
-        "p_value_sd",
-        "n_censored",
-        "interval_method",
         "ligand_efficiency",
+        "ligand_efficiency_qualifier",
         "versus",
-        "delta_p_value",
-        "delta_qualifier",
+        "delta_pki",
+        "delta_pki_qualifier",
+        "error",
+        "source",
+        "tool",
+        "registry_version",
     ];
     assert_eq!(header, documented);
     let col = |name: &str| header.iter().position(|h| h == name).unwrap();
@@ -228,9 +243,12 @@ fn the_registry_export_has_the_documented_columns() {
     assert_eq!(&rows[0][col("endpoint")], "Ki");
     assert_eq!(&rows[0][col("mechanism")], "competitive (measured)");
     assert_eq!(&rows[0][col("flags")], "tight-binding");
-    assert_eq!(&rows[0][col("tool_version")], format!("kimech {}", env!("CARGO_PKG_VERSION")));
-    assert_relative_eq!(rows[0][col("p_value")].parse::<f64>().unwrap(), 7.30103, max_relative = 1e-6);
+    assert_eq!(&rows[0][col("tool")], format!("kimech {}", env!("CARGO_PKG_VERSION")));
+    assert_eq!(&rows[0][col("registry_version")], "2");
+    assert_relative_eq!(rows[0][col("pki")].parse::<f64>().unwrap(), 7.30103, max_relative = 1e-6);
+    assert_eq!(&rows[0][col("pki_qualifier")], "");
     assert_eq!(&rows[1][col("qualifier")], ">");
+    assert_eq!(&rows[1][col("pki_qualifier")], "<");
     assert_eq!(&rows[1][col("mechanism")], "competitive (assumed)");
     assert!(rows[1][col("flags")].starts_with("mechanism-assumed;qualified-input;all-censored"));
 }

@@ -50,7 +50,7 @@ pub struct Args {
     #[arg(long, value_name = "X", allow_negative_numbers = true)]
     pub fix_upper: Option<f64>,
     /// Turn raw signal into % activity from each plate's control wells; reports Z′ per plate.
-    #[arg(long)]
+    #[arg(long, visible_alias = "normalize")]
     pub normalise: bool,
     /// Total active enzyme, e.g. "2 nM": fit Morrison's tight-binding equation (apparent Ki and
     /// IC50); the response must be % activity or background-subtracted (zero at full inhibition).
@@ -1041,7 +1041,7 @@ impl Writer {
                 if !self.started {
                     write_all(out, b"{\"results\": [\n")?;
                 }
-                write_all(out, b"\n]}\n")
+                write_all(out, &crate::io::provenance::compact_json_tail())
             }
             Format::Csv => {
                 if !self.started {
@@ -1099,7 +1099,7 @@ fn csv_row(r: &Ic50Result, morrison: bool) -> Vec<String> {
         r.n.to_string(),
         r.converged.to_string(),
         r.call.word().to_string(),
-        r.qualifier.symbol().to_string(),
+        crate::io::output::qualifier_cell(r.qualifier),
         qualified(r.qualifier, r.ic50.value),
         opt(r.ic50.se),
         opt(r.ic50.low),

@@ -8,14 +8,17 @@
 //! Conditions come from columns where present (a non-empty cell wins) and
 //! from the command-line defaults otherwise.
 
+use std::io::Write;
+
 use serde::Serialize;
 
-use super::{CAUTION, OutputArgs, finish, parse_flag_concentration, parse_fraction};
+use super::{CAUTION, OutputArgs, parse_flag_concentration, parse_fraction};
 use crate::convert::{self, Assay, Conditions, Conversion, Measurement, Mechanism, MechanismSource, Settings};
 use crate::error::{Error, Result};
 use crate::io::input::Record;
-use crate::io::output::{json_bytes, new_grid, sig};
-use crate::io::{ColumnSpec, Format, Table, neutralise_formula, write_output};
+use crate::io::output::{Cell, CsvExport, JsonRows, new_grid, qualifier_cell, sig};
+use crate::io::stream::{OutputSink, RowStream};
+use crate::io::{ColumnSpec, Format, Table};
 use crate::units::{ConcUnit, ConcentrationArg, Qualifier};
 
 const COMPOUND: ColumnSpec = ColumnSpec::new("compound", &["compound_id", "compound_name", "molecule", "id"]);
@@ -42,8 +45,9 @@ const CONSUMED: [ColumnSpec; 15] = [
 
 /// Output columns of the CSV before the carried ones (a carried column with one
 /// of these names is renamed `input <name>`).
-const CSV_KEYS: [&str; 18] = [
+const CSV_KEYS: [&str; 20] = [
     "row",
+    "source",
     "compound",
     "target",
     "endpoint",
@@ -52,6 +56,7 @@ const CSV_KEYS: [&str; 18] = [
     "ki_low",
     "ki_high",
     "pki",
+    "pki_qualifier",
     "interval_method",
     "method",
     "mechanism",
@@ -123,7 +128,7 @@ pub struct KiValue {
     pub value: Option<f64>,
     /// Unit of value, low and high.
     pub unit: String,
-    /// `=` for a number, `<`/`>`/`<=`/`>=` for a bound.
+    /// `=` for a number, `~` approximate, `<`/`>`/`<=`/`>=` for a bound.
     pub qualifier: Qualifier,
     /// Lower end of the interval.
     pub low: Option<f64>,
@@ -146,6 +151,8 @@ pub struct Range {
 /// `range`, `interval_method` and `messages`).
 #[derive(Debug, Clone, Serialize)]
 pub struct KiRow {
+    /// Input file, as named on the command line (`<stdin>` for `-`).
+    pub source: String,
     /// Input line number.
     pub row: u64,
     /// Compound as written.
@@ -154,6 +161,8 @@ pub struct KiRow {
     pub ki: KiValue,
     /// −log10 of the constant in mol/L; for a bound, the bound (its direction reversed).
     pub pki: Option<f64>,
+    /// Qualifier of `pki`: that of `ki` with a bound's direction reversed.
+    pub pki_qualifier: Qualifier,
     /// `Ki` or `Kiu`.
     pub endpoint: &'static str,
     /// The relation used, with formula and source.
@@ -189,38 +198,111 @@ pub struct Report<'a> {
     pub results: &'a [KiRow],
 }
 
-/// Runs `kimech ki`.
+/// Runs `kimech ki`. Rows are read, converted and written one at a time, so
+/// memory does not grow with the file (except for `--format table`, whose
+/// column widths need every row).
 pub fn run(args: &Args) -> Result<()> {
-    let table = Table::read(&args.file)?;
-    let (rows, carried, failures) = convert_table(&table, args)?;
-    let bytes = render(&rows, &carried, args.output.format)?;
-    write_output(args.output.output.as_deref(), &bytes, &[&args.file])?;
-    finish(&failures, rows.len(), "rows")
+    let mut stream = RowStream::open(&args.file)?;
+    let plan = Plan::new(stream.table(), args)?;
+    let mut sink = OutputSink::create(args.output.output.as_deref(), &[&args.file])?;
+    let mut writer = RowWriter::start(args.output.format, &plan.carried_headers, args.unit, &mut sink)?;
+    let (mut total, mut failed) = (0, 0);
+    let mut record = Record { line: 0, cells: Vec::new() };
+    while stream.next_into(&mut record)? {
+        total += 1;
+        let (row, failure) = plan.convert(stream.table(), &record, args);
+        if let Some(f) = failure {
+            eprintln!("kimech: {f}");
+            failed += 1;
+        }
+        writer.push(row)?;
+    }
+    writer.finish()?;
+    sink.commit()?;
+    if failed == 0 { Ok(()) } else { Err(Error::Partial { failed, total, what: "rows" }) }
 }
 
 /// Converts every row; rows that fail keep their place with `error` set.
 /// Returns the rows, the headers of the carried columns and the failures.
 pub fn convert_table(table: &Table, args: &Args) -> Result<(Vec<KiRow>, Vec<String>, Vec<Error>)> {
-    let columns = Columns::find(table)?;
-    let carried_cols: Vec<usize> =
-        (0..table.columns.len()).filter(|&i| !CONSUMED.iter().any(|spec| table.find(spec) == Some(i))).collect();
-    let carried_headers = carried_cols
-        .iter()
-        .map(|&i| {
-            let c = &table.columns[i];
-            if CSV_KEYS.contains(&c.key.as_str()) { format!("input {}", c.header) } else { c.header.clone() }
-        })
-        .collect();
-    let settings = Settings { hill_tolerance: args.hill_tolerance, confidence: args.confidence, ..Settings::default() };
+    let plan = Plan::new(table, args)?;
     let mut rows = Vec::new();
     let mut failures = Vec::new();
     for record in &table.rows {
-        let carried = carried_cols.iter().map(|&i| table.text(record, i).to_string()).collect();
-        let (row, failure) = convert_row(table, &columns, record, args, &settings, carried);
+        let (row, failure) = plan.convert(table, record, args);
         rows.push(row);
         failures.extend(failure);
     }
-    Ok((rows, carried_headers, failures))
+    Ok((rows, plan.carried_headers, failures))
+}
+
+/// What the header says: where each column is and which ones are carried through.
+struct Plan {
+    columns: Columns,
+    carried_cols: Vec<usize>,
+    carried_headers: Vec<String>,
+    settings: Settings,
+}
+
+impl Plan {
+    fn new(table: &Table, args: &Args) -> Result<Plan> {
+        let columns = Columns::find(table)?;
+        let carried_cols: Vec<usize> =
+            (0..table.columns.len()).filter(|&i| !CONSUMED.iter().any(|spec| table.find(spec) == Some(i))).collect();
+        let carried_headers = carried_cols
+            .iter()
+            .map(|&i| {
+                let c = &table.columns[i];
+                if CSV_KEYS.contains(&c.key.as_str()) { format!("input {}", c.header) } else { c.header.clone() }
+            })
+            .collect();
+        let settings =
+            Settings { hill_tolerance: args.hill_tolerance, confidence: args.confidence, ..Settings::default() };
+        Ok(Plan { columns, carried_cols, carried_headers, settings })
+    }
+
+    fn convert(&self, table: &Table, record: &Record, args: &Args) -> (KiRow, Option<Error>) {
+        let carried = self.carried_cols.iter().map(|&i| table.text(record, i).to_string()).collect();
+        convert_row(table, &self.columns, record, args, &self.settings, carried)
+    }
+}
+
+/// Writes rows as they come: CSV and JSON straight through, the table at the end.
+enum RowWriter<W: Write> {
+    Csv(Box<CsvExport<W>>),
+    Json(JsonRows<W>),
+    Table(W, Vec<KiRow>),
+}
+
+impl<W: Write> RowWriter<W> {
+    fn start(format: Format, carried: &[String], unit: ConcUnit, out: W) -> Result<RowWriter<W>> {
+        Ok(match format {
+            Format::Csv => RowWriter::Csv(Box::new(CsvExport::new(out, &csv_header(carried, unit))?)),
+            Format::Json => RowWriter::Json(JsonRows::start(out, &Report { results: &[] })?),
+            Format::Table => RowWriter::Table(out, Vec::new()),
+        })
+    }
+
+    fn push(&mut self, row: KiRow) -> Result<()> {
+        match self {
+            RowWriter::Csv(w) => w.row(&csv_cells(&row)),
+            RowWriter::Json(w) => w.row(&row),
+            RowWriter::Table(_, rows) => {
+                rows.push(row);
+                Ok(())
+            }
+        }
+    }
+
+    fn finish(self) -> Result<()> {
+        match self {
+            RowWriter::Csv(w) => w.finish().map(|_| ()),
+            RowWriter::Json(w) => w.finish().map(|_| ()),
+            RowWriter::Table(mut out, rows) => {
+                out.write_all(human(&rows).as_bytes()).map_err(|e| Error::Serialise(e.to_string()))
+            }
+        }
+    }
 }
 
 /// Where each known column is.
@@ -285,6 +367,7 @@ fn convert_row(
         .and_then(|c| Mechanism::parse(table.text(record, c)).filter(|_| !table.text(record, c).is_empty()))
         .unwrap_or(args.mechanism);
     let mut row = KiRow {
+        source: table.source.clone(),
         row: record.line,
         compound: compound.clone(),
         ki: KiValue {
@@ -295,6 +378,7 @@ fn convert_row(
             high: None,
         },
         pki: None,
+        pki_qualifier: Qualifier::Equal,
         endpoint: if mechanism == Mechanism::Uncompetitive { "Kiu" } else { "Ki" },
         method: "not converted".into(),
         mechanism: if mechanism == Mechanism::Unknown { "competitive" } else { mechanism.name() },
@@ -358,6 +442,7 @@ fn fill(row: &mut KiRow, c: &Conversion, unit: ConcUnit) {
         high: c.high.map(out),
     };
     row.pki = Some(crate::units::p_value(c.ki));
+    row.pki_qualifier = c.qualifier.reversed();
     row.endpoint = c.endpoint.name();
     row.method = c.method.clone();
     row.mechanism = c.mechanism.name();
@@ -574,26 +659,24 @@ fn condition(
 
 /// Serialises the rows in the chosen format.
 pub fn render(rows: &[KiRow], carried: &[String], format: Format) -> Result<Vec<u8>> {
-    match format {
-        Format::Json => json_bytes(&Report { results: rows }),
-        Format::Csv => csv(rows, carried),
-        Format::Table => Ok(human(rows).into_bytes()),
+    if format == Format::Table {
+        return Ok(human(rows).into_bytes());
+    }
+    let unit = rows.first().and_then(|r| ConcUnit::parse(&r.ki.unit)).unwrap_or(ConcUnit::Nanomolar);
+    let mut writer = RowWriter::start(format, carried, unit, Vec::new())?;
+    for r in rows {
+        writer.push(r.clone())?;
+    }
+    match writer {
+        RowWriter::Csv(w) => w.finish(),
+        RowWriter::Json(w) => w.finish(),
+        RowWriter::Table(out, _) => Ok(out),
     }
 }
 
-/// A number for an export cell: ten significant digits, so that unit
-/// conversions do not print as 49.999999999999986.
-fn num(v: Option<f64>) -> String {
-    v.map_or(String::new(), |x| {
-        let rounded: f64 = format!("{x:.9e}").parse().unwrap_or(x);
-        format!("{rounded}")
-    })
-}
-
-/// The CSV `rank` reads: unit in the headers, exact qualifier written as an
-/// empty cell (a lone `=` would start a spreadsheet formula), text cells guarded.
-fn csv(rows: &[KiRow], carried: &[String]) -> Result<Vec<u8>> {
-    let unit = rows.first().map_or("nM".to_string(), |r| r.ki.unit.clone());
+/// The CSV header `rank` reads: unit in the headers of every concentration,
+/// then the carried columns.
+fn csv_header(carried: &[String], unit: ConcUnit) -> Vec<String> {
     let mut header: Vec<String> = CSV_KEYS
         .iter()
         .map(|k| match *k {
@@ -601,47 +684,45 @@ fn csv(rows: &[KiRow], carried: &[String]) -> Result<Vec<u8>> {
             _ => k.to_string(),
         })
         .collect();
-    header.extend(carried.iter().map(|h| neutralise_formula(h)));
-    let mut writer = csv::Writer::from_writer(Vec::new());
-    let serialise = |e: csv::Error| Error::Serialise(e.to_string());
-    writer.write_record(&header).map_err(serialise)?;
-    for r in rows {
-        let mut cells = vec![
-            r.row.to_string(),
-            neutralise_formula(&r.compound),
-            neutralise_formula(r.target.as_deref().unwrap_or("")),
-            r.endpoint.to_string(),
-            qualifier_cell(r.ki.qualifier),
-            num(r.ki.value),
-            num(r.ki.low),
-            num(r.ki.high),
-            num(r.pki),
-            r.interval_method.unwrap_or("").to_string(),
-            neutralise_formula(&r.method),
-            r.mechanism.to_string(),
-            if r.mechanism_source == MechanismSource::Measured { "measured" } else { "assumed" }.to_string(),
-            num(r.range.as_ref().map(|g| g.low)),
-            num(r.range.as_ref().map(|g| g.high)),
-            r.flags.join(";"),
-            neutralise_formula(&r.conditions),
-            neutralise_formula(r.error.as_deref().unwrap_or("")),
-        ];
-        cells.extend(r.carried.iter().map(|c| neutralise_formula(c)));
-        writer.write_record(&cells).map_err(serialise)?;
-    }
-    writer.into_inner().map_err(|e| Error::Serialise(e.to_string()))
+    header.extend(carried.iter().cloned());
+    header
 }
 
-/// A qualifier for a CSV cell: exact is empty, bounds are their symbol.
-pub fn qualifier_cell(q: Qualifier) -> String {
-    if q.is_bound() { q.symbol().to_string() } else { String::new() }
+/// One CSV row, in the order of [`CSV_KEYS`]: numbers as numbers, an exact
+/// qualifier as an empty cell, text (carried cells too) through the guard.
+fn csv_cells(r: &KiRow) -> Vec<Cell> {
+    let text = |s: &str| Cell::Text(s.to_string());
+    let mut cells = vec![
+        Cell::Count(Some(r.row as usize)),
+        text(&r.source),
+        text(&r.compound),
+        text(r.target.as_deref().unwrap_or("")),
+        text(r.endpoint),
+        Cell::Text(qualifier_cell(r.ki.qualifier)),
+        Cell::Number(r.ki.value),
+        Cell::Number(r.ki.low),
+        Cell::Number(r.ki.high),
+        Cell::Number(r.pki),
+        Cell::Text(if r.pki.is_some() { qualifier_cell(r.pki_qualifier) } else { String::new() }),
+        text(r.interval_method.unwrap_or("")),
+        text(&r.method),
+        text(r.mechanism),
+        text(if r.mechanism_source == MechanismSource::Measured { "measured" } else { "assumed" }),
+        Cell::Number(r.range.as_ref().map(|g| g.low)),
+        Cell::Number(r.range.as_ref().map(|g| g.high)),
+        Cell::Text(r.flags.join(";")),
+        text(&r.conditions),
+        text(r.error.as_deref().unwrap_or("")),
+    ];
+    cells.extend(r.carried.iter().map(|c| text(c)));
+    cells
 }
 
 fn constant_text(r: &KiRow) -> String {
     match r.ki.value {
         None => "—".into(),
         Some(v) => {
-            let q = if r.ki.qualifier.is_bound() { format!("{} ", r.ki.qualifier) } else { String::new() };
+            let q = if r.ki.qualifier == Qualifier::Equal { String::new() } else { format!("{} ", r.ki.qualifier) };
             format!("{} {q}{} {}", r.endpoint, sig(v, 3), r.ki.unit)
         }
     }
@@ -650,7 +731,7 @@ fn constant_text(r: &KiRow) -> String {
 fn pki_text(r: &KiRow) -> String {
     match r.pki {
         None => "—".into(),
-        Some(p) if r.ki.qualifier.is_bound() => format!("{} {:.2}", r.ki.qualifier.reversed(), p),
+        Some(p) if r.pki_qualifier != Qualifier::Equal => format!("{} {:.2}", r.pki_qualifier, p),
         Some(p) => format!("{p:.2}"),
     }
 }
@@ -666,7 +747,9 @@ pub fn human(rows: &[KiRow]) -> String {
             .to_vec(),
     );
     for r in rows {
+        // Failed rows get no footnote, so the numbers in the table and the legend match.
         let m = match methods.iter().position(|m| *m == r.method) {
+            _ if r.error.is_some() => 0,
             Some(i) => i + 1,
             None => {
                 methods.push(&r.method);
@@ -693,7 +776,7 @@ pub fn human(rows: &[KiRow]) -> String {
         ]);
     }
     let mut out = format!("IC50 → Ki\n{grid}\n");
-    for (i, m) in methods.iter().enumerate().filter(|(_, m)| **m != "not converted") {
+    for (i, m) in methods.iter().enumerate() {
         out.push_str(&format!("[{}] {m}\n", i + 1));
     }
     for r in rows {

@@ -51,6 +51,8 @@ enum Command {
 
 /// Parses `args` and runs the chosen subcommand.
 pub fn run(args: impl IntoIterator<Item = impl Into<OsString> + Clone>) -> Result<()> {
+    let args: Vec<OsString> = args.into_iter().map(Into::into).collect();
+    crate::io::provenance::start(args.iter().map(|a| a.to_string_lossy().into_owned()).collect());
     let cli = match Cli::try_parse_from(args) {
         Ok(cli) => cli,
         Err(e) => {

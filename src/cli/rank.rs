@@ -6,18 +6,25 @@
 //! optional `qualifier` column. The numbers come from
 //! [`crate::analysis::rank`]; this file reads and writes.
 //!
-//! `--format csv` is the registry export; its columns are fixed (see
-//! [`REGISTRY_COLUMNS`] and README.md) and every text cell is guarded against
-//! spreadsheet formula injection.
+//! `--format csv` is the registry export, a versioned contract whose columns
+//! are declared in [`crate::report::registry`] (and listed in README.md).
+//!
+//! Rows are read one at a time and folded into one accumulator per compound ×
+//! target × endpoint ([`Aggregator`]), so memory grows with the groups, not
+//! the rows; outputs are written as they are produced.
+
+use std::io::Write;
 
 use serde::Serialize;
 
-use super::{CAUTION, OutputArgs, finish, parse_fraction};
-use crate::analysis::rank::{Bounded, Entry, Options, RankRow, aggregate};
+use super::{CAUTION, OutputArgs, parse_fraction};
+use crate::analysis::rank::{Aggregator, Bounded, Entry, Options, RankRow};
 use crate::error::{Error, Result};
 use crate::io::input::Record;
-use crate::io::output::{json_bytes, new_grid, sig};
-use crate::io::{ColumnSpec, Format, Table, neutralise_formula, write_output};
+use crate::io::output::{new_grid, sig};
+use crate::io::stream::{OutputSink, RowStream};
+use crate::io::{ColumnSpec, Format, Table, write_output};
+use crate::report::registry::{self, REGISTRY_VERSION};
 use crate::units::{ConcUnit, Qualifier, parse_written};
 
 const COMPOUND: ColumnSpec = ColumnSpec::new("compound", &["compound_id", "compound_name", "molecule", "id"]);
@@ -37,33 +44,7 @@ const METHOD: ColumnSpec = ColumnSpec::new("method", &[]);
 const FLAGS: ColumnSpec = ColumnSpec::new("flags", &[]);
 const CONDITIONS: ColumnSpec = ColumnSpec::new("conditions", &[]);
 const ERROR: ColumnSpec = ColumnSpec::new("error", &[]);
-
-/// The registry export's columns, in order. The first fourteen are the
-/// stable registry set; the rest are ranking extras, always present.
-pub const REGISTRY_COLUMNS: [&str; 22] = [
-    "compound",
-    "target",
-    "endpoint",
-    "qualifier",
-    "value",
-    "unit",
-    "p_value",
-    "interval",
-    "n",
-    "mechanism",
-    "method",
-    "flags",
-    "conditions",
-    "tool_version",
-    "rank",
-    "p_value_sd",
-    "n_censored",
-    "interval_method",
-    "ligand_efficiency",
-    "versus",
-    "delta_p_value",
-    "delta_qualifier",
-];
+const ASSAY_ID: ColumnSpec = ColumnSpec::new("assay_id", &["assay_ids", "experiment_id", "run_id"]);
 
 /// Aggregate repeats per compound and target (mean pKi, SD, n, geometric-mean
 /// Ki; bounds handled honestly), rank by pKi, and export a registry table.
@@ -92,35 +73,52 @@ pub struct Args {
     pub pictures: super::PictureArgs,
 }
 
-/// The JSON document: `{"unit": …, "results": [...]}`; Ki values in mol/L
-/// are converted to `unit`.
+/// The JSON document: `{"unit": …, "tool_version": …, "registry_version": …, "results": [...]}`;
+/// Ki values in mol/L are converted to `unit`.
 #[derive(Debug, Serialize)]
 pub struct Report {
     /// Unit of every Ki, low and high.
     pub unit: String,
     /// The tool and version that made it.
     pub tool_version: String,
+    /// Version of the registry contract the rows follow.
+    pub registry_version: u32,
     /// Ranked rows.
     pub results: Vec<RankRow>,
 }
 
+/// At most this many failure messages are kept for the HTML report (all go to stderr).
+const KEPT_FAILURES: usize = 200;
+
 /// Runs `kimech rank`.
 pub fn run(args: &Args) -> Result<()> {
-    let mut entries = Vec::new();
+    let mut aggregator = Aggregator::new();
+    let (mut total, mut failed) = (0, 0);
     let mut failures = Vec::new();
     for file in &args.files {
-        let table = Table::read(file)?;
-        let (e, f) = read_entries(&table, args.ki_unit)?;
-        entries.extend(e);
-        failures.extend(f);
+        let mut stream = RowStream::open(file)?;
+        let cols = Columns::find(stream.table())?;
+        let mut record = Record { line: 0, cells: Vec::new() };
+        while stream.next_into(&mut record)? {
+            total += 1;
+            let (entry, failure) = entry_for_row(stream.table(), &cols, &record, args.ki_unit);
+            if let Some(e) = &entry {
+                aggregator.add(e);
+            }
+            if let Some(f) = failure {
+                eprintln!("kimech: {f}");
+                failed += 1;
+                if failures.len() < KEPT_FAILURES {
+                    failures.push(f);
+                }
+            }
+        }
     }
-    let total = entries.len() + failures.len();
+    let ranking = aggregator.rank(&Options { versus: args.versus.clone(), confidence: args.confidence });
     if let Some(v) = &args.versus
-        && !entries.iter().any(|e| &e.target == v)
+        && !ranking.targets().contains(&v.as_str())
     {
-        let mut targets: Vec<&str> = entries.iter().map(|e| e.target.as_str()).collect();
-        targets.sort_unstable();
-        targets.dedup();
+        let targets = ranking.targets();
         return Err(Error::Option {
             option: "--versus".into(),
             value: v.clone(),
@@ -128,12 +126,15 @@ pub fn run(args: &Args) -> Result<()> {
             expected: format!("use one of the targets in the input: {}", targets.join(", ")),
         });
     }
-    let rows = aggregate(&entries, &Options { versus: args.versus.clone(), confidence: args.confidence });
-    let bytes = render(&rows, args.unit, args.output.format)?;
     let inputs: Vec<&str> = args.files.iter().map(String::as_str).collect();
-    write_output(args.output.output.as_deref(), &bytes, &inputs)?;
-    write_pictures(&rows, &failures, args, &inputs)?;
-    finish(&failures, total, "rows")
+    let mut sink = OutputSink::create(args.output.output.as_deref(), &inputs)?;
+    render_to(ranking.rows(), args.unit, args.output.format, &mut sink)?;
+    sink.commit()?;
+    if args.pictures.plot.is_some() || args.pictures.report.is_some() {
+        let rows: Vec<RankRow> = ranking.rows().collect();
+        write_pictures(&rows, &failures, args, &inputs)?;
+    }
+    if failed == 0 { Ok(()) } else { Err(Error::Partial { failed, total, what: "rows" }) }
 }
 
 /// Writes `--plot` SVGs (one per target and endpoint) and the `--report` page.
@@ -187,44 +188,80 @@ struct Columns {
     flags: Option<usize>,
     conditions: Option<usize>,
     error: Option<usize>,
+    assay_id: Option<usize>,
 }
 
-/// Reads every row into an [`Entry`]; rows that cannot be used are returned as
-/// errors naming their line (and are not aggregated).
-pub fn read_entries(table: &Table, ki_unit: Option<ConcUnit>) -> Result<(Vec<Entry>, Vec<Error>)> {
-    let ki = table.find(&KI);
-    let pki = table.find(&PKI);
-    if ki.is_none() && pki.is_none() {
-        return Err(missing_value_column(table));
+impl Columns {
+    fn find(table: &Table) -> Result<Columns> {
+        let ki = table.find(&KI);
+        let pki = table.find(&PKI);
+        if ki.is_none() && pki.is_none() {
+            return Err(missing_value_column(table));
+        }
+        Ok(Columns {
+            compound: table.require(&COMPOUND)?,
+            ki,
+            pki,
+            target: table.find(&TARGET),
+            unit: table.find(&UNIT),
+            qualifier: table.find(&QUALIFIER),
+            endpoint: table.find(&ENDPOINT),
+            low: table.find(&LOW),
+            high: table.find(&HIGH),
+            interval_method: table.find(&INTERVAL_METHOD),
+            heavy_atoms: table.find(&HEAVY_ATOMS),
+            mechanism: table.find(&MECHANISM),
+            mechanism_source: table.find(&MECHANISM_SOURCE),
+            method: table.find(&METHOD),
+            flags: table.find(&FLAGS),
+            conditions: table.find(&CONDITIONS),
+            error: table.find(&ERROR),
+            assay_id: table.find(&ASSAY_ID),
+        })
     }
-    let cols = Columns {
-        compound: table.require(&COMPOUND)?,
-        ki,
-        pki,
-        target: table.find(&TARGET),
-        unit: table.find(&UNIT),
-        qualifier: table.find(&QUALIFIER),
-        endpoint: table.find(&ENDPOINT),
-        low: table.find(&LOW),
-        high: table.find(&HIGH),
-        interval_method: table.find(&INTERVAL_METHOD),
-        heavy_atoms: table.find(&HEAVY_ATOMS),
-        mechanism: table.find(&MECHANISM),
-        mechanism_source: table.find(&MECHANISM_SOURCE),
-        method: table.find(&METHOD),
-        flags: table.find(&FLAGS),
-        conditions: table.find(&CONDITIONS),
-        error: table.find(&ERROR),
-    };
+}
+
+/// Reads every row into an [`Entry`]. A row that cannot be used is returned
+/// as an error naming its line, and, when it names a compound, also as an
+/// entry with `error` set, so that the compound keeps its registry row.
+pub fn read_entries(table: &Table, ki_unit: Option<ConcUnit>) -> Result<(Vec<Entry>, Vec<Error>)> {
+    let cols = Columns::find(table)?;
     let mut entries = Vec::new();
     let mut failures = Vec::new();
     for record in &table.rows {
-        match read_entry(table, &cols, record, ki_unit) {
-            Ok(e) => entries.push(e),
-            Err(e) => failures.push(e),
-        }
+        let (entry, failure) = entry_for_row(table, &cols, record, ki_unit);
+        entries.extend(entry);
+        failures.extend(failure);
     }
     Ok((entries, failures))
+}
+
+/// One row as an entry, a failure, or both (a failed row that names its compound).
+fn entry_for_row(
+    table: &Table,
+    cols: &Columns,
+    record: &Record,
+    ki_unit: Option<ConcUnit>,
+) -> (Option<Entry>, Option<Error>) {
+    match read_entry(table, cols, record, ki_unit) {
+        Ok(e) => (Some(e), None),
+        Err(error) => {
+            let compound = text(table, record, Some(cols.compound));
+            let entry = (!compound.is_empty()).then(|| {
+                let endpoint = text(table, record, cols.endpoint);
+                Entry {
+                    file: table.source.clone(),
+                    line: record.line,
+                    compound,
+                    target: text(table, record, cols.target),
+                    endpoint: if endpoint.is_empty() { "Ki".into() } else { endpoint },
+                    error: Some(error.to_string()),
+                    ..Entry::default()
+                }
+            });
+            (entry, Some(error))
+        }
+    }
 }
 
 fn missing_value_column(table: &Table) -> Error {
@@ -320,6 +357,9 @@ fn read_entry(table: &Table, cols: &Columns, record: &Record, ki_unit: Option<Co
     };
     let endpoint = text(table, record, cols.endpoint);
     Ok(Entry {
+        file: table.source.clone(),
+        assay: text(table, record, cols.assay_id),
+        error: None,
         line: record.line,
         compound,
         target: text(table, record, cols.target),
@@ -368,93 +408,68 @@ fn merge_qualifier(table: &Table, cols: &Columns, record: &Record, cell: Qualifi
     }
 }
 
-/// Serialises ranked rows in the chosen format, Ki values in `unit`.
+/// Serialises ranked rows (Ki in mol/L) in the chosen format, Ki values in `unit`.
 pub fn render(rows: &[RankRow], unit: ConcUnit, format: Format) -> Result<Vec<u8>> {
-    let converted: Vec<RankRow> = rows.iter().map(|r| in_unit(r, unit)).collect();
+    let mut bytes = Vec::new();
+    render_to(rows.iter().cloned(), unit, format, &mut bytes)?;
+    Ok(bytes)
+}
+
+/// [`render`] into a writer, one row at a time (no second copy of the rows).
+pub fn render_to(
+    rows: impl Iterator<Item = RankRow>,
+    unit: ConcUnit,
+    format: Format,
+    out: &mut impl Write,
+) -> Result<()> {
+    let io = |e: std::io::Error| Error::Serialise(e.to_string());
     match format {
         Format::Json => {
-            json_bytes(&Report { unit: unit.symbol().into(), tool_version: tool_version(), results: converted })
+            let head = Report {
+                unit: unit.symbol().into(),
+                tool_version: tool_version(),
+                registry_version: REGISTRY_VERSION,
+                results: Vec::new(),
+            };
+            let mut json = crate::io::output::JsonRows::start(out, &head)?;
+            for r in rows {
+                json.row(&in_unit(&r, unit))?;
+            }
+            json.finish().map(|_| ())
         }
-        Format::Csv => registry_csv(&converted, unit),
-        Format::Table => Ok(human(&converted, unit).into_bytes()),
+        Format::Csv => {
+            let context = registry::Context { unit, tool: tool_version() };
+            registry::write(rows, &context, out).map(|_| ())
+        }
+        Format::Table => {
+            let converted: Vec<RankRow> = rows.map(|r| in_unit(&r, unit)).collect();
+            out.write_all(human(&converted, unit).as_bytes()).map_err(io)
+        }
     }
 }
 
 fn in_unit(r: &RankRow, unit: ConcUnit) -> RankRow {
     let f = |v: Option<f64>| v.map(|m| unit.from_molar(m));
+    let each = |list: &[Bounded]| {
+        list.iter().map(|b| Bounded { qualifier: b.qualifier, value: unit.from_molar(b.value) }).collect()
+    };
     RankRow {
         ki: f(r.ki),
         low: f(r.low),
         high: f(r.high),
-        censored: r
-            .censored
-            .iter()
-            .map(|b| Bounded { qualifier: b.qualifier, value: unit.from_molar(b.value) })
-            .collect(),
+        censored: each(&r.censored),
+        values: each(&r.values),
         ..r.clone()
     }
-}
-
-/// A number for an export cell: ten significant digits, so that unit
-/// conversions do not print as 49.999999999999986.
-fn num(v: Option<f64>) -> String {
-    v.map_or(String::new(), |x| {
-        let rounded: f64 = format!("{x:.9e}").parse().unwrap_or(x);
-        format!("{rounded}")
-    })
 }
 
 fn interval_text(r: &RankRow) -> String {
     match (r.low, r.high) {
         (None, None) => String::new(),
         (lo, hi) => {
-            format!("{} to {}", lo.map_or("0".into(), |v| sig(v, 4)), hi.map_or("unbounded".into(), |v| sig(v, 4)))
+            format!("{} to {}", lo.map_or("0".into(), |v| sig(v, 3)), hi.map_or("unbounded".into(), |v| sig(v, 3)))
         }
     }
-}
-
-/// The registry export: [`REGISTRY_COLUMNS`], one header row, UTF-8, exact
-/// qualifiers as empty cells, every text cell through the formula guard.
-fn registry_csv(rows: &[RankRow], unit: ConcUnit) -> Result<Vec<u8>> {
-    let mut writer = csv::Writer::from_writer(Vec::new());
-    let serialise = |e: csv::Error| Error::Serialise(e.to_string());
-    writer.write_record(REGISTRY_COLUMNS).map_err(serialise)?;
-    let qualifier = |q: Qualifier| if q.is_bound() { q.symbol().to_string() } else { String::new() };
-    for r in rows {
-        let conditions = if r.censored.is_empty() || r.n == 0 {
-            r.conditions.clone()
-        } else {
-            let set_aside: Vec<String> =
-                r.censored.iter().map(|b| format!("{} {} {}", b.qualifier, sig(b.value, 3), unit)).collect();
-            format!("{} | bounds set aside: {}", r.conditions, set_aside.join(", "))
-        };
-        let record: Vec<String> = vec![
-            neutralise_formula(&r.compound),
-            neutralise_formula(&r.target),
-            neutralise_formula(&r.endpoint),
-            qualifier(r.qualifier),
-            num(r.ki),
-            unit.symbol().into(),
-            num(r.pki),
-            interval_text(r),
-            r.n.to_string(),
-            neutralise_formula(&r.mechanism),
-            neutralise_formula(&r.method),
-            neutralise_formula(&r.flags.iter().map(|f| f.code.as_str()).collect::<Vec<_>>().join(";")),
-            neutralise_formula(&conditions),
-            tool_version(),
-            r.rank.to_string(),
-            num(r.pki_sd),
-            r.n_censored.to_string(),
-            neutralise_formula(r.interval_method.as_deref().unwrap_or("")),
-            num(r.ligand_efficiency.map(|b| b.value)),
-            neutralise_formula(r.versus.as_deref().unwrap_or("")),
-            num(r.delta_pki.map(|b| b.value)),
-            r.delta_pki.map_or(String::new(), |b| qualifier(b.qualifier)),
-        ];
-        writer.write_record(&record).map_err(serialise)?;
-    }
-    writer.into_inner().map_err(|e| Error::Serialise(e.to_string()))
 }
 
 fn bounded_text(b: Option<Bounded>, digits: usize) -> String {
@@ -478,22 +493,32 @@ pub fn human(rows: &[RankRow], unit: ConcUnit) -> String {
     let mut grid = new_grid(header);
     let mut methods: Vec<&str> = Vec::new();
     for r in rows {
-        let m = methods.iter().position(|m| *m == r.method).unwrap_or_else(|| {
-            methods.push(&r.method);
-            methods.len() - 1
-        }) + 1;
+        let m = if r.method.is_empty() {
+            "—".to_string()
+        } else {
+            let i = methods.iter().position(|m| *m == r.method).unwrap_or_else(|| {
+                methods.push(&r.method);
+                methods.len() - 1
+            });
+            format!("[{}]", i + 1)
+        };
         let constant = match r.ki {
             None => format!("{} —", r.endpoint),
             Some(v) => {
-                let q = if r.qualifier.is_bound() { format!("{} ", r.qualifier) } else { String::new() };
+                let q = if r.qualifier == Qualifier::Equal { String::new() } else { format!("{} ", r.qualifier) };
                 format!("{} {q}{} {unit}", r.endpoint, sig(v, 3))
             }
         };
         let pki = match (r.pki, r.pki_sd) {
             (None, _) => "—".into(),
-            (Some(p), _) if r.qualifier.is_bound() => format!("{} {p:.2}", r.qualifier.reversed()),
-            (Some(p), Some(sd)) => format!("{p:.2} ({sd:.2})"),
-            (Some(p), None) => format!("{p:.2}"),
+            (Some(p), _) if r.pki_qualifier.is_bound() => format!("{} {p:.2}", r.pki_qualifier),
+            (Some(p), sd) => {
+                let q = if r.pki_qualifier == Qualifier::About { "~ " } else { "" };
+                match sd {
+                    Some(sd) => format!("{q}{p:.2} ({sd:.2})"),
+                    None => format!("{q}{p:.2}"),
+                }
+            }
         };
         let n = if r.n_censored > 0 { format!("{} + {} bound", r.n, r.n_censored) } else { r.n.to_string() };
         let interval = match interval_text(r) {
@@ -501,7 +526,7 @@ pub fn human(rows: &[RankRow], unit: ConcUnit) -> String {
             t => t,
         };
         let mut cells = vec![
-            r.rank.to_string(),
+            r.rank.map_or("—".into(), |k| k.to_string()),
             r.compound.clone(),
             r.target.clone(),
             constant,
@@ -510,8 +535,12 @@ pub fn human(rows: &[RankRow], unit: ConcUnit) -> String {
             interval,
             bounded_text(r.ligand_efficiency, 2),
             r.mechanism.clone(),
-            format!("[{m}]"),
-            r.flags.iter().map(|f| f.code.as_str()).collect::<Vec<_>>().join(" "),
+            m,
+            if r.error.is_some() {
+                "ERROR".into()
+            } else {
+                r.flags.iter().map(|f| f.code.as_str()).collect::<Vec<_>>().join(" ")
+            },
         ];
         if versus.is_some() {
             cells.insert(
@@ -526,6 +555,9 @@ pub fn human(rows: &[RankRow], unit: ConcUnit) -> String {
         out.push_str(&format!("[{}] {m}\n", i + 1));
     }
     for r in rows {
+        if let Some(e) = &r.error {
+            out.push_str(&format!("{} on {}: no value: {e}\n", r.compound, r.target));
+        }
         for f in r.flags.iter().filter(|f| f.message != "carried from the input") {
             out.push_str(&format!("{} on {} [{}]: {}\n", r.compound, r.target, f.code, f.message));
         }

@@ -128,7 +128,7 @@ impl Default for Settings {
 pub struct Conversion {
     /// Ki or Kiu.
     pub endpoint: Endpoint,
-    /// `=` for a number, a bound otherwise (never `~`; that becomes a flag).
+    /// `=` for a number, `~` for an approximate one (also flagged), a bound otherwise.
     pub qualifier: Qualifier,
     /// The constant, mol/L.
     pub ki: f64,
@@ -277,7 +277,7 @@ pub fn convert(m: &Measurement, c: &Conditions, settings: &Settings) -> Result<C
     if !(ki.is_finite() && ki >= f64::MIN_POSITIVE) {
         return Err(Problem::OutOfRange { ic50: corrected, factor });
     }
-    // An approximate IC50 (`~`, e.g. Hill held) gives an approximate Ki, never an exact one.
+    // `~` stays `~`: an approximate IC50 gives an approximate Ki (DESIGN §3), flagged too.
     let qualifier = m.qualifier;
     let (low, high, interval_method) = if m.qualifier.is_bound() {
         (None, None, None)

@@ -98,6 +98,7 @@ impl Table {
             std::fs::File::open(path).and_then(|mut f| f.read_to_end(&mut bytes))
         };
         read.map_err(|source_err| Error::Read { path: source.clone(), source: source_err })?;
+        super::provenance::record_bytes(path, &bytes);
         let delimiter = if path.ends_with(".tsv") || path.ends_with(".tab") { b'\t' } else { b',' };
         Table::parse(&source, &bytes, delimiter)
     }

@@ -4,6 +4,7 @@ pub mod identity;
 pub mod input;
 pub mod line_endings;
 pub mod output;
+pub mod provenance;
 pub mod stream;
 
 pub use input::{ColumnSpec, Table};

@@ -72,11 +72,82 @@ pub(crate) fn refuse_inputs(path: &Path, inputs: &[&str]) -> Result<()> {
 
 /// Makes a text cell safe to open in a spreadsheet: a cell that starts with
 /// `= + - @`, tab or carriage return would be run as a formula, so it gets a
-/// leading apostrophe (OWASP, "CSV Injection", recommended mitigation).
+/// leading apostrophe (OWASP, "CSV Injection", recommended mitigation). A cell
+/// that is a plain number (`-1.08`, `+3`, `1e-9`) is left alone: a spreadsheet
+/// reads it as that number, and an apostrophe would turn it into text.
 pub fn neutralise_formula(text: &str) -> String {
     match text.chars().next() {
-        Some('=' | '+' | '-' | '@' | '\t' | '\r') => format!("'{text}"),
+        Some('=' | '+' | '-' | '@' | '\t' | '\r') if !is_plain_number(text) => format!("'{text}"),
         _ => text.to_string(),
+    }
+}
+
+/// A finite decimal number and nothing else (no spaces, no formula syntax).
+fn is_plain_number(text: &str) -> bool {
+    text.bytes().all(|b| b.is_ascii_digit() || matches!(b, b'-' | b'+' | b'.' | b'e' | b'E'))
+        && text.parse::<f64>().is_ok_and(f64::is_finite)
+}
+
+/// A qualifier for a CSV cell, written one way by every export: exact is an
+/// empty cell (a lone `=` would start a spreadsheet formula), everything else
+/// its symbol (`~`, `<`, `<=`, `>`, `>=`).
+pub fn qualifier_cell(q: crate::units::Qualifier) -> String {
+    if q == crate::units::Qualifier::Equal { String::new() } else { q.symbol().to_string() }
+}
+
+/// A number for an export cell: ten significant digits (so that unit
+/// conversions do not print as 49.999999999999986); empty when absent or not finite.
+pub fn export_number(v: Option<f64>) -> String {
+    v.filter(|x| x.is_finite()).map_or(String::new(), |x| {
+        let rounded: f64 = format!("{x:.9e}").parse().unwrap_or(x);
+        format!("{rounded}")
+    })
+}
+
+/// One cell of an exported row: text goes through the formula guard, numbers never do.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Cell {
+    /// Text, guarded.
+    Text(String),
+    /// A number (ten significant digits); empty when absent or not finite.
+    Number(Option<f64>),
+    /// A count; empty when absent.
+    Count(Option<usize>),
+}
+
+impl Cell {
+    /// The cell as written.
+    pub fn render(&self) -> String {
+        match self {
+            Cell::Text(t) => neutralise_formula(t),
+            Cell::Number(v) => export_number(*v),
+            Cell::Count(n) => n.map_or(String::new(), |n| n.to_string()),
+        }
+    }
+}
+
+/// The one CSV writer of the exports: a guarded header row, then rows of [`Cell`]s.
+pub struct CsvExport<W: Write> {
+    writer: csv::Writer<W>,
+}
+
+impl<W: Write> CsvExport<W> {
+    /// Starts the file with its header (each name through the formula guard).
+    pub fn new(out: W, header: &[String]) -> Result<CsvExport<W>> {
+        let mut writer = csv::Writer::from_writer(out);
+        let guarded: Vec<String> = header.iter().map(|h| neutralise_formula(h)).collect();
+        writer.write_record(&guarded).map_err(|e| Error::Serialise(e.to_string()))?;
+        Ok(CsvExport { writer })
+    }
+
+    /// Writes one row.
+    pub fn row(&mut self, cells: &[Cell]) -> Result<()> {
+        self.writer.write_record(cells.iter().map(Cell::render)).map_err(|e| Error::Serialise(e.to_string()))
+    }
+
+    /// Flushes and returns the destination.
+    pub fn finish(self) -> Result<W> {
+        self.writer.into_inner().map_err(|e| Error::Serialise(e.to_string()))
     }
 }
 
@@ -93,7 +164,53 @@ pub fn csv_bytes<T: serde::Serialize>(rows: &[T]) -> Result<Vec<u8>> {
 pub fn json_bytes<T: serde::Serialize>(value: &T) -> Result<Vec<u8>> {
     let mut bytes = serde_json::to_vec_pretty(value).map_err(|e| Error::Serialise(e.to_string()))?;
     bytes.push(b'\n');
-    Ok(bytes)
+    Ok(super::provenance::append_to_json(bytes))
+}
+
+/// A JSON document written a row at a time, laid out exactly as serde_json's
+/// pretty printer lays out the whole document, so that a million results need
+/// not be held in memory. `head` must serialise to an object whose last field
+/// is an empty `results` list; the rows go into that list.
+pub struct JsonRows<W: Write> {
+    out: W,
+    rows: usize,
+}
+
+impl<W: Write> JsonRows<W> {
+    /// Writes everything before the first row.
+    pub fn start(mut out: W, head: &impl serde::Serialize) -> Result<JsonRows<W>> {
+        let text = serde_json::to_string_pretty(head).map_err(|e| Error::Serialise(e.to_string()))?;
+        let Some(prefix) = text.trim_end().strip_suffix('}').map(str::trim_end).and_then(|t| t.strip_suffix("[]"))
+        else {
+            return Err(Error::Serialise("the JSON head does not end with an empty results list".into()));
+        };
+        out.write_all(prefix.as_bytes()).map_err(serialise_io)?;
+        Ok(JsonRows { out, rows: 0 })
+    }
+
+    /// Writes one row.
+    pub fn row(&mut self, row: &impl serde::Serialize) -> Result<()> {
+        let text = serde_json::to_string_pretty(row).map_err(|e| Error::Serialise(e.to_string()))?;
+        let separator = if self.rows == 0 { "[\n    " } else { ",\n    " };
+        self.rows += 1;
+        self.out.write_all(separator.as_bytes()).map_err(serialise_io)?;
+        self.out.write_all(text.replace('\n', "\n    ").as_bytes()).map_err(serialise_io)
+    }
+
+    /// Closes the list and the document, with the run's provenance as its last field.
+    pub fn finish(mut self) -> Result<W> {
+        let list: &str = if self.rows == 0 { "[]\n}\n" } else { "\n  ]\n}\n" };
+        let tail =
+            String::from_utf8(super::provenance::append_to_json(format!("{{\n  \"results\": {list}").into_bytes()))
+                .unwrap_or_default();
+        let tail = tail.strip_prefix("{\n  \"results\": ").unwrap_or(list);
+        self.out.write_all(tail.as_bytes()).map_err(serialise_io)?;
+        Ok(self.out)
+    }
+}
+
+fn serialise_io(e: std::io::Error) -> Error {
+    Error::Serialise(e.to_string())
 }
 
 /// kimech's table look: a thin rule above and below, a dotted rule under the
@@ -138,6 +255,40 @@ mod tests {
         assert_eq!(neutralise_formula("@SUM(A1)"), "'@SUM(A1)");
         assert_eq!(neutralise_formula("\tcmd"), "'\tcmd");
         assert_eq!(neutralise_formula("KX-101"), "KX-101");
+        assert_eq!(neutralise_formula("-1+2"), "'-1+2");
+        assert_eq!(neutralise_formula("-cmd"), "'-cmd");
+        assert_eq!(neutralise_formula("-inf"), "'-inf");
+    }
+
+    #[test]
+    fn numbers_stay_numbers_negative_ones_included() {
+        for n in ["-1.08", "-3", "+2.5", "-1e-9", "0.5"] {
+            assert_eq!(neutralise_formula(n), n);
+        }
+        assert_eq!(Cell::Number(Some(-1.08)).render(), "-1.08");
+        assert_eq!(Cell::Number(Some(f64::NAN)).render(), "");
+        assert_eq!(qualifier_cell(crate::units::Qualifier::Equal), "");
+        assert_eq!(qualifier_cell(crate::units::Qualifier::About), "~");
+    }
+
+    #[test]
+    fn json_rows_match_the_pretty_printer() {
+        #[derive(serde::Serialize)]
+        struct Doc {
+            unit: &'static str,
+            results: Vec<serde_json::Value>,
+        }
+        for rows in [vec![], vec![serde_json::json!({"a": 1, "b": [1, 2]}), serde_json::json!({"a": null})]] {
+            let mut out = JsonRows::start(Vec::new(), &Doc { unit: "nM", results: Vec::new() }).unwrap();
+            for r in &rows {
+                out.row(r).unwrap();
+            }
+            let streamed = out.finish().unwrap();
+            assert_eq!(
+                String::from_utf8(streamed).unwrap(),
+                String::from_utf8(json_bytes(&Doc { unit: "nM", results: rows }).unwrap()).unwrap()
+            );
+        }
     }
 
     #[test]

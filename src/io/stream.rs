@@ -37,6 +37,7 @@ impl RowStream {
             let file = std::fs::File::open(path).map_err(|e| Error::Read { path: source.clone(), source: e })?;
             Box::new(file)
         };
+        let input: Box<dyn Read + Send> = Box::new(super::provenance::HashingReader::new(path, input));
         RowStream::new(&source, input, delimiter_for(path))
     }
 

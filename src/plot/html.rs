@@ -126,15 +126,61 @@ pub fn render(page: &Page) -> String {
     out.push_str("<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n");
     out.push_str(&format!("<title>{}</title>\n<style>{CSS}</style>\n</head>\n<body>\n<main>\n", escape(&page.title)));
     out.push_str(&format!("<h1>{}</h1>\n", escape(&page.title)));
+    let provenance = crate::io::provenance::current();
+    if let Some(p) = &provenance {
+        render_provenance(&mut out, p);
+    }
     for p in &page.intro {
         out.push_str(&format!("<p class=\"lede\">{}</p>\n", escape(p)));
     }
+    // A page of one command shows that command as it was typed, with every option.
+    let typed = provenance.as_ref().filter(|_| page.sections.len() == 1).map(|p| shell_words(&p.command));
     for section in &page.sections {
-        render_section(&mut out, section);
+        match &typed {
+            Some(command) => render_section(&mut out, &Section { command: Some(command.clone()), ..section.clone() }),
+            None => render_section(&mut out, section),
+        }
     }
     out.push_str(&format!("<p class=\"caution\"><strong>Caution.</strong> {}</p>\n", escape(&page.caution)));
     out.push_str("</main>\n</body>\n</html>\n");
     out
+}
+
+/// The provenance record as a table at the top of the page (the same as the JSON's).
+fn render_provenance(out: &mut String, p: &crate::io::provenance::Provenance) {
+    out.push_str("<table class=\"provenance\">\n<caption>Provenance</caption>\n<tbody>\n");
+    let row = |out: &mut String, key: &str, value: String| {
+        out.push_str(&format!("<tr><th scope=\"row\">{key}</th><td>{value}</td></tr>\n"));
+    };
+    row(out, "tool", escape(&p.tool));
+    row(out, "command", format!("<code>{}</code>", escape(&shell_words(&p.command))));
+    row(out, "started (UTC)", escape(&p.started));
+    for input in &p.inputs {
+        row(
+            out,
+            "input",
+            format!(
+                "<code>{}</code> — {} bytes, SHA-256 <code>{}</code>",
+                escape(&input.path),
+                input.bytes,
+                escape(&input.sha256)
+            ),
+        );
+    }
+    out.push_str("</tbody>\n</table>\n");
+}
+
+/// argv as one line a shell would read back: words with spaces or shell
+/// characters in single quotes.
+pub fn shell_words(argv: &[String]) -> String {
+    argv.iter()
+        .map(|w| {
+            let plain = !w.is_empty()
+                && w.chars().all(|c| c.is_ascii_alphanumeric() || "-_./=:,+@%".contains(c) || !c.is_ascii());
+            if plain { w.clone() } else { format!("'{}'", w.replace('\'', "'\\''")) }
+        })
+        .collect::<Vec<_>>()
+        .join(" ")
 }
 
 fn render_section(out: &mut String, section: &Section) {
