@@ -21,7 +21,13 @@ fn run_json(dir: &tempfile::TempDir, text: &str, args: &[&str]) -> Value {
     std::fs::write(&path, text).unwrap();
     let out = common::kimech(dir.path()).args(args).arg(&path).args(["--format", "json"]).output().unwrap();
     assert!(out.status.success() || out.status.code() == Some(3), "{}", String::from_utf8_lossy(&out.stderr));
-    serde_json::from_slice(&out.stdout).unwrap_or_else(|e| panic!("{e}: {}", String::from_utf8_lossy(&out.stdout)))
+    let mut doc: Value =
+        serde_json::from_slice(&out.stdout).unwrap_or_else(|e| panic!("{e}: {}", String::from_utf8_lossy(&out.stdout)));
+    // The provenance record names the input file's bytes, hash and the run's
+    // time: it must differ between scales, and is checked in tests/registry.rs.
+    let provenance = doc.as_object_mut().and_then(|o| o.remove("provenance"));
+    assert!(provenance.is_some(), "every JSON output carries its provenance");
+    doc
 }
 
 /// How a quantity moves when the response is multiplied by f: by f^power.

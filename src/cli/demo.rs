@@ -5,7 +5,7 @@
 use std::path::PathBuf;
 
 use super::{OutputArgs, ic50, ki, km, mode, rank, rates};
-use crate::error::{Error, Result};
+use crate::error::Result;
 use crate::io::{Format, Table};
 use crate::plot::html::{Block, Page, Section, without_caution};
 

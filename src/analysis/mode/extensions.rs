@@ -215,7 +215,7 @@ fn describe(
             high: crate::fit::intervals::Bound::NotDetermined,
         },
     };
-    ExtensionParams {
+    let params = ExtensionParams {
         vmax: p(0, &units.rate),
         km: p(1, &units.substrate),
         ki: p(2, &units.inhibitor),
@@ -223,7 +223,59 @@ fn describe(
         kiu: Param::new(kiu, kiu_se, kiu_iv, "wald-log", units.inhibitor.clone()),
         beta: (e == Extension::Partial).then(|| p(4, &None)),
         ksi: (e == Extension::SubstrateInhibition).then(|| p(4, &units.substrate)),
+    };
+    if profiled { params } else { without_runaway(params, e, f, data) }
+}
+
+/// How far beyond the tested concentrations (or from α = 1) an estimate may
+/// lie before it counts as having run off to an edge of the model.
+const RUNAWAY_FACTOR: f64 = 1e6;
+
+/// An extension fitted to data it does not describe runs to an edge of its
+/// law (α → ∞ when no ESI forms, Ki → ∞ when no EI forms, Ksi → ∞ with no
+/// substrate inhibition): the constant that ran off has no effect, its value
+/// is wherever the minimiser stopped, and the information matrix is singular
+/// to within rounding, so whether its inverse exists depends on the scale of
+/// the rates. Such a fit's constants are reported as not determined and its
+/// Wald intervals dropped, decided from the estimates against the tested
+/// concentrations, which does not depend on the scale of the response.
+fn without_runaway(mut params: ExtensionParams, e: Extension, f: &Fit, data: &Data<Point>) -> ExtensionParams {
+    let (max_s, max_i) = data.x.iter().fold((0.0f64, 0.0f64), |(s, i), p| (s.max(p.0), i.max(p.1)));
+    let beyond = |v: f64, top: f64| !(v.is_finite() && v <= RUNAWAY_FACTOR * top && v * RUNAWAY_FACTOR >= top);
+    let (ki, alpha) = (f.theta[2], f.theta[3]);
+    let ki_off = beyond(ki, max_i);
+    let alpha_off = beyond(alpha, 1.0);
+    let kiu_off = beyond(ki * alpha, max_i);
+    let ksi_off = e == Extension::SubstrateInhibition && beyond(f.theta[4], max_s);
+    if !(ki_off || alpha_off || kiu_off || ksi_off) {
+        return params;
     }
+    let undetermined = |p: &mut Param, off: bool| {
+        p.se = None;
+        p.low = None;
+        p.high = None;
+        p.note = Some(if off {
+            "not determined: the fit runs to an edge of this model, where this constant has no effect".into()
+        } else {
+            "interval not determined: another constant of this fit runs to an edge of the model".into()
+        });
+        if off {
+            p.value = f64::NAN;
+        }
+    };
+    undetermined(&mut params.vmax, false);
+    undetermined(&mut params.km, false);
+    undetermined(&mut params.ki, ki_off);
+    undetermined(&mut params.alpha, alpha_off);
+    undetermined(&mut params.kiu, kiu_off);
+    // β is the activity of ESI: with Kiu run off, no ESI forms and β has no effect.
+    if let Some(b) = params.beta.as_mut() {
+        undetermined(b, kiu_off || alpha_off);
+    }
+    if let Some(k) = params.ksi.as_mut() {
+        undetermined(k, ksi_off);
+    }
+    params
 }
 
 /// The warning that names a diagnosis, with its constants and evidence.
