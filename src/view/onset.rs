@@ -164,7 +164,11 @@ fn compound_block(r: &OnsetResult) -> String {
     let name = r.compound.as_deref().unwrap_or("the data");
     let mut out = format!("{name}: onset {}", r.onset.name());
     if let Some(rev) = r.reversible {
-        out.push_str(if rev { ", reversible (slow-binding)" } else { ", irreversible (covalent)" });
+        out.push_str(if rev {
+            ", reversible (slow-binding)"
+        } else {
+            ", irreversible within the run (covalent, or a return from the final complex too slow to show)"
+        });
     }
     out.push_str(&format!("; chosen by {}: {}\n", criterion_name(r), r.evidence));
     let (header, rows) = constant_table(r);
