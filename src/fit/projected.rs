@@ -22,6 +22,10 @@
 //! the caller then runs the general engine, which stays the reference:
 //! the tests compare the two on every test curve.
 
+// Indexed loops run over several parallel stack arrays at once; negated
+// comparisons are deliberate: a NaN must fail them and decline the fit.
+#![allow(clippy::needless_range_loop, clippy::neg_cmp_op_on_partial_ord)]
+
 use nalgebra::{Matrix2, Vector2};
 
 use super::engine::{Termination, summarise};
@@ -284,7 +288,7 @@ fn polish(
 /// cannot vouch for its answer; the caller then uses the general engine.
 pub fn fit_logistic_projected(data: &Data<Dose>) -> Option<Fit> {
     let n = data.len();
-    if n > MAX_POINTS || n < 5 {
+    if !(5..=MAX_POINTS).contains(&n) {
         return None;
     }
     let mut ln_x = [0.0; MAX_POINTS];
