@@ -94,7 +94,7 @@ use serde::ser::SerializeMap;
 
 use crate::error::{Error, Result};
 use crate::fit::intervals::{Bound, Interval, profile, t_quantile};
-use crate::fit::{Data, Fit, FitSettings, Model, Scale, fit_small};
+use crate::fit::{Data, Fit, FitSettings, Model, Scale, fit_logistic_projected, fit_small};
 use crate::models::{Dose, Logistic, Morrison};
 use crate::report::Param;
 use crate::units::{ConcUnit, Qualifier, p_value};
@@ -573,9 +573,18 @@ fn fit_held(
     let plausible =
         |f: &Fit| f.r2 >= t.min_r2 && f.theta[Logistic::IC50] > min_pos * 1e-3 && f.theta[Logistic::IC50] < max * 1e3;
     let good = |f: &Fit| f.converged() && plausible(f) && determined(f, &data.y);
-    let starts = model.starts(data);
-    let mut fit = upright(fit_small(&model, data, &starts[..1.min(starts.len())], &fixed, &options.settings));
-    if !good(&fit) && starts.len() > 1 {
+    // The engine's starts are built only when the engine runs.
+    let starts_once = std::cell::OnceCell::new();
+    let starts = || starts_once.get_or_init(|| model.starts(data));
+    // Both asymptotes free: the variable-projection kernel, which declines
+    // (None) whenever it cannot vouch for its answer; then the general engine.
+    let projected = if both_free { fit_logistic_projected(data) } else { None };
+    let mut fit = upright(
+        projected
+            .unwrap_or_else(|| fit_small(&model, data, &starts()[..1.min(starts().len())], &fixed, &options.settings)),
+    );
+    if !good(&fit) && starts().len() > 1 {
+        let starts = starts();
         // The first start may have slid into a degenerate valley another start avoids.
         let rest = upright(fit_small(&model, data, &starts[1..], &fixed, &options.settings));
         let (a, b) = (determined(&fit, &data.y), determined(&rest, &data.y));
