@@ -585,6 +585,11 @@ fn block(r: &ModeResult) -> String {
                 consts.join("; ")
             ));
         }
+    } else if r.headline.basis == crate::analysis::mode::Basis::Diagnosis {
+        out.push_str(&format!(
+            "chosen: {} (a diagnosis beyond the five laws) — its constants are in the headline and the warning below\n",
+            r.chosen
+        ));
     } else {
         out.push_str(&format!("chosen: {} — no Ki is reported\n", r.chosen));
     }
