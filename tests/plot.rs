@@ -480,9 +480,7 @@ fn mode_curves_are_the_chosen_models_global_fit_at_each_inhibitor_level() {
         substrate_unit: None,
         inhibitor_unit: None,
         weighting: kimech::cli::km::WeightingArg::None,
-        criterion: mode::CriterionArg::Aicc,
-        alpha_level: 0.05,
-        confidence: 0.95,
+        choice: kimech::cli::ModelChoiceArgs::default(),
         output: kimech::cli::OutputArgs { format: kimech::io::Format::Table, output: None },
         pictures: kimech::cli::PictureArgs::default(),
     };

@@ -164,9 +164,7 @@ fn mode_file_stage(sections: &mut Vec<Section>, path: &str, text: &str) -> Resul
         substrate_unit: None,
         inhibitor_unit: None,
         weighting: km::WeightingArg::None,
-        criterion: mode::CriterionArg::Aicc,
-        alpha_level: 0.05,
-        confidence: 0.95,
+        choice: super::ModelChoiceArgs::default(),
         output: stdout_table(),
         pictures: super::PictureArgs::default(),
     };

@@ -104,6 +104,28 @@ pub fn parse_fraction(text: &str) -> std::result::Result<f64, String> {
     if c > 0.0 && c < 1.0 { Ok(c) } else { Err(format!("{c} is not between 0 and 1 (exclusive)")) }
 }
 
+/// How a model is chosen among nested candidates, and the confidence of its
+/// intervals: the same three options for `mode` and `onset`.
+#[derive(Debug, Clone, Copy, clap::Args)]
+pub struct ModelChoiceArgs {
+    /// How the model is chosen: aicc (lowest AICc; simplest within 2 units) or f-test (forward F-test steps).
+    #[arg(long, value_enum, default_value_t = mode::CriterionArg::Aicc)]
+    pub criterion: mode::CriterionArg,
+    /// Significance level of the F-test steps (with --criterion f-test).
+    #[arg(long, default_value_t = 0.05, value_parser = parse_fraction)]
+    pub alpha_level: f64,
+    /// Confidence level of the intervals.
+    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
+    pub confidence: f64,
+}
+
+impl Default for ModelChoiceArgs {
+    /// The command-line defaults.
+    fn default() -> Self {
+        ModelChoiceArgs { criterion: mode::CriterionArg::Aicc, alpha_level: 0.05, confidence: 0.95 }
+    }
+}
+
 /// Parses a concentration with its unit, such as `10 nM`, for a flag.
 pub fn parse_flag_concentration(text: &str) -> std::result::Result<crate::units::ConcentrationArg, String> {
     crate::units::ConcentrationArg::parse(text)

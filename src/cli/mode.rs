@@ -6,7 +6,7 @@ use std::collections::HashMap;
 use serde::Serialize;
 
 use super::km::WeightingArg;
-use super::{CAUTION, OutputArgs, finish, parse_fraction};
+use super::{CAUTION, OutputArgs, finish};
 use crate::analysis::mode::{Basis, Criterion, Matrix, ModeResult, ModelResult, Options, Units, analyse};
 use crate::error::{Error, Result};
 use crate::fit::FitSettings;
@@ -39,15 +39,9 @@ pub struct Args {
     /// Residual weighting: none, relative (1/rate²) or sd (1/sd² from the sd column).
     #[arg(long, value_enum, default_value_t = WeightingArg::None)]
     pub weighting: WeightingArg,
-    /// How the model is chosen: aicc (lowest AICc; simplest within 2 units) or f-test (forward F-test steps).
-    #[arg(long, value_enum, default_value_t = CriterionArg::Aicc)]
-    pub criterion: CriterionArg,
-    /// Significance level of the F-test steps (with --criterion f-test).
-    #[arg(long, default_value_t = 0.05, value_parser = parse_fraction)]
-    pub alpha_level: f64,
-    /// Confidence level of the intervals.
-    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
-    pub confidence: f64,
+    /// Model choice and confidence level.
+    #[command(flatten)]
+    pub choice: super::ModelChoiceArgs,
     /// Output format and destination.
     #[command(flatten)]
     pub output: OutputArgs,
@@ -56,7 +50,6 @@ pub struct Args {
     pub pictures: super::PictureArgs,
 }
 
-/// Parses a significance level strictly between 0 and 1.
 /// `--criterion` values.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
 pub enum CriterionArg {
@@ -153,9 +146,9 @@ fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
 pub fn options(args: &Args) -> Options {
     Options {
         weighting: args.weighting.into(),
-        criterion: args.criterion.into(),
-        alpha_level: args.alpha_level,
-        confidence: args.confidence,
+        criterion: args.choice.criterion.into(),
+        alpha_level: args.choice.alpha_level,
+        confidence: args.choice.confidence,
         settings: FitSettings::default(),
     }
 }

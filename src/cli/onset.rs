@@ -2,8 +2,7 @@
 //! progress curves. Reads with [`crate::io::onset`], computes with
 //! [`crate::analysis::onset`], writes with [`crate::view::onset`].
 
-use super::mode::CriterionArg;
-use super::{OutputArgs, finish, parse_flag_concentration, parse_fraction};
+use super::{OutputArgs, finish, parse_flag_concentration};
 use crate::analysis::onset::{Compound, OnsetResult, Options, SubstrateMechanism, analyse};
 use crate::error::{Error, Result};
 use crate::io::onset::{ReadOptions, TimeUnit, read};
@@ -35,15 +34,9 @@ pub struct Args {
     /// How the first binding step relates to the substrate, for KI = KI,app/(…).
     #[arg(long, value_enum, default_value_t = MechanismArg::Competitive)]
     pub mechanism_vs_substrate: MechanismArg,
-    /// How the model is chosen: aicc (lowest AICc; simplest within 2 units) or f-test.
-    #[arg(long, value_enum, default_value_t = CriterionArg::Aicc)]
-    pub criterion: CriterionArg,
-    /// Significance level of the F-test steps (with --criterion f-test).
-    #[arg(long, default_value_t = 0.05, value_parser = parse_fraction)]
-    pub alpha_level: f64,
-    /// Confidence level of the intervals.
-    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
-    pub confidence: f64,
+    /// Model choice and confidence level.
+    #[command(flatten)]
+    pub choice: super::ModelChoiceArgs,
     /// Output format and destination.
     #[command(flatten)]
     pub output: OutputArgs,
@@ -117,9 +110,9 @@ pub fn process(table: &Table, args: &Args) -> Result<Outcome> {
     };
     let input = read(table, &read_options)?;
     let options = Options {
-        criterion: args.criterion.into(),
-        alpha_level: args.alpha_level,
-        confidence: args.confidence,
+        criterion: args.choice.criterion.into(),
+        alpha_level: args.choice.alpha_level,
+        confidence: args.choice.confidence,
         substrate_mechanism: args.mechanism_vs_substrate.into(),
         ..Options::default()
     };
@@ -149,9 +142,7 @@ pub fn default_args(file: &str) -> Args {
         km: None,
         enzyme: None,
         mechanism_vs_substrate: MechanismArg::Competitive,
-        criterion: CriterionArg::Aicc,
-        alpha_level: 0.05,
-        confidence: 0.95,
+        choice: super::ModelChoiceArgs::default(),
         output: OutputArgs { format: crate::io::Format::Table, output: None },
         pictures: super::PictureArgs::default(),
     }
