@@ -120,13 +120,22 @@ pub fn current() -> Option<Provenance> {
             tool: format!("kimech {}", env!("CARGO_PKG_VERSION")),
             command: state.command.clone(),
             started: state.started.clone(),
-            inputs: state
-                .inputs
-                .iter()
-                .map(|r| Input { path: r.path.clone(), sha256: hex(&r.hasher.clone().finalize()), bytes: r.bytes })
-                .collect(),
+            inputs: distinct_inputs(&state.inputs),
         })
     })
+}
+
+/// The inputs, each listed once: a command may read the same file twice (a
+/// first pass to learn the plate controls, for example), which is one input.
+fn distinct_inputs(readings: &[Reading]) -> Vec<Input> {
+    let mut inputs: Vec<Input> = Vec::with_capacity(readings.len());
+    for r in readings {
+        let input = Input { path: r.path.clone(), sha256: hex(&r.hasher.clone().finalize()), bytes: r.bytes };
+        if !inputs.contains(&input) {
+            inputs.push(input);
+        }
+    }
+    inputs
 }
 
 /// SHA-256 of `bytes` as lower-case hex.
