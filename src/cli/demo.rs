@@ -136,7 +136,7 @@ fn km_stage(rate_table: &Table, sections: &mut Vec<Section>) -> Result<()> {
         pictures: super::PictureArgs::default(),
     };
     let outcome = km::process(rate_table, &args)?;
-    print!("{}", km::human(&outcome.results));
+    print!("{}", crate::view::km::human(&outcome.results));
     sections.push(crate::plot::km::section(&outcome.results, &outcome.failures, &km::command_line(&args))?);
     super::finish(&outcome.failures, outcome.total, "series")
 }

@@ -139,15 +139,7 @@ pub fn finish(failures: &[Error], total: usize, what: &'static str) -> Result<()
     if failures.is_empty() { Ok(()) } else { Err(Error::Partial { failed: failures.len(), total, what }) }
 }
 
-/// "line 4" or "lines 4-9": where a group's rows are, for messages.
-pub fn rows_origin(rows: &[&crate::io::input::Record]) -> String {
-    match (rows.first(), rows.last()) {
-        (Some(a), Some(b)) if a.line == b.line => format!("line {}", a.line),
-        (Some(a), Some(b)) => format!("lines {}-{}", a.line, b.line),
-        _ => "no rows".into(),
-    }
-}
+pub use crate::io::input::rows_origin;
 
-/// The sentence every human-readable report ends with.
-pub const CAUTION: &str = "These are research estimates whose validity rests on the stated assumptions \
-(model, weighting, mechanism); follow your laboratory's validated procedures before acting on them.";
+/// The sentence every human-readable report ends with (held by the views).
+pub use crate::view::CAUTION;

@@ -398,3 +398,12 @@ mod tests {
         assert!(e.contains("--d-unit") && e.contains("'d'"), "{e}");
     }
 }
+
+/// "line 4" or "lines 4-9": where a group's rows are, for messages.
+pub fn rows_origin(rows: &[&Record]) -> String {
+    match (rows.first(), rows.last()) {
+        (Some(a), Some(b)) if a.line == b.line => format!("line {}", a.line),
+        (Some(a), Some(b)) => format!("lines {}-{}", a.line, b.line),
+        _ => "no rows".into(),
+    }
+}

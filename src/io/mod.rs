@@ -9,4 +9,5 @@ pub mod stream;
 
 pub use input::{ColumnSpec, Table};
 pub use output::{Format, neutralise_formula, write_output};
+pub mod km;
 pub mod onset;

@@ -16,7 +16,7 @@ pub struct Page {
     pub intro: Vec<String>,
     /// One section per command run.
     pub sections: Vec<Section>,
-    /// The caution the page ends with ([`crate::cli::CAUTION`]).
+    /// The caution the page ends with ([`crate::view::CAUTION`]).
     pub caution: String,
 }
 
@@ -68,7 +68,7 @@ pub struct Table {
 /// states once at its end.
 pub fn without_caution(text: &str) -> String {
     let trimmed = text.trim_end();
-    trimmed.strip_suffix(crate::cli::CAUTION).unwrap_or(trimmed).trim_end().to_string()
+    trimmed.strip_suffix(crate::view::CAUTION).unwrap_or(trimmed).trim_end().to_string()
 }
 
 /// Escapes text for HTML element content and attribute values.

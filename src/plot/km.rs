@@ -164,9 +164,9 @@ pub fn section(results: &[KmResult], failures: &[Error], command: &str) -> Resul
     for r in results {
         blocks.push(Block::Heading(format!("Michaelis–Menten fit — {}", series_name(r))));
         let level = format!("{:.0}%", r.confidence * 100.0);
-        let (header, rows) = (crate::cli::km::param_header(r.confidence), crate::cli::km::param_rows(r));
+        let (header, rows) = (crate::view::km::param_header(r.confidence), crate::view::km::param_rows(r));
         blocks.push(Block::Table(Table { header, rows }));
-        blocks.push(Block::Paragraph(format!("{}.", crate::cli::km::fit_summary(r))));
+        blocks.push(Block::Paragraph(format!("{}.", crate::view::km::fit_summary(r))));
         for note in [&r.params.vmax.note, &r.params.km.note].into_iter().flatten() {
             blocks.push(Block::Paragraph(format!("Note: {note}")));
         }

@@ -2,9 +2,9 @@
 //! computes; nothing outside `cli` imports from `cli`, so the sentence every
 //! human-readable report ends with is held here for the views.
 
+pub mod km;
 pub mod onset;
 
-/// The sentence every human-readable report ends with (the same words as
-/// `cli::CAUTION`, which the older commands use).
+/// The sentence every human-readable report ends with.
 pub const CAUTION: &str = "These are research estimates whose validity rests on the stated assumptions \
 (model, weighting, mechanism); follow your laboratory's validated procedures before acting on them.";
