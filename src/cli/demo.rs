@@ -110,7 +110,7 @@ fn rates_stage(sections: &mut Vec<Section>) -> Result<Table> {
         output: stdout_table(),
     };
     let outcome = rates::process(&input, &args)?;
-    let text = String::from_utf8_lossy(&rates::render(&outcome, Format::Table)?).into_owned();
+    let text = String::from_utf8_lossy(&crate::view::rates::render(&outcome.table, Format::Table)?).into_owned();
     print!("{text}");
     println!();
     sections.push(text_section(
@@ -119,7 +119,7 @@ fn rates_stage(sections: &mut Vec<Section>) -> Result<Table> {
         &text,
     ));
     super::finish(&outcome.failures, outcome.total, "curves")?;
-    Table::parse("rates.csv", &rates::render(&outcome, Format::Csv)?, b',')
+    Table::parse("rates.csv", &crate::view::rates::render(&outcome.table, Format::Csv)?, b',')
 }
 
 /// Stage 2: initial rates → Km, Vmax, kcat.

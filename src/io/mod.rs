@@ -11,3 +11,4 @@ pub use input::{ColumnSpec, Table};
 pub use output::{Format, neutralise_formula, write_output};
 pub mod km;
 pub mod onset;
+pub mod rates;

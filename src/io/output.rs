@@ -111,6 +111,10 @@ pub enum Cell {
     Text(String),
     /// A number (ten significant digits); empty when absent or not finite.
     Number(Option<f64>),
+    /// A number with every digit it has (the shortest text that reads back
+    /// as the same f64), for values another command reads again; empty when
+    /// absent or not finite.
+    Full(Option<f64>),
     /// A count; empty when absent.
     Count(Option<usize>),
 }
@@ -121,6 +125,7 @@ impl Cell {
         match self {
             Cell::Text(t) => neutralise_formula(t),
             Cell::Number(v) => export_number(*v),
+            Cell::Full(v) => v.filter(|x| x.is_finite()).map_or(String::new(), |x| format!("{x}")),
             Cell::Count(n) => n.map_or(String::new(), |n| n.to_string()),
         }
     }

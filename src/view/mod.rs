@@ -4,6 +4,7 @@
 
 pub mod km;
 pub mod onset;
+pub mod rates;
 
 /// The sentence every human-readable report ends with.
 pub const CAUTION: &str = "These are research estimates whose validity rests on the stated assumptions \
