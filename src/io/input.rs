@@ -335,6 +335,15 @@ pub(crate) fn describe_csv_error(e: &csv::Error) -> String {
     }
 }
 
+/// "line 4" or "lines 4-9": where a group's rows are, for messages.
+pub fn rows_origin(rows: &[&Record]) -> String {
+    match (rows.first(), rows.last()) {
+        (Some(a), Some(b)) if a.line == b.line => format!("line {}", a.line),
+        (Some(a), Some(b)) => format!("lines {}-{}", a.line, b.line),
+        _ => "no rows".into(),
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -396,14 +405,5 @@ mod tests {
         let t = table("d\n2\n");
         let e = t.concentration(&t.rows[0], 0, None, "--d-unit").unwrap_err().to_string();
         assert!(e.contains("--d-unit") && e.contains("'d'"), "{e}");
-    }
-}
-
-/// "line 4" or "lines 4-9": where a group's rows are, for messages.
-pub fn rows_origin(rows: &[&Record]) -> String {
-    match (rows.first(), rows.last()) {
-        (Some(a), Some(b)) if a.line == b.line => format!("line {}", a.line),
-        (Some(a), Some(b)) => format!("lines {}-{}", a.line, b.line),
-        _ => "no rows".into(),
     }
 }
