@@ -170,7 +170,7 @@ fn mode_file_stage(sections: &mut Vec<Section>, path: &str, text: &str) -> Resul
     };
     let outcome = mode::analyse_with_matrices(&table, &args)?;
     let results: Vec<_> = outcome.pairs.iter().map(|(r, _)| r.clone()).collect();
-    print!("{}", mode::human(&results));
+    print!("{}", crate::view::mode::human(&results));
     sections.push(mode::report_section(&outcome, &format!("kimech mode {path}"))?);
     super::finish(&outcome.failures, outcome.total, "compounds")
 }

@@ -10,5 +10,6 @@ pub mod stream;
 pub use input::{ColumnSpec, Table};
 pub use output::{Format, neutralise_formula, write_output};
 pub mod km;
+pub mod mode;
 pub mod onset;
 pub mod rates;

@@ -3,6 +3,7 @@
 //! human-readable report ends with is held here for the views.
 
 pub mod km;
+pub mod mode;
 pub mod onset;
 pub mod rates;
 
