@@ -259,14 +259,14 @@ pub fn ki_and_rank_into(tables: &[(&str, &str, ki::Args)], sections: &mut Vec<Se
         println!("\n  $ kimech ki {name}\n");
         let table = crate::io::Table::parse(name, text.as_bytes(), b',')?;
         let (rows, carried, row_failures) = ki::convert_table(&table, args)?;
-        let human = ki::human(&rows);
+        let human = crate::view::ki::human(&rows);
         print!("{human}");
         sections.push(text_section(&format!("Ki from {name}"), &format!("kimech ki {name}"), &human));
         total += rows.len();
         failures.extend(row_failures);
         ki_csv.push((
             format!("{}-ki.csv", name.trim_end_matches(".csv")),
-            ki::render(&rows, &carried, crate::io::Format::Csv)?,
+            crate::view::ki::render(&rows, &carried, crate::io::Format::Csv)?,
         ));
     }
     let names: Vec<&str> = ki_csv.iter().map(|(n, _)| n.as_str()).collect();
@@ -294,7 +294,7 @@ pub fn ki_and_rank_into(tables: &[(&str, &str, ki::Args)], sections: &mut Vec<Se
 
 /// Compounds of the demo data that fail on purpose (see demo-compounds/README.md).
 /// The planted partial inhibitor (KX-113) is refused too, by the message
-/// [`ki::PARTIAL_REFUSED`]: Cheng–Prusoff needs complete inhibition.
+/// [`crate::io::ki::PARTIAL_REFUSED`]: Cheng–Prusoff needs complete inhibition.
 const FAILING_ON_PURPOSE: [&str; 1] = ["'KX-131'"];
 
 /// The demo's own deliberately failing rows are shown, not treated as a failed
@@ -302,7 +302,7 @@ const FAILING_ON_PURPOSE: [&str; 1] = ["'KX-131'"];
 fn expected_failures_only(failures: &[crate::Error], total: usize) -> Result<()> {
     let on_purpose = |f: &crate::Error| {
         let text = f.to_string();
-        text.contains(ki::PARTIAL_REFUSED) || FAILING_ON_PURPOSE.iter().any(|c| text.contains(c))
+        text.contains(crate::io::ki::PARTIAL_REFUSED) || FAILING_ON_PURPOSE.iter().any(|c| text.contains(c))
     };
     let mut unexpected = 0;
     for f in failures {

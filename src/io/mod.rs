@@ -9,6 +9,7 @@ pub mod stream;
 
 pub use input::{ColumnSpec, Table};
 pub use output::{Format, neutralise_formula, write_output};
+pub mod ki;
 pub mod km;
 pub mod mode;
 pub mod onset;
