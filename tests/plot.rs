@@ -449,7 +449,7 @@ fn rank_plots_put_each_compound_at_its_pki_and_draw_bounds_apart() {
 
     let rows: Vec<kimech::analysis::rank::RankRow> = {
         let table = kimech::io::Table::parse("ki.csv", csv.as_bytes(), b',').unwrap();
-        let (entries, _) = kimech::cli::rank::read_entries(&table, None).unwrap();
+        let (entries, _) = kimech::io::rank::read_entries(&table, None).unwrap();
         let options = kimech::analysis::rank::Options { versus: None, confidence: 0.95 };
         kimech::analysis::rank::aggregate(&entries, &options)
     };

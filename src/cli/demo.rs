@@ -4,7 +4,7 @@
 
 use std::path::PathBuf;
 
-use super::{OutputArgs, ic50, ki, km, mode, rank, rates};
+use super::{OutputArgs, ic50, ki, km, mode, rates};
 use crate::error::Result;
 use crate::io::{Format, Table};
 use crate::plot::html::{Block, Page, Section, without_caution};
@@ -278,14 +278,14 @@ pub fn ki_and_rank_into(tables: &[(&str, &str, ki::Args)], sections: &mut Vec<Se
     let mut entries = Vec::new();
     for (n, bytes) in &ki_csv {
         let table = crate::io::Table::parse(n, bytes, b',')?;
-        let (e, f) = rank::read_entries(&table, None)?;
+        let (e, f) = crate::io::rank::read_entries(&table, None)?;
         entries.extend(e);
         failures.extend(f);
     }
     let options = crate::analysis::rank::Options { versus: Some("VRD3".into()), confidence: 0.95 };
     let ranked = crate::analysis::rank::aggregate(&entries, &options);
     let unit = crate::units::ConcUnit::Nanomolar;
-    print!("{}", String::from_utf8_lossy(&rank::render(&ranked, unit, crate::io::Format::Table)?));
+    print!("{}", String::from_utf8_lossy(&crate::view::rank::render(&ranked, unit, crate::io::Format::Table)?));
     let command = format!("kimech rank {} --versus VRD3", names.join(" "));
     sections.push(crate::plot::rank::section(&ranked, unit, &failures, &command)?);
     print_registry_excerpt(&ranked, unit)?;
@@ -324,7 +324,7 @@ fn print_registry_excerpt(ranked: &[crate::analysis::rank::RankRow], unit: crate
         ranked.iter().find(|r| r.error.is_some()),
     ];
     let rows: Vec<_> = pick.into_iter().flatten().cloned().collect();
-    let bytes = rank::render(&rows, unit, crate::io::Format::Csv)?;
+    let bytes = crate::view::rank::render(&rows, unit, crate::io::Format::Csv)?;
     println!("\nRegistry export (`kimech rank … --format csv`; contract in README.md), three of its rows:");
     println!("a two-value group (interval = the range of the two), a bound, and a row that failed:\n");
     print!("{}", String::from_utf8_lossy(&bytes));

@@ -13,4 +13,5 @@ pub mod ki;
 pub mod km;
 pub mod mode;
 pub mod onset;
+pub mod rank;
 pub mod rates;

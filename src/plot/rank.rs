@@ -63,7 +63,7 @@ pub fn group_figure(target: &str, endpoint: &str, rows: &[&RankRow]) -> Result<S
 
 /// The report section of a rank run: the ranked table and one chart per target.
 pub fn section(rows: &[RankRow], unit: ConcUnit, failures: &[Error], command: &str) -> Result<Section> {
-    let table = crate::cli::rank::render(rows, unit, crate::io::Format::Table)?;
+    let table = crate::view::rank::render(rows, unit, crate::io::Format::Table)?;
     let mut blocks = vec![Block::Preformatted(super::html::without_caution(&String::from_utf8_lossy(&table)))];
     for ((target, endpoint), group) in groups(rows) {
         blocks.push(Block::Figure {

@@ -6,6 +6,7 @@ pub mod ki;
 pub mod km;
 pub mod mode;
 pub mod onset;
+pub mod rank;
 pub mod rates;
 
 /// The sentence every human-readable report ends with.
