@@ -26,7 +26,7 @@ fn kimech() -> Command {
 fn conditions(mechanism: Mechanism) -> Conditions {
     Conditions {
         assay: Assay::Enzyme,
-        mechanism,
+        mechanism: Some(mechanism),
         substrate: None,
         km: None,
         km_se: None,
@@ -73,6 +73,19 @@ fn each_relation_matches_hand_worked_numbers_in_mixed_units() {
     assert_relative_eq!(relations::noncompetitive(ic50), 250.0 * NM, max_relative = 1e-14);
     assert_relative_eq!(relations::mixed(ic50, s, km, 4.0), 109.375 * NM, max_relative = 1e-14);
     assert_relative_eq!(relations::binding(40.0 * NM, 2.0 * NM, 0.5 * NM), 8.0 * NM, max_relative = 1e-14);
+}
+
+/// A row whose mechanism column says "none" (what `kimech mode` names a
+/// compound that does not inhibit) keeps its place with an error: no Ki
+/// follows from an IC50 without inhibition.
+#[test]
+fn a_row_stated_as_no_inhibition_is_an_error_row() {
+    let csv = "compound,ic50 (nM),substrate (uM),km (uM),mechanism\nA,100,10,10,none\nB,100,10,10,Non-competitive\n";
+    let (code, rows) = run_json(csv, &[]);
+    assert_eq!(code, 3);
+    assert!(rows[0]["ki"]["value"].is_null());
+    assert!(rows[0]["error"].as_str().unwrap().contains("no inhibition"), "{}", rows[0]["error"]);
+    assert_relative_eq!(rows[1]["ki"]["value"].as_f64().unwrap(), 100.0, max_relative = 1e-12);
 }
 
 /// The same numbers through the command, units written in cells and headers.
@@ -189,7 +202,7 @@ fn morrison_round_trip_recovers_ki_and_shows_the_plain_error() {
         (Mechanism::Noncompetitive, 2.0 * NM),
         (Mechanism::Mixed, 2.0 * NM),
     ] {
-        let kapp = apparent_constant(mechanism, ki_true, s, km, alpha);
+        let kapp = apparent_constant(Some(mechanism), ki_true, s, km, alpha);
         let ic50 = simulated_ic50(enzyme, kapp);
         // Copeland (2013): IC50 = Kapp + Et/2 exactly under the Morrison model.
         assert_relative_eq!(ic50, kapp + enzyme / 2.0, max_relative = 1e-10);
@@ -216,7 +229,7 @@ fn morrison_round_trip_recovers_ki_and_shows_the_plain_error() {
         assert!(off > 1.5, "{mechanism:?}: plain Cheng–Prusoff is {off}-fold off");
     }
     // A weak binder (Ki = 5 µM, Et = 1 nM): the correction is negligible and both agree to 1e-4.
-    let kapp = apparent_constant(Mechanism::Competitive, 5.0 * UM, s, km, alpha);
+    let kapp = apparent_constant(Some(Mechanism::Competitive), 5.0 * UM, s, km, alpha);
     let ic50 = simulated_ic50(1.0 * NM, kapp);
     let c =
         Conditions { substrate: Some(s), km: Some(km), enzyme: Some(1.0 * NM), ..conditions(Mechanism::Competitive) };

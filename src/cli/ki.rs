@@ -9,6 +9,7 @@
 //! from the command-line defaults otherwise.
 
 use super::{OutputArgs, parse_flag_concentration, parse_fraction};
+use crate::convert::relations::parse_stated;
 use crate::convert::{self, Assay, Mechanism, MechanismSource, Settings};
 use crate::error::{Error, Result};
 use crate::io::Table;
@@ -37,14 +38,14 @@ pub struct Args {
     #[arg(long, value_name = "CONC", value_parser = parse_flag_concentration)]
     pub enzyme: Option<ConcentrationArg>,
     /// Mechanism for rows without a 'mechanism' value; unknown gives the competitive Ki, flagged.
-    #[arg(long, value_enum, default_value_t = Mechanism::Unknown)]
-    pub mechanism: Mechanism,
+    #[arg(long, value_enum, default_value_t = MechanismArg::Unknown)]
+    pub mechanism: MechanismArg,
     /// α = Kiu/Kic for mixed inhibition, for rows without an 'alpha' value.
     #[arg(long, value_name = "NUMBER")]
     pub alpha: Option<f64>,
     /// Assay kind for rows without an 'assay' value.
-    #[arg(long, value_enum, default_value_t = Assay::Enzyme)]
-    pub assay: Assay,
+    #[arg(long, value_enum, default_value_t = AssayArg::Enzyme)]
+    pub assay: AssayArg,
     /// Labelled-ligand concentration L (binding assays), e.g. "2 nM".
     #[arg(long, value_name = "CONC", value_parser = parse_flag_concentration)]
     pub ligand: Option<ConcentrationArg>,
@@ -69,6 +70,52 @@ pub struct Args {
     /// Output format and destination.
     #[command(flatten)]
     pub output: OutputArgs,
+}
+
+/// `--mechanism` values: the mechanisms a conversion has a relation for, or unknown.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum MechanismArg {
+    /// Binds free enzyme only (Kic).
+    Competitive,
+    /// Binds the enzyme–substrate complex only (Kiu).
+    Uncompetitive,
+    /// Binds both equally (Kic = Kiu).
+    Noncompetitive,
+    /// Binds both, Kiu = α·Kic.
+    Mixed,
+    /// Not known: the competitive relation is used and flagged.
+    Unknown,
+}
+
+impl MechanismArg {
+    /// The mechanism stated; `None` for unknown.
+    pub fn stated(self) -> Option<Mechanism> {
+        match self {
+            MechanismArg::Competitive => Some(Mechanism::Competitive),
+            MechanismArg::Uncompetitive => Some(Mechanism::Uncompetitive),
+            MechanismArg::Noncompetitive => Some(Mechanism::Noncompetitive),
+            MechanismArg::Mixed => Some(Mechanism::Mixed),
+            MechanismArg::Unknown => None,
+        }
+    }
+}
+
+/// `--assay` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum AssayArg {
+    /// Enzyme activity against substrate S with Michaelis constant Km.
+    Enzyme,
+    /// Displacement of a labelled ligand L with dissociation constant Kd.
+    Binding,
+}
+
+impl From<AssayArg> for Assay {
+    fn from(a: AssayArg) -> Self {
+        match a {
+            AssayArg::Enzyme => Assay::Enzyme,
+            AssayArg::Binding => Assay::Binding,
+        }
+    }
 }
 
 /// Runs `kimech ki`. Rows are read, converted and written one at a time, so
@@ -151,8 +198,8 @@ fn convert_row(
     let compound = table.text(record, cols.compound).to_string();
     let mechanism = cols
         .mechanism
-        .and_then(|c| Mechanism::parse(table.text(record, c)).filter(|_| !table.text(record, c).is_empty()))
-        .unwrap_or(args.mechanism);
+        .and_then(|c| parse_stated(table.text(record, c)).filter(|_| !table.text(record, c).is_empty()))
+        .unwrap_or(args.mechanism.stated());
     let mut row = KiRow {
         source: table.source.clone(),
         row: record.line,
@@ -166,14 +213,10 @@ fn convert_row(
         },
         pki: None,
         pki_qualifier: Qualifier::Equal,
-        endpoint: if mechanism == Mechanism::Uncompetitive { "Kiu" } else { "Ki" },
+        endpoint: if mechanism == Some(Mechanism::Uncompetitive) { "Kiu" } else { "Ki" },
         method: "not converted".into(),
-        mechanism: if mechanism == Mechanism::Unknown { "competitive" } else { mechanism.name() },
-        mechanism_source: if mechanism == Mechanism::Unknown {
-            MechanismSource::Assumed
-        } else {
-            MechanismSource::Measured
-        },
+        mechanism: mechanism.map_or("competitive", Mechanism::name),
+        mechanism_source: if mechanism.is_none() { MechanismSource::Assumed } else { MechanismSource::Measured },
         flags: Vec::new(),
         error: None,
         target: cols.target.map(|c| table.text(record, c).to_string()),
@@ -222,7 +265,7 @@ fn defaults(args: &Args) -> Defaults {
         ligand: args.ligand,
         kd: args.kd,
         alpha: args.alpha,
-        mechanism: args.mechanism,
-        assay: args.assay,
+        mechanism: args.mechanism.stated(),
+        assay: args.assay.into(),
     }
 }

@@ -34,11 +34,11 @@ pub fn flags(m: &Measurement, c: &Conditions, settings: &Settings) -> Vec<Warnin
     let mut out = Vec::new();
     tight_binding(m, c, settings, &mut out);
     match (c.mechanism, c.assay) {
-        (Mechanism::Unknown, Assay::Enzyme) => out.push(Warning::new(
+        (None, Assay::Enzyme) => out.push(Warning::new(
             "mechanism-assumed",
             "mechanism not known: the competitive Ki is given (the common default); see the range over the competitive, noncompetitive and uncompetitive relations",
         )),
-        (Mechanism::Unknown, Assay::Binding) => out.push(Warning::new(
+        (None, Assay::Binding) => out.push(Warning::new(
             "mechanism-assumed",
             "mechanism not known: competitive displacement of the labelled ligand is assumed by the binding-assay relation",
         )),
@@ -103,7 +103,7 @@ fn tight_binding(m: &Measurement, c: &Conditions, settings: &Settings, out: &mut
 fn ratio_checks(c: &Conditions, out: &mut Vec<Warning>) {
     let outside = |r: f64| !(0.1..=10.0).contains(&r);
     match c.assay {
-        Assay::Enzyme if c.mechanism != Mechanism::Noncompetitive => {
+        Assay::Enzyme if c.mechanism != Some(Mechanism::Noncompetitive) => {
             if let (Some(s), Some(km)) = (c.substrate, c.km)
                 && outside(s / km)
             {

@@ -30,7 +30,7 @@ use crate::report::Warning;
 use crate::units::Qualifier;
 
 /// The kind of assay the IC50 came from.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, clap::ValueEnum)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Assay {
     /// Enzyme activity against substrate S with Michaelis constant Km.
@@ -88,8 +88,9 @@ pub struct Measurement {
 pub struct Conditions {
     /// Enzyme or binding assay.
     pub assay: Assay,
-    /// The mechanism to convert under.
-    pub mechanism: Mechanism,
+    /// The mechanism to convert under; `None` when not known (the
+    /// competitive relation is then used, flagged, with the range over the others).
+    pub mechanism: Option<Mechanism>,
     /// Substrate concentration S.
     pub substrate: Option<f64>,
     /// Michaelis constant of the substrate.
@@ -174,6 +175,8 @@ pub enum Problem {
     },
     /// A binding assay was given a mechanism other than competitive.
     BindingMechanism(Mechanism),
+    /// The mechanism stated is "none": a compound that does not inhibit has no Ki.
+    NoInhibition,
     /// The IC50 is not above Et/2: impossible under any mechanism.
     BelowHalfEnzyme {
         /// The IC50, mol/L.
@@ -210,6 +213,9 @@ impl Problem {
                 "the binding-assay relation assumes competitive displacement of the labelled ligand, but the mechanism is {}",
                 m.name()
             ),
+            Problem::NoInhibition => {
+                "the mechanism is stated as none (no inhibition), so no Ki follows from the IC50".into()
+            }
             Problem::BelowHalfEnzyme { ic50, enzyme } => format!(
                 "the IC50 ({} nM) is not above half the enzyme concentration (Et/2 = {} nM), which no inhibitor can achieve (Morrison 1969)",
                 crate::io::output::sig(ic50 * 1e9, 4),
@@ -230,6 +236,7 @@ impl Problem {
             Problem::BindingMechanism(_) => {
                 "use --assay enzyme with substrate and Km for this mechanism, or mechanism competitive/unknown".into()
             }
+            Problem::NoInhibition => "state the mechanism the compound inhibits by, or unknown".into(),
             Problem::BelowHalfEnzyme { .. } => {
                 "check the units of the IC50 and of Et, and that Et is the active enzyme concentration".into()
             }
@@ -294,12 +301,8 @@ pub fn convert(m: &Measurement, c: &Conditions, settings: &Settings) -> Result<C
         high,
         interval_method,
         method: relation.method(et.is_some()),
-        mechanism: if c.mechanism == Mechanism::Unknown { Mechanism::Competitive } else { c.mechanism },
-        mechanism_source: if c.mechanism == Mechanism::Unknown {
-            MechanismSource::Assumed
-        } else {
-            MechanismSource::Measured
-        },
+        mechanism: c.mechanism.unwrap_or(Mechanism::Competitive),
+        mechanism_source: if c.mechanism.is_none() { MechanismSource::Assumed } else { MechanismSource::Measured },
         range,
         flags: tight_binding_effect(checks::flags(m, c, settings), m.ic50 * factor, ki),
     })
@@ -339,8 +342,8 @@ enum Relation {
 impl Relation {
     fn choose(c: &Conditions) -> Result<Relation, Problem> {
         if c.assay == Assay::Binding {
-            if !matches!(c.mechanism, Mechanism::Competitive | Mechanism::Unknown) {
-                return Err(Problem::BindingMechanism(c.mechanism));
+            if let Some(m) = c.mechanism.filter(|&m| m != Mechanism::Competitive) {
+                return Err(Problem::BindingMechanism(m));
             }
             let need = |v: Option<f64>, what, column, flag| {
                 v.ok_or(Problem::Missing { what, column, flag, relation: "competitive binding-assay" })
@@ -350,10 +353,11 @@ impl Relation {
             return Ok(Relation::Binding { ligand, kd });
         }
         let name = match c.mechanism {
-            Mechanism::Competitive | Mechanism::Unknown => "competitive",
-            Mechanism::Uncompetitive => "uncompetitive",
-            Mechanism::Noncompetitive => return Ok(Relation::Noncompetitive),
-            Mechanism::Mixed => "mixed",
+            Some(Mechanism::Competitive) | None => "competitive",
+            Some(Mechanism::Uncompetitive) => "uncompetitive",
+            Some(Mechanism::Noncompetitive) => return Ok(Relation::Noncompetitive),
+            Some(Mechanism::Mixed) => "mixed",
+            Some(Mechanism::None) => return Err(Problem::NoInhibition),
         };
         let s = c.substrate.ok_or(Problem::Missing {
             what: "substrate concentration S",
@@ -363,8 +367,8 @@ impl Relation {
         })?;
         let km = c.km.ok_or(Problem::Missing { what: "substrate's Km", column: "km", flag: "--km", relation: name })?;
         Ok(match c.mechanism {
-            Mechanism::Uncompetitive => Relation::Uncompetitive { s, km, km_se: c.km_se },
-            Mechanism::Mixed => {
+            Some(Mechanism::Uncompetitive) => Relation::Uncompetitive { s, km, km_se: c.km_se },
+            Some(Mechanism::Mixed) => {
                 let alpha = c.alpha.ok_or(Problem::Missing {
                     what: "α (Kiu/Kic)",
                     column: "alpha",
@@ -373,7 +377,7 @@ impl Relation {
                 })?;
                 Relation::Mixed { s, km, km_se: c.km_se, alpha }
             }
-            m => Relation::Competitive { s, km, km_se: c.km_se, assumed: m == Mechanism::Unknown },
+            m => Relation::Competitive { s, km, km_se: c.km_se, assumed: m.is_none() },
         })
     }
 

@@ -18,47 +18,16 @@
 //! (Copeland, *Evaluation of Enzyme Inhibitors in Drug Discovery*, 2nd ed.,
 //! 2013), so IC50 − Et/2 replaces IC50 before the relation.
 
-use serde::Serialize;
+/// The one vocabulary of mechanisms (the rate laws of `mode`); a conversion
+/// takes `Option<Mechanism>`, `None` meaning "not known".
+pub use crate::models::inhibition::Mechanism;
 
-/// The inhibition mechanism a relation assumes.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, clap::ValueEnum)]
-#[serde(rename_all = "lowercase")]
-pub enum Mechanism {
-    /// Binds free enzyme only (Kic).
-    Competitive,
-    /// Binds the enzyme–substrate complex only (Kiu).
-    Uncompetitive,
-    /// Binds both equally (Kic = Kiu).
-    Noncompetitive,
-    /// Binds both, Kiu = α·Kic.
-    Mixed,
-    /// Not known: the competitive relation is used and flagged.
-    Unknown,
-}
-
-impl Mechanism {
-    /// Parses a table cell (case-insensitive; `non-competitive` accepted).
-    pub fn parse(text: &str) -> Option<Mechanism> {
-        let t = text.trim().to_ascii_lowercase().replace(['-', ' ', '_'], "");
-        match t.as_str() {
-            "competitive" => Some(Mechanism::Competitive),
-            "uncompetitive" => Some(Mechanism::Uncompetitive),
-            "noncompetitive" => Some(Mechanism::Noncompetitive),
-            "mixed" => Some(Mechanism::Mixed),
-            "unknown" | "" => Some(Mechanism::Unknown),
-            _ => None,
-        }
-    }
-
-    /// The word used in output.
-    pub fn name(self) -> &'static str {
-        match self {
-            Mechanism::Competitive => "competitive",
-            Mechanism::Uncompetitive => "uncompetitive",
-            Mechanism::Noncompetitive => "noncompetitive",
-            Mechanism::Mixed => "mixed",
-            Mechanism::Unknown => "unknown",
-        }
+/// Parses a mechanism as a table cell or flag states it: `Some(None)` for
+/// `unknown` or an empty cell, `None` when the text names no mechanism.
+pub fn parse_stated(text: &str) -> Option<Option<Mechanism>> {
+    match text.trim().to_ascii_lowercase().as_str() {
+        "unknown" | "" => Some(None),
+        _ => Mechanism::parse(text).map(Some),
     }
 }
 
@@ -99,12 +68,14 @@ pub fn tight_binding_corrected(ic50: f64, enzyme: f64) -> Option<f64> {
 /// (DESIGN §4): competitive Ki(1 + S/Km), uncompetitive Kiu(1 + Km/S),
 /// noncompetitive Ki, mixed (Km + S)/(Km/Ki + S/(αKi)). For `Unknown` the
 /// competitive form. `ki` is Kiu for the uncompetitive mechanism.
-pub fn apparent_constant(mechanism: Mechanism, ki: f64, s: f64, km: f64, alpha: f64) -> f64 {
+pub fn apparent_constant(mechanism: Option<Mechanism>, ki: f64, s: f64, km: f64, alpha: f64) -> f64 {
     match mechanism {
-        Mechanism::Competitive | Mechanism::Unknown => ki * (1.0 + s / km),
-        Mechanism::Uncompetitive => ki * (1.0 + km / s),
-        Mechanism::Noncompetitive => ki,
-        Mechanism::Mixed => (km + s) / (km / ki + s / (alpha * ki)),
+        Some(Mechanism::Competitive) | None => ki * (1.0 + s / km),
+        Some(Mechanism::Uncompetitive) => ki * (1.0 + km / s),
+        Some(Mechanism::Noncompetitive) => ki,
+        Some(Mechanism::Mixed) => (km + s) / (km / ki + s / (alpha * ki)),
+        // No inhibition: no concentration halves the rate.
+        Some(Mechanism::None) => f64::INFINITY,
     }
 }
 
@@ -133,8 +104,9 @@ mod tests {
 
     #[test]
     fn parses_mechanism_words() {
-        assert_eq!(Mechanism::parse("Non-competitive"), Some(Mechanism::Noncompetitive));
-        assert_eq!(Mechanism::parse(""), Some(Mechanism::Unknown));
-        assert_eq!(Mechanism::parse("allosteric"), None);
+        assert_eq!(parse_stated("Non-competitive"), Some(Some(Mechanism::Noncompetitive)));
+        assert_eq!(parse_stated(""), Some(None));
+        assert_eq!(parse_stated("Unknown"), Some(None));
+        assert_eq!(parse_stated("allosteric"), None);
     }
 }

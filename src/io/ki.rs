@@ -4,6 +4,7 @@
 //! Conditions come from columns where present (a non-empty cell wins) and
 //! from the defaults (the command-line values) otherwise.
 
+use crate::convert::relations::parse_stated;
 use crate::convert::{Assay, Conditions, Measurement, Mechanism};
 use crate::error::{Error, Result};
 use crate::io::input::{ColumnSpec, Record, Table};
@@ -53,8 +54,8 @@ pub struct Defaults {
     pub kd: Option<ConcentrationArg>,
     /// α for mixed inhibition.
     pub alpha: Option<f64>,
-    /// Mechanism.
-    pub mechanism: Mechanism,
+    /// Mechanism (`None`: not known).
+    pub mechanism: Option<Mechanism>,
     /// Assay kind.
     pub assay: Assay,
 }
@@ -254,12 +255,12 @@ pub fn read_row(table: &Table, cols: &Columns, record: &Record, defaults: &Defau
         described.push(format!("alpha = {}", sig(a, 4)));
     }
     let mechanism = match cols.mechanism.map(|c| (c, table.text(record, c))) {
-        Some((c, text)) if !text.is_empty() => Mechanism::parse(text).ok_or_else(|| {
+        Some((c, text)) if !text.is_empty() => parse_stated(text).ok_or_else(|| {
             table.cell_error(
                 record,
                 c,
                 "not a mechanism",
-                "use competitive, uncompetitive, noncompetitive, mixed or unknown",
+                "use competitive, uncompetitive, noncompetitive, mixed, none or unknown",
             )
         })?,
         _ => defaults.mechanism,
