@@ -343,3 +343,22 @@ fn ranks_what_ki_writes() {
     assert!(text.contains("competitive (measured)") && text.contains("Cheng & Prusoff 1973"), "{text}");
     assert!(text.trim_end().ends_with(kimech::cli::CAUTION), "{text}");
 }
+
+/// The HTML report is a document: a summary with counts, the rows that need
+/// attention first, and the ranking as a real table (not preformatted text).
+#[test]
+fn the_report_summarises_and_lists_flagged_rows_first_in_html_tables() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("in.csv");
+    std::fs::write(&input, "compound,target,ki (nM),qualifier\nA,T,10,\nA,T,20,\nB,T,>1000,\nC,T,,\n").unwrap();
+    let report = dir.path().join("r.html");
+    let out = kimech().arg("rank").arg(&input).arg("--report").arg(&report).output().unwrap();
+    assert_eq!(out.status.code(), Some(3), "{}", String::from_utf8_lossy(&out.stderr));
+    let html = std::fs::read_to_string(&report).unwrap();
+    assert!(html.contains("3 rows: 2 ranked, 1 bounds, 1 without a value."), "summary missing");
+    let attention = html.find("Rows with an error or a flag").expect("attention table");
+    let ranking = html.find("Ranking by pKi").expect("ranking table");
+    assert!(attention < ranking);
+    assert!(html[ranking..].contains("<table"));
+    assert!(!html.contains("<pre class=\"table\">Ranking"));
+}

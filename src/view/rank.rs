@@ -72,7 +72,8 @@ pub fn render_to(
     }
 }
 
-fn in_unit(r: &RankRow, unit: ConcUnit) -> RankRow {
+/// A ranked row (Ki in mol/L) with its constants expressed in `unit`.
+pub fn in_unit(r: &RankRow, unit: ConcUnit) -> RankRow {
     let f = |v: Option<f64>| v.map(|m| unit.from_molar(m));
     let each = |list: &[Bounded]| {
         list.iter().map(|b| Bounded { qualifier: b.qualifier, value: unit.from_molar(b.value) }).collect()
@@ -104,8 +105,20 @@ fn bounded_text(b: Option<Bounded>, digits: usize) -> String {
     }
 }
 
-/// The human-readable ranking, with the relations as a legend and every flag in words.
-pub fn human(rows: &[RankRow], unit: ConcUnit) -> String {
+/// The ranking as table cells, shared by the terminal table and the HTML
+/// report: (header, one row of cells per ranked row, the method footnotes
+/// `[k] method` in order of first use).
+pub struct RankTable {
+    /// Column headings.
+    pub header: Vec<String>,
+    /// Cells, one row per ranked row, in ranking order.
+    pub rows: Vec<Vec<String>>,
+    /// The method behind each footnote number.
+    pub methods: Vec<String>,
+}
+
+/// Builds the [`RankTable`] of ranked rows whose constants are in `unit`.
+pub fn rank_table(rows: &[RankRow], unit: ConcUnit) -> RankTable {
     let versus = rows.iter().find_map(|r| r.versus.clone());
     let mut header: Vec<String> =
         ["rank", "compound", "target", "constant", "pKi (SD)", "n", "interval", "LE", "mechanism", "method", "flags"]
@@ -114,49 +127,29 @@ pub fn human(rows: &[RankRow], unit: ConcUnit) -> String {
     if let Some(v) = &versus {
         header.insert(8, format!("ΔpKi vs {v}"));
     }
-    let mut grid = new_grid(header);
-    let mut methods: Vec<&str> = Vec::new();
+    let mut methods: Vec<String> = Vec::new();
+    let mut cells_of_rows = Vec::with_capacity(rows.len());
     for r in rows {
         let m = if r.method.is_empty() {
             "—".to_string()
         } else {
             let i = methods.iter().position(|m| *m == r.method).unwrap_or_else(|| {
-                methods.push(&r.method);
+                methods.push(r.method.clone());
                 methods.len() - 1
             });
             format!("[{}]", i + 1)
-        };
-        let constant = match r.ki {
-            None => format!("{} —", r.endpoint),
-            Some(v) => {
-                let q = if r.qualifier == Qualifier::Equal { String::new() } else { format!("{} ", r.qualifier) };
-                format!("{} {q}{} {unit}", r.endpoint, sig(v, 3))
-            }
-        };
-        let pki = match (r.pki, r.pki_sd) {
-            (None, _) => "—".into(),
-            (Some(p), _) if r.pki_qualifier.is_bound() => format!("{} {p:.2}", r.pki_qualifier),
-            (Some(p), sd) => {
-                let q = if r.pki_qualifier == Qualifier::About { "~ " } else { "" };
-                match sd {
-                    Some(sd) => format!("{q}{p:.2} ({sd:.2})"),
-                    None => format!("{q}{p:.2}"),
-                }
-            }
-        };
-        let n = if r.n_censored > 0 { format!("{} + {} bound", r.n, r.n_censored) } else { r.n.to_string() };
-        let interval = match interval_text(r) {
-            t if t.is_empty() => "—".into(),
-            t => t,
         };
         let mut cells = vec![
             r.rank.map_or("—".into(), |k| k.to_string()),
             r.compound.clone(),
             r.target.clone(),
-            constant,
-            pki,
-            n,
-            interval,
+            constant_text(r, unit),
+            pki_text(r),
+            if r.n_censored > 0 { format!("{} + {} bound", r.n, r.n_censored) } else { r.n.to_string() },
+            match interval_text(r) {
+                t if t.is_empty() => "—".into(),
+                t => t,
+            },
             bounded_text(r.ligand_efficiency, 2),
             r.mechanism.clone(),
             m,
@@ -166,27 +159,70 @@ pub fn human(rows: &[RankRow], unit: ConcUnit) -> String {
                 r.flags.iter().map(|f| f.code.as_str()).collect::<Vec<_>>().join(" ")
             },
         ];
-        if versus.is_some() {
-            cells.insert(
-                8,
-                if r.target == versus.clone().unwrap_or_default() { "".into() } else { bounded_text(r.delta_pki, 2) },
-            );
+        if let Some(v) = &versus {
+            cells.insert(8, if &r.target == v { "".into() } else { bounded_text(r.delta_pki, 2) });
         }
+        cells_of_rows.push(cells);
+    }
+    RankTable { header, rows: cells_of_rows, methods }
+}
+
+fn constant_text(r: &RankRow, unit: ConcUnit) -> String {
+    match r.ki {
+        None => format!("{} —", r.endpoint),
+        Some(v) => {
+            let q = if r.qualifier == Qualifier::Equal { String::new() } else { format!("{} ", r.qualifier) };
+            format!("{} {q}{} {unit}", r.endpoint, sig(v, 3))
+        }
+    }
+}
+
+fn pki_text(r: &RankRow) -> String {
+    match (r.pki, r.pki_sd) {
+        (None, _) => "—".into(),
+        (Some(p), _) if r.pki_qualifier.is_bound() => format!("{} {p:.2}", r.pki_qualifier),
+        (Some(p), sd) => {
+            let q = if r.pki_qualifier == Qualifier::About { "~ " } else { "" };
+            match sd {
+                Some(sd) => format!("{q}{p:.2} ({sd:.2})"),
+                None => format!("{q}{p:.2}"),
+            }
+        }
+    }
+}
+
+/// Every error and flag in words, one line each (`compound on target [code]: message`).
+pub fn row_notes(rows: &[RankRow]) -> Vec<String> {
+    let mut notes = Vec::new();
+    for r in rows {
+        if let Some(e) = &r.error {
+            notes.push(format!("{} on {}: no value: {e}", r.compound, r.target));
+        }
+        for f in r.flags.iter().filter(|f| f.message != "carried from the input") {
+            notes.push(format!("{} on {} [{}]: {}", r.compound, r.target, f.code, f.message));
+        }
+    }
+    notes
+}
+
+/// What the ligand-efficiency column means, with its source.
+pub const LE_NOTE: &str = "LE = 1.37·pKi / heavy atoms, kcal/mol per heavy atom (Hopkins, Groom & Alex 2004).";
+
+/// The human-readable ranking.
+pub fn human(rows: &[RankRow], unit: ConcUnit) -> String {
+    let table = rank_table(rows, unit);
+    let mut grid = new_grid(table.header);
+    for cells in table.rows {
         grid.add_row(cells);
     }
     let mut out = format!("Ranking by pKi (most potent first within each target)\n{grid}\n");
-    for (i, m) in methods.iter().enumerate() {
+    for (i, m) in table.methods.iter().enumerate() {
         out.push_str(&format!("[{}] {m}\n", i + 1));
     }
-    for r in rows {
-        if let Some(e) = &r.error {
-            out.push_str(&format!("{} on {}: no value: {e}\n", r.compound, r.target));
-        }
-        for f in r.flags.iter().filter(|f| f.message != "carried from the input") {
-            out.push_str(&format!("{} on {} [{}]: {}\n", r.compound, r.target, f.code, f.message));
-        }
+    for note in row_notes(rows) {
+        out.push_str(&format!("{note}\n"));
     }
-    out.push_str("LE = 1.37·pKi / heavy atoms, kcal/mol per heavy atom (Hopkins, Groom & Alex 2004).\n\n");
+    out.push_str(&format!("{LE_NOTE}\n\n"));
     out.push_str(CAUTION);
     out.push('\n');
     out
