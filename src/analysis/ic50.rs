@@ -141,7 +141,7 @@ impl Serialize for Carried {
 }
 
 /// How intervals are computed.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum IntervalMethod {
     /// Wald on ln IC50 (fast; the default).
     Wald,
@@ -227,7 +227,7 @@ pub struct Options {
 }
 
 /// What to do with wells the outlier rule marks.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum OutlierMode {
     /// Refit without them and list them (the default).
     Exclude,

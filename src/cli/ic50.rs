@@ -60,8 +60,8 @@ pub struct Args {
     #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
     pub confidence: f64,
     /// IC50 interval: wald (on ln IC50, fast) or profile (likelihood, several refits per curve).
-    #[arg(long, value_enum, default_value_t = IntervalMethod::Wald)]
-    pub intervals: IntervalMethod,
+    #[arg(long, value_enum, default_value_t = IntervalArg::Wald)]
+    pub intervals: IntervalArg,
     /// Flag `hill-steep` above this |Hill coefficient| (common practice).
     #[arg(long, default_value_t = Thresholds::default().hill_steep)]
     pub hill_steep: f64,
@@ -85,8 +85,8 @@ pub struct Args {
     pub min_z_prime: f64,
     /// Wells the outlier rule marks (externally studentized residual beyond the Bonferroni
     /// bound, Cook & Weisberg 1982): exclude and refit, flag only, or keep (plain least squares).
-    #[arg(long, value_enum, default_value_t = OutlierMode::Exclude)]
-    pub outliers: OutlierMode,
+    #[arg(long, value_enum, default_value_t = OutlierArg::Exclude)]
+    pub outliers: OutlierArg,
     /// Family-wise level of the outlier rule, per curve.
     #[arg(long, default_value_t = Thresholds::default().outlier_alpha, value_parser = parse_fraction)]
     pub outlier_alpha: f64,
@@ -119,6 +119,45 @@ pub struct Args {
     pub pictures: super::PictureArgs,
 }
 
+/// `--intervals` values (the core's [`IntervalMethod`] knows no flag).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum IntervalArg {
+    /// Wald on ln IC50 (fast; the default).
+    Wald,
+    /// Profile likelihood for IC50 (or Ki,app): several refits per end.
+    Profile,
+}
+
+impl From<IntervalArg> for IntervalMethod {
+    fn from(a: IntervalArg) -> Self {
+        match a {
+            IntervalArg::Wald => IntervalMethod::Wald,
+            IntervalArg::Profile => IntervalMethod::Profile,
+        }
+    }
+}
+
+/// `--outliers` values (the core's [`OutlierMode`] knows no flag).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum OutlierArg {
+    /// Refit without them and list them (the default).
+    Exclude,
+    /// List them, but fit every well.
+    Flag,
+    /// No outlier rule: plain least squares on every well.
+    Keep,
+}
+
+impl From<OutlierArg> for OutlierMode {
+    fn from(a: OutlierArg) -> Self {
+        match a {
+            OutlierArg::Exclude => OutlierMode::Exclude,
+            OutlierArg::Flag => OutlierMode::Flag,
+            OutlierArg::Keep => OutlierMode::Keep,
+        }
+    }
+}
+
 impl Args {
     /// Arguments for `file` with every default.
     pub fn new(file: &str, format: Format) -> Args {
@@ -131,7 +170,7 @@ impl Args {
             normalise: false,
             enzyme: None,
             confidence: 0.95,
-            intervals: IntervalMethod::Wald,
+            intervals: IntervalArg::Wald,
             hill_steep: defaults.hill_steep,
             hill_shallow: defaults.hill_shallow,
             partial_above: defaults.partial_above,
@@ -139,7 +178,7 @@ impl Args {
             min_r2: defaults.min_r2,
             min_concentrations: defaults.min_concentrations,
             min_z_prime: defaults.min_z_prime,
-            outliers: OutlierMode::Exclude,
+            outliers: OutlierArg::Exclude,
             outlier_alpha: defaults.outlier_alpha,
             max_outliers: defaults.max_outliers,
             flat_alpha: defaults.flat_alpha,
@@ -366,14 +405,14 @@ pub fn run_source_with(
     let percent = response_unit.as_deref() == Some("%");
     let options_for = |unit: ConcUnit| Options {
         percent,
-        outliers: args.outliers,
+        outliers: args.outliers.into(),
         response_unit: response_unit.clone(),
         fix_lower: args.fix_lower,
         fix_upper: args.fix_upper,
         enzyme: args.enzyme.map(|e| unit.from_molar(e.molar)),
         unit,
         confidence: args.confidence,
-        intervals: args.intervals,
+        intervals: args.intervals.into(),
         thresholds,
         settings: crate::analysis::ic50::screening_settings(),
     };
