@@ -117,3 +117,26 @@ fn the_table_labels_and_the_csv_columns_come_from_one_list() {
     names.dedup();
     assert_eq!(names.len(), before, "column names are unique");
 }
+
+/// The report page's table is the terminal's (one builder, `view::ic50::table_row`).
+#[test]
+fn the_report_table_is_the_terminal_table() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut text = String::from("compound,concentration (nM),response\n");
+    text.push_str(&curve_rows("KX-1", 80.0, ""));
+    text.push_str(&curve_rows("KX-2", 1e8, ""));
+    std::fs::write(dir.path().join("in.csv"), text).unwrap();
+    let out = kimech(dir.path()).args(["ic50", "in.csv", "--report", "r.html"]).output().unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let html = std::fs::read_to_string(dir.path().join("r.html")).unwrap();
+    let terminal = String::from_utf8(out.stdout).unwrap();
+    let context =
+        kimech::view::ic50::Context { unit: kimech::units::ConcUnit::Nanomolar, morrison: false, confidence: 0.95 };
+    let header: String = kimech::view::ic50::table_header(&context).iter().map(|h| format!("<th>{h}</th>")).collect();
+    assert!(html.contains(&format!("<thead><tr>{header}</tr></thead>")), "{html}");
+    for label in kimech::view::ic50::table_header(&context) {
+        assert!(terminal.contains(&label), "{label} missing from the terminal table");
+    }
+    // The bound's row says so the same way in both.
+    assert!(terminal.contains("> 10000") && html.contains("&gt; 10000"), "{terminal}");
+}

@@ -18,7 +18,7 @@ use crate::error::{Error, Result};
 use crate::io::Format;
 use crate::io::ic50::{CurveReader, Input, ReadOptions, read_controls};
 use crate::units::ConcUnit;
-use crate::view::ic50::{Line, StreamWriter, plates_table};
+use crate::view::ic50::{Context, Line, StreamWriter, plates_table, table_header, table_row};
 
 /// Everything a run needs besides its input and output.
 #[derive(Debug, Clone)]
@@ -106,14 +106,15 @@ impl Pictures {
     }
 
     /// Adds a fitted curve: its SVG goes to the plot directory now.
-    fn add(&mut self, curve: Curve, r: Ic50Result) -> Result<()> {
+    fn add(&mut self, curve: Curve, r: Ic50Result, context: &Context) -> Result<()> {
         if let Some(dir) = &self.plot_dir {
             let g = &self.gallery;
             let svg = crate::plot::ic50::figure(&r, &curve, &g.unit, &g.response, g.et)?;
             let name = self.names.next(Some(&r.compound));
             crate::plot::files::write_plots(dir, &[(name, svg.text)], &[&self.input])?;
         }
-        self.gallery.add(curve, r);
+        let row = table_row(&r, context);
+        self.gallery.add(curve, r, row);
         Ok(())
     }
 
@@ -152,9 +153,12 @@ impl Pictures {
             Some(u) => format!("response ({u})"),
             None => "response (unit not given)".into(),
         };
+        let context =
+            Context { unit: options.unit, morrison: options.enzyme.is_some(), confidence: options.confidence };
+        self.gallery.header = table_header(&context);
         for (curve, (r, _)) in kept.into_iter().zip(results) {
             match (curve, r) {
-                (Some(c), Ok(r)) => self.add(c, r.clone())?,
+                (Some(c), Ok(r)) => self.add(c, r.clone(), &context)?,
                 (_, Err(e)) => self.failures.push(e.to_string()),
                 (None, Ok(_)) => {}
             }

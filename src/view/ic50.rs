@@ -462,19 +462,28 @@ impl<'a> StreamWriter<'a> {
     }
 }
 
-/// The terminal table of a batch, with the model and interval method under it.
-pub fn table(results: &[&Ic50Result], context: &Context) -> String {
-    let shown: Vec<Shown> = COLUMNS.iter().filter_map(|c| c.shown).collect();
-    let header = shown
+/// The labels of the table for people (terminal and HTML report alike).
+pub fn table_header(context: &Context) -> Vec<String> {
+    COLUMNS
         .iter()
+        .filter_map(|c| c.shown)
         .map(|s| match s.label {
             Label::Fixed(l) => l.to_string(),
             Label::Made(f) => f(context),
         })
-        .collect();
-    let mut grid = new_grid(header);
+        .collect()
+}
+
+/// One result's row of the table for people (terminal and HTML report alike).
+pub fn table_row(r: &Ic50Result, context: &Context) -> Vec<String> {
+    COLUMNS.iter().filter_map(|c| c.shown).map(|s| (s.text)(r, context)).collect()
+}
+
+/// The terminal table of a batch, with the model and interval method under it.
+pub fn table(results: &[&Ic50Result], context: &Context) -> String {
+    let mut grid = new_grid(table_header(context));
     for r in results {
-        grid.add_row(shown.iter().map(|s| (s.text)(r, context)).collect::<Vec<_>>());
+        grid.add_row(table_row(r, context));
     }
     let method = results.first().map_or("", |r| {
         if context.morrison {
