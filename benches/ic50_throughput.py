@@ -97,7 +97,7 @@ def read_ic50(path, count):
         cols = [header.index(c) for c in ("ic50 (nM)", "hill", "lower", "upper")]
         for row in reader:
             k = int(row[ci][1:])
-            if k < count and row[qi] == "=":
+            if k < count and row[qi] in ("", "="):  # exact: an empty qualifier cell (older builds wrote "=")
                 got[k] = [float(row[c]) for c in cols]
     return got
 

@@ -9,6 +9,7 @@
 #![deny(clippy::float_cmp)]
 
 pub mod analysis;
+pub mod batch;
 pub mod cli;
 pub mod convert;
 pub mod error;

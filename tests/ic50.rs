@@ -8,7 +8,7 @@
 
 use assert_cmd::Command;
 use kimech::analysis::ic50::{
-    Carried, Curve, Ic50Result, IntervalMethod, Options, Thresholds, analyse, screening_settings,
+    Carried, Curve, Ic50Result, IntervalMethod, Location, Options, Thresholds, analyse, screening_settings,
 };
 use kimech::fit::FitSettings;
 use kimech::units::{ConcUnit, Qualifier};
@@ -36,10 +36,9 @@ fn options() -> Options {
 fn curve(name: &str, x: Vec<f64>, y: Vec<f64>) -> Curve {
     Curve {
         compound: name.into(),
-        origin: "test".into(),
+        location: Location::described("test"),
         x,
         y,
-        lines: vec![],
         carried: Carried::default(),
         read_flags: vec![],
     }

@@ -556,7 +556,7 @@ fn ic50_options_mm() -> kimech::analysis::ic50::Options {
 
 #[test]
 fn ic50_curve_is_the_fitted_logistic_with_the_ic50_marked_at_its_midpoint() {
-    use kimech::analysis::ic50::{Carried, Curve, analyse};
+    use kimech::analysis::ic50::{Carried, Curve, Location, analyse};
     // Ryegrass root length vs ferulic acid (Inderjit, Streibig & Olofsdotter 2002; fixtures/README.md),
     // six rows at zero concentration included.
     let (x, y): (Vec<f64>, Vec<f64>) = fixture_text("ryegrass.csv")
@@ -569,10 +569,9 @@ fn ic50_curve_is_the_fitted_logistic_with_the_ic50_marked_at_its_midpoint() {
         .unzip();
     let curve = Curve {
         compound: "ferulic acid".into(),
-        origin: "fixture".into(),
+        location: Location::described("fixture"),
         x,
         y,
-        lines: vec![],
         carried: Carried::default(),
         read_flags: vec![],
     };
@@ -633,7 +632,7 @@ fn ic50_batch_writes_every_curve_a_grid_with_flagged_first_and_a_report() {
 
 #[test]
 fn a_bounded_ic50_is_drawn_with_its_fitted_curve() {
-    use kimech::analysis::ic50::{Carried, Curve, analyse};
+    use kimech::analysis::ic50::{Carried, Curve, Location, analyse};
     use kimech::fit::Model;
     use kimech::models::logistic::{Dose, Logistic};
     // An incomplete curve from the four-parameter logistic itself (DESIGN §4):
@@ -643,10 +642,9 @@ fn a_bounded_ic50_is_drawn_with_its_fitted_curve() {
         x.iter().enumerate().map(|(k, x)| 100.0 / (1.0 + x / 5.0) + if k % 2 == 0 { 0.5 } else { -0.5 }).collect();
     let curve = Curve {
         compound: "short".into(),
-        origin: "fixture".into(),
+        location: Location::described("fixture"),
         x,
         y,
-        lines: vec![],
         carried: Carried::default(),
         read_flags: vec![],
     };

@@ -104,15 +104,12 @@ use crate::units::{ConcUnit, Qualifier, p_value};
 pub struct Curve {
     /// Compound identifier as written.
     pub compound: String,
-    /// Where the rows came from, e.g. `lines 5-16`.
-    pub origin: String,
+    /// Where the wells came from, for messages and to name an excluded well.
+    pub location: Location,
     /// Inhibitor concentrations (0 allowed).
     pub x: Vec<f64>,
     /// Responses (raw, or % activity after normalisation).
     pub y: Vec<f64>,
-    /// The input line of each well (empty when not read from a file), so
-    /// that an excluded well can be named.
-    pub lines: Vec<u64>,
     /// Other columns, one value per compound.
     pub carried: Carried,
     /// Flags found while reading (plate quality, varying carried values).
@@ -122,7 +119,26 @@ pub struct Curve {
 impl Curve {
     /// `compound 'KX-101' (lines 5-16)`, for messages.
     pub fn group(&self) -> String {
-        format!("compound '{}' ({})", self.compound, self.origin)
+        format!("compound '{}' ({})", self.compound, self.location.span)
+    }
+}
+
+/// Where a curve's wells came from. The reader fills it: the tidy-table
+/// reader with the input's line numbers; a reader without lines (a plate
+/// layout, a file of another standard) describes the span its own way and
+/// leaves `lines` empty, and an excluded well is then listed without a line.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct Location {
+    /// The curve's place in the input, for messages: `lines 5-16`.
+    pub span: String,
+    /// The input line of each well, in the order of `x` and `y` (empty when unknown).
+    pub lines: Vec<u64>,
+}
+
+impl Location {
+    /// A curve that was not read from an input (a test, a simulation): `span` names it.
+    pub fn described(span: &str) -> Location {
+        Location { span: span.to_string(), lines: Vec::new() }
     }
 }
 
@@ -141,7 +157,7 @@ impl Serialize for Carried {
 }
 
 /// How intervals are computed.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum IntervalMethod {
     /// Wald on ln IC50 (fast; the default).
     Wald,
@@ -227,7 +243,7 @@ pub struct Options {
 }
 
 /// What to do with wells the outlier rule marks.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum OutlierMode {
     /// Refit without them and list them (the default).
     Exclude,
@@ -625,7 +641,11 @@ impl<T> Pass<T> {
     fn listed(&self, curve: &Curve) -> Vec<Outlier> {
         self.marked
             .iter()
-            .map(|&i| Outlier { line: curve.lines.get(i).copied(), concentration: curve.x[i], response: curve.y[i] })
+            .map(|&i| Outlier {
+                line: curve.location.lines.get(i).copied(),
+                concentration: curve.x[i],
+                response: curve.y[i],
+            })
             .collect()
     }
 }

@@ -338,10 +338,15 @@ pub(crate) fn describe_csv_error(e: &csv::Error) -> String {
 /// "line 4" or "lines 4-9": where a group's rows are, for messages.
 pub fn rows_origin(rows: &[&Record]) -> String {
     match (rows.first(), rows.last()) {
-        (Some(a), Some(b)) if a.line == b.line => format!("line {}", a.line),
-        (Some(a), Some(b)) => format!("lines {}-{}", a.line, b.line),
+        (Some(a), Some(b)) => line_span(a.line, b.line),
         _ => "no rows".into(),
     }
+}
+
+/// "line 4" or "lines 4-9", from a group's first and last line (for readers
+/// that stream and keep no rows).
+pub fn line_span(first: u64, last: u64) -> String {
+    if first == last { format!("line {first}") } else { format!("lines {first}-{last}") }
 }
 
 #[cfg(test)]

@@ -131,6 +131,19 @@ impl Cell {
     }
 }
 
+/// A row whose cells are already rendered (guard applied), so that a parallel
+/// pipeline can format its numbers on the worker threads and leave only the
+/// writing to [`CsvExport::rendered`]. Only [`Cell`]s make one.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct RenderedRow(Vec<String>);
+
+impl RenderedRow {
+    /// Renders `cells`.
+    pub fn new(cells: &[Cell]) -> RenderedRow {
+        RenderedRow(cells.iter().map(Cell::render).collect())
+    }
+}
+
 /// The one CSV writer of the exports: a guarded header row, then rows of [`Cell`]s.
 pub struct CsvExport<W: Write> {
     writer: csv::Writer<W>,
@@ -148,6 +161,11 @@ impl<W: Write> CsvExport<W> {
     /// Writes one row.
     pub fn row(&mut self, cells: &[Cell]) -> Result<()> {
         self.writer.write_record(cells.iter().map(Cell::render)).map_err(|e| Error::Serialise(e.to_string()))
+    }
+
+    /// Writes one row rendered elsewhere.
+    pub fn rendered(&mut self, row: &RenderedRow) -> Result<()> {
+        self.writer.write_record(&row.0).map_err(|e| Error::Serialise(e.to_string()))
     }
 
     /// Flushes and returns the destination.
@@ -274,6 +292,18 @@ mod tests {
         assert_eq!(Cell::Number(Some(f64::NAN)).render(), "");
         assert_eq!(qualifier_cell(crate::units::Qualifier::Equal), "");
         assert_eq!(qualifier_cell(crate::units::Qualifier::About), "~");
+    }
+
+    #[test]
+    fn full_numbers_round_trip_and_rendered_rows_keep_the_guard() {
+        assert_eq!(Cell::Full(Some(80.65622605300506)).render(), "80.65622605300506");
+        assert_eq!(Cell::Full(Some(-0.5230419964063273)).render(), "-0.5230419964063273");
+        assert_eq!(Cell::Full(Some(f64::INFINITY)).render(), "");
+        let row = RenderedRow::new(&[Cell::Text("=1+2".into()), Cell::Full(Some(-1.5)), Cell::Text("a,b".into())]);
+        let mut export = CsvExport::new(Vec::new(), &["=SUM(A1)".into(), "x".into(), "y".into()]).unwrap();
+        export.rendered(&row).unwrap();
+        let bytes = export.finish().unwrap();
+        assert_eq!(String::from_utf8(bytes).unwrap(), "'=SUM(A1),x,y\n'=1+2,-1.5,\"a,b\"\n");
     }
 
     #[test]

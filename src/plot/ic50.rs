@@ -139,7 +139,9 @@ pub struct Gallery {
     pub total: usize,
     /// Flagged results seen.
     pub total_flagged: usize,
-    /// Report table rows.
+    /// Report table header, from the view (the terminal table's).
+    pub header: Vec<String>,
+    /// Report table rows, from the view.
     pub rows: Vec<Vec<String>>,
     /// Concentration unit symbol.
     pub unit: String,
@@ -159,6 +161,7 @@ impl Gallery {
             plain: Vec::new(),
             total: 0,
             total_flagged: 0,
+            header: Vec::new(),
             rows: Vec::new(),
             unit: String::new(),
             response: "response".into(),
@@ -166,12 +169,12 @@ impl Gallery {
         }
     }
 
-    /// Adds one fitted curve.
-    pub fn add(&mut self, curve: Curve, r: Ic50Result) {
+    /// Adds one fitted curve with its row of the report table (built by the
+    /// view, so that the report and the terminal show the same table).
+    pub fn add(&mut self, curve: Curve, r: Ic50Result, row: Vec<String>) {
         self.total += 1;
         if self.rows.len() < self.max_rows {
-            let hill = r.hill.as_ref().map_or("—".into(), |h| sig(h.value, 3));
-            self.rows.push(vec![r.compound.clone(), ic50_text(&r, &self.unit), hill, r.flags.join(" ")]);
+            self.rows.push(row);
         }
         let list = if r.flags.is_empty() { &mut self.plain } else { &mut self.flagged };
         if !r.flags.is_empty() {
@@ -193,15 +196,16 @@ impl Gallery {
     }
 }
 
-/// The report section of an ic50 run: a summary table, the plate table when
+/// The report section of an ic50 run: the summary table (the terminal's, from the view), the plate table when
 /// there is one, and the thumbnail grid (flagged first).
 pub fn section(gallery: &Gallery, plates: Option<&str>, failures: &[String], command: &str) -> Result<Section> {
     let mut blocks = Vec::new();
     if let Some(p) = plates {
         blocks.push(Block::Preformatted(super::html::without_caution(p)));
     }
-    let header = ["compound", "IC50 (interval)", "Hill", "flags"].map(String::from).to_vec();
-    blocks.push(Block::Table(super::html::Table { header, rows: gallery.rows.clone() }));
+    if !gallery.rows.is_empty() {
+        blocks.push(Block::Table(super::html::Table { header: gallery.header.clone(), rows: gallery.rows.clone() }));
+    }
     if gallery.rows.len() < gallery.total {
         blocks.push(Block::Paragraph(format!(
             "The table shows the first {} of {} compounds; the command's CSV output has all of them.",

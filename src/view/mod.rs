@@ -2,6 +2,7 @@
 //! computes; nothing outside `cli` imports from `cli`, so the sentence every
 //! human-readable report ends with is held here for the views.
 
+pub mod ic50;
 pub mod ki;
 pub mod km;
 pub mod mode;

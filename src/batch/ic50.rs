@@ -1,0 +1,271 @@
+//! The `ic50` run, streamed in bounded memory: the reader
+//! ([`crate::io::ic50`]) yields each contiguous block of one compound as a
+//! curve; curves are fitted in batches on all cores (rayon) while the next
+//! batch is read, and written in input order by the view
+//! ([`crate::view::ic50`]), so memory depends on the batch size and not on
+//! the input, and the output does not depend on the thread count. With
+//! normalisation the input is read twice: once for the control wells of
+//! every plate, once for the curves.
+
+use std::io::Write;
+use std::path::PathBuf;
+
+use rayon::prelude::*;
+
+use super::Progress;
+use crate::analysis::ic50::{Curve, Ic50Result, IntervalMethod, Options, OutlierMode, Thresholds, analyse};
+use crate::error::{Error, Result};
+use crate::io::Format;
+use crate::io::ic50::{CurveReader, Input, ReadOptions, read_controls};
+use crate::units::ConcUnit;
+use crate::view::ic50::{Context, Line, StreamWriter, plates_table, table_header, table_row};
+
+/// Everything a run needs besides its input and output.
+#[derive(Debug, Clone)]
+pub struct Settings {
+    /// How to read.
+    pub read: ReadOptions,
+    /// Output format.
+    pub format: Format,
+    /// Curves per parallel batch (memory and progress granularity).
+    pub batch_size: usize,
+    /// Hold the lower asymptote here (response units).
+    pub fix_lower: Option<f64>,
+    /// Hold the upper asymptote here (response units).
+    pub fix_upper: Option<f64>,
+    /// Total active enzyme, mol/L: fit Morrison's equation.
+    pub enzyme: Option<f64>,
+    /// Confidence level of the intervals.
+    pub confidence: f64,
+    /// Interval method for IC50.
+    pub intervals: IntervalMethod,
+    /// What to do with wells the outlier rule marks.
+    pub outliers: OutlierMode,
+    /// Flag thresholds.
+    pub thresholds: Thresholds,
+}
+
+/// What a run did, for the exit status.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct Summary {
+    /// Compounds seen.
+    pub total: usize,
+    /// Compounds (and control rows) that could not be processed.
+    pub failed: usize,
+    /// Control rows not used (no normalisation was asked for).
+    pub unused_controls: usize,
+}
+
+impl Summary {
+    /// `Partial` when something failed.
+    pub fn into_result(self) -> Result<()> {
+        if self.failed == 0 {
+            Ok(())
+        } else {
+            Err(Error::Partial { failed: self.failed, total: self.total, what: "compounds or control rows" })
+        }
+    }
+}
+
+/// Thumbnails shown in the grid and the report at most (flagged first).
+const GALLERY_CAP: usize = 60;
+/// Compounds listed in the report's table at most.
+const REPORT_ROWS: usize = 500;
+
+/// What the pictures and the report page collect while the curves stream
+/// past: every curve's SVG is written into the plot directory as it is
+/// fitted; a capped gallery is kept for the grid and the report.
+pub struct Pictures {
+    /// Thumbnails and table rows.
+    pub gallery: crate::plot::ic50::Gallery,
+    /// The plate table (with normalisation).
+    pub plates: Option<String>,
+    /// Messages of compounds that failed.
+    pub failures: Vec<String>,
+    names: crate::plot::files::Names,
+    plot_dir: Option<PathBuf>,
+    report: Option<PathBuf>,
+    input: String,
+}
+
+impl Pictures {
+    /// Empty, for a run on `input` writing SVGs into `plot_dir` and the page to `report`.
+    pub fn new(input: &str, plot_dir: Option<PathBuf>, report: Option<PathBuf>) -> Pictures {
+        let mut names = crate::plot::files::Names::new("ic50");
+        // Reserved first, so a compound named "overview" cannot take the grid's name.
+        let _ = names.next(Some("overview"));
+        Pictures {
+            gallery: crate::plot::ic50::Gallery::new(GALLERY_CAP, REPORT_ROWS),
+            plates: None,
+            failures: Vec::new(),
+            names,
+            plot_dir,
+            report,
+            input: input.to_string(),
+        }
+    }
+
+    /// Adds a fitted curve: its SVG goes to the plot directory now.
+    fn add(&mut self, curve: Curve, r: Ic50Result, context: &Context) -> Result<()> {
+        if let Some(dir) = &self.plot_dir {
+            let g = &self.gallery;
+            let svg = crate::plot::ic50::figure(&r, &curve, &g.unit, &g.response, g.et)?;
+            let name = self.names.next(Some(&r.compound));
+            crate::plot::files::write_plots(dir, &[(name, svg.text)], &[&self.input])?;
+        }
+        let row = table_row(&r, context);
+        self.gallery.add(curve, r, row);
+        Ok(())
+    }
+
+    /// Writes the grid into the plot directory and the report page.
+    pub fn finish(&self) -> Result<()> {
+        if let Some(dir) = &self.plot_dir
+            && !self.gallery.shown().is_empty()
+        {
+            let grid = self.gallery.grid()?;
+            crate::plot::files::write_plots(dir, &[("ic50-overview.svg".into(), grid.text)], &[&self.input])?;
+        }
+        if let Some(path) = &self.report {
+            let input = &self.input;
+            let page = crate::plot::html::Page {
+                title: format!("kimech ic50 — {input}"),
+                intro: vec![format!("Dose-response fits of {} compound(s) from {input}.", self.gallery.total)],
+                sections: vec![self.section(&format!("kimech ic50 {input}"))?],
+                caution: crate::view::CAUTION.to_string(),
+            };
+            crate::io::write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[input])?;
+        }
+        Ok(())
+    }
+
+    /// The report section of what was collected.
+    pub fn section(&self, command: &str) -> Result<crate::plot::html::Section> {
+        crate::plot::ic50::section(&self.gallery, self.plates.as_deref(), &self.failures, command)
+    }
+
+    /// Hands a fitted batch over (the curves only when kept).
+    fn batch(&mut self, kept: Vec<Option<Curve>>, results: &[Fitted], options: &Options) -> Result<()> {
+        self.gallery.unit = options.unit.symbol().to_string();
+        self.gallery.et = options.enzyme;
+        self.gallery.response = match &options.response_unit {
+            Some(u) if u == "%" => "activity (%)".into(),
+            Some(u) => format!("response ({u})"),
+            None => "response (unit not given)".into(),
+        };
+        let context =
+            Context { unit: options.unit, morrison: options.enzyme.is_some(), confidence: options.confidence };
+        self.gallery.header = table_header(&context);
+        for (curve, (r, _)) in kept.into_iter().zip(results) {
+            match (curve, r) {
+                (Some(c), Ok(r)) => self.add(c, r.clone(), &context)?,
+                (_, Err(e)) => self.failures.push(e.to_string()),
+                (None, Ok(_)) => {}
+            }
+        }
+        Ok(())
+    }
+}
+
+/// A fitted compound and its line in the output format.
+type Fitted = (Result<Ic50Result>, Line);
+
+/// Reads, fits and writes everything from `input` to `out`; messages about
+/// failed compounds go to stderr as they are met (in input order), and a
+/// progress bar when `progress` and stderr is a terminal.
+pub fn run(
+    input: &Input,
+    settings: &Settings,
+    out: &mut dyn Write,
+    progress: bool,
+    mut pictures: Option<&mut Pictures>,
+) -> Result<Summary> {
+    let mut summary = Summary::default();
+    let plates = match settings.read.normalise {
+        true => Some(read_controls(input, settings.thresholds.min_z_prime)?),
+        false => None,
+    };
+    for (plate, e) in plates.iter().flat_map(|p| &p.rejected) {
+        eprintln!("kimech: control well of plate '{plate}' not used: {e}");
+        summary.failed += 1;
+    }
+    let mut reader = CurveReader::new(input, settings.read, plates.as_ref())?;
+    let morrison = settings.enzyme.is_some();
+    let mut writer = StreamWriter::new(out, settings.format, reader.carried(), morrison, settings.confidence);
+    if let Some(p) = &plates {
+        writer.plates(&p.qc)?;
+        if let Some(pics) = pictures.as_deref_mut() {
+            pics.plates = Some(plates_table(&p.qc));
+        }
+    }
+    let response_unit =
+        if settings.read.normalise { Some("%".to_string()) } else { reader.response_unit().map(str::to_string) };
+    let mut bar = Progress::new(progress, input.size());
+    let batch_size = settings.batch_size.max(1);
+    let mut current = reader.next_batch(batch_size)?;
+    while !current.is_empty() {
+        let unit = reader.unit().unwrap_or(ConcUnit::Molar);
+        let options = options(settings, unit, response_unit.clone());
+        // Pictures need the curves after the fit: keep a copy only when asked.
+        let kept: Vec<Option<Curve>> = match pictures {
+            Some(_) => current.iter().map(|c| c.as_ref().ok().cloned()).collect(),
+            None => Vec::new(),
+        };
+        let (next, results) =
+            rayon::join(|| reader.next_batch(batch_size), || fit_batch(current, &options, settings.format));
+        summary.total += results.len();
+        writer.batch(&results, unit)?;
+        if let Some(pics) = pictures.as_deref_mut() {
+            pics.batch(kept, &results, &options)?;
+        }
+        for (result, _) in results {
+            match result {
+                // A missing unit is a property of the input, not of one compound: stop once.
+                Err(e @ Error::NoUnit { .. }) => return Err(e),
+                Err(e) => {
+                    eprintln!("kimech: {e}");
+                    summary.failed += 1;
+                }
+                Ok(_) => {}
+            }
+        }
+        bar.update(reader.bytes_read());
+        current = next?;
+    }
+    bar.finish();
+    summary.unused_controls = reader.unused_controls();
+    writer.finish(plates.as_ref().map(|p| p.qc.as_slice()))?;
+    Ok(summary)
+}
+
+/// The core's options for a batch whose concentrations are in `unit`.
+fn options(settings: &Settings, unit: ConcUnit, response_unit: Option<String>) -> Options {
+    Options {
+        percent: response_unit.as_deref() == Some("%"),
+        outliers: settings.outliers,
+        response_unit,
+        fix_lower: settings.fix_lower,
+        fix_upper: settings.fix_upper,
+        enzyme: settings.enzyme.map(|molar| unit.from_molar(molar)),
+        unit,
+        confidence: settings.confidence,
+        intervals: settings.intervals,
+        thresholds: settings.thresholds,
+        settings: crate::analysis::ic50::screening_settings(),
+    }
+}
+
+fn fit_batch(batch: Vec<Result<Curve>>, options: &Options, format: Format) -> Vec<Fitted> {
+    let morrison = options.enzyme.is_some();
+    batch
+        .into_par_iter()
+        .map(|item| {
+            let result = item.and_then(|curve| analyse(&curve, options));
+            let line = match &result {
+                Ok(r) => Line::of(r, format, morrison),
+                Err(_) => Line::Nothing,
+            };
+            (result, line)
+        })
+        .collect()
+}

@@ -1,0 +1,49 @@
+//! Batch runs at screening scale: read a batch while the last one is fitted
+//! on all cores, write in input order, report progress on a terminal. This
+//! is the plumbing between a reader (`io`), the silent core (`analysis`) and
+//! a view (`view`); it holds no numerics and no command-line flags.
+
+pub mod ic50;
+
+use std::io::IsTerminal;
+
+/// A progress bar on stderr, only for a terminal and only once the job has run a second.
+pub struct Progress {
+    enabled: bool,
+    total: Option<u64>,
+    started: std::time::Instant,
+    bar: Option<indicatif::ProgressBar>,
+}
+
+impl Progress {
+    /// A bar over `total` bytes (a spinner when unknown), shown only when `wanted` and on a terminal.
+    pub fn new(wanted: bool, total: Option<u64>) -> Progress {
+        let enabled = wanted && std::io::stderr().is_terminal();
+        Progress { enabled, total, started: std::time::Instant::now(), bar: None }
+    }
+
+    /// `bytes` of the input have been read.
+    pub fn update(&mut self, bytes: u64) {
+        if !self.enabled || self.started.elapsed().as_secs_f64() < 1.0 {
+            return;
+        }
+        let bar = self.bar.get_or_insert_with(|| {
+            let bar = match self.total {
+                Some(t) => indicatif::ProgressBar::new(t),
+                None => indicatif::ProgressBar::new_spinner(),
+            };
+            let style = indicatif::ProgressStyle::with_template("{bar:40} {bytes}/{total_bytes} read, eta {eta}")
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar());
+            bar.set_style(style);
+            bar
+        });
+        bar.set_position(bytes);
+    }
+
+    /// Clears the bar.
+    pub fn finish(&mut self) {
+        if let Some(bar) = self.bar.take() {
+            bar.finish_and_clear();
+        }
+    }
+}

@@ -1,0 +1,481 @@
+//! The reader of `kimech ic50`: tidy dose-response rows (compound,
+//! concentration, response; optional plate and control) into the core's
+//! [`Curve`]s, one contiguous block of one compound at a time, so that a
+//! million curves stream through in bounded memory.
+//!
+//! Columns, units and located errors come from [`Table`] and [`RowStream`];
+//! this file adds the grouping into curves, the control wells (a first pass
+//! over the input gives each plate's [`PlateQc`], from which a second pass
+//! turns signal into % activity), and the carry-through of every other
+//! column. Each curve's [`Location`] holds its input lines; a reader of
+//! another shape (a plate layout) fills it its own way.
+
+use std::collections::{HashMap, HashSet};
+use std::path::PathBuf;
+
+use crate::analysis::ic50::{Carried, Curve, Location, PlateQc, Wells};
+use crate::error::{Error, Result};
+use crate::io::input::{ColumnSpec, Record, Table, line_span};
+use crate::io::stream::RowStream;
+use crate::units::ConcUnit;
+
+const COMPOUND: ColumnSpec = ColumnSpec::new("compound", &["compound_id", "sample", "id"]);
+const CONCENTRATION: ColumnSpec =
+    ColumnSpec::new("concentration", &["conc", "dose", "inhibitor", "inhibitor_concentration"]);
+const RESPONSE: ColumnSpec = ColumnSpec::new("response", &["signal", "activity", "y", "value"]);
+const PLATE: ColumnSpec = ColumnSpec::new("plate", &["plate_id", "barcode"]);
+const CONTROL: ColumnSpec = ColumnSpec::new("control", &["control_type", "well_type"]);
+
+/// Where rows come from; opened once, or twice with `--normalise`.
+pub enum Input {
+    /// A file path, or `-`.
+    Path(String),
+    /// Bytes in memory (the demo), with the name used in messages.
+    Bytes(&'static [u8], String),
+    /// Stdin spooled to a temporary file, named `<stdin>` in messages.
+    Spooled(PathBuf),
+}
+
+impl Input {
+    /// Stdin copied to a temporary file, so that it can be read twice; the
+    /// returned [`Spool`] removes the file when dropped.
+    pub fn spool_stdin() -> Result<(Input, Spool)> {
+        let path = std::env::temp_dir().join(format!("kimech-ic50-stdin-{}.csv", std::process::id()));
+        let mut file = std::fs::File::create(&path).map_err(|e| Error::Write { path: path.clone(), source: e })?;
+        let spool = Spool(path.clone());
+        std::io::copy(&mut std::io::stdin().lock(), &mut file)
+            .map_err(|e| Error::Read { path: "<stdin>".into(), source: e })?;
+        Ok((Input::Spooled(path), spool))
+    }
+
+    /// A fresh stream of its rows.
+    pub fn open(&self) -> Result<RowStream> {
+        match self {
+            Input::Path(p) => RowStream::open(p),
+            Input::Bytes(b, name) => RowStream::new(name, Box::new(std::io::Cursor::new(*b)), b','),
+            Input::Spooled(p) => {
+                let f = std::fs::File::open(p).map_err(|e| Error::Read { path: "<stdin>".into(), source: e })?;
+                RowStream::new("<stdin>", Box::new(f), b',')
+            }
+        }
+    }
+
+    /// Its size in bytes, when known (for progress).
+    pub fn size(&self) -> Option<u64> {
+        match self {
+            Input::Path(p) if p != "-" => std::fs::metadata(p).ok().map(|m| m.len()),
+            Input::Bytes(b, _) => Some(b.len() as u64),
+            Input::Spooled(p) => std::fs::metadata(p).ok().map(|m| m.len()),
+            _ => None,
+        }
+    }
+}
+
+/// Removes the stdin spool file when done.
+pub struct Spool(PathBuf);
+
+impl Drop for Spool {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_file(&self.0);
+    }
+}
+
+/// How to read.
+#[derive(Debug, Clone, Copy)]
+pub struct ReadOptions {
+    /// Turn signal into % activity from each plate's control wells (needs a control column).
+    pub normalise: bool,
+    /// Unit of concentrations with none in the cell or header.
+    pub concentration_unit: Option<ConcUnit>,
+    /// The flag that sets `concentration_unit`, for messages.
+    pub unit_flag: &'static str,
+}
+
+/// A column carried through to the output unchanged.
+#[derive(Debug, Clone)]
+pub struct CarriedColumn {
+    /// Its index in the input.
+    pub index: usize,
+    /// Its header as written.
+    pub header: String,
+    /// Its key (lower case, no unit), to compare with the output's own column names.
+    pub key: String,
+}
+
+/// Column positions and the carried columns.
+struct Layout {
+    compound: usize,
+    concentration: usize,
+    response: usize,
+    plate: Option<usize>,
+    control: Option<usize>,
+    carried: Vec<CarriedColumn>,
+    header_unit: Option<ConcUnit>,
+}
+
+impl Layout {
+    fn new(table: &Table, options: &ReadOptions) -> Result<Layout> {
+        let compound = table.require(&COMPOUND)?;
+        let concentration = table.require(&CONCENTRATION)?;
+        let response = table.require(&RESPONSE)?;
+        let plate = table.find(&PLATE);
+        let control = if options.normalise { Some(table.require(&CONTROL)?) } else { table.find(&CONTROL) };
+        let used = [Some(compound), Some(concentration), Some(response), plate, control];
+        let carried = (0..table.columns.len())
+            .filter(|c| !used.contains(&Some(*c)))
+            .map(|c| CarriedColumn {
+                index: c,
+                header: table.columns[c].header.clone(),
+                key: table.columns[c].key.clone(),
+            })
+            .collect();
+        let header_unit = table.header_unit(concentration)?.or(options.concentration_unit);
+        Ok(Layout { compound, concentration, response, plate, control, carried, header_unit })
+    }
+}
+
+/// What a row is, from the control column.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Kind {
+    Sample,
+    Uninhibited,
+    Inhibited,
+}
+
+fn kind(table: &Table, row: &Record, col: Option<usize>) -> Result<Kind> {
+    let Some(c) = col else { return Ok(Kind::Sample) };
+    let text = table.text(row, c);
+    if text.is_empty() {
+        Ok(Kind::Sample)
+    } else if text.eq_ignore_ascii_case("uninhibited") {
+        Ok(Kind::Uninhibited)
+    } else if text.eq_ignore_ascii_case("inhibited") {
+        Ok(Kind::Inhibited)
+    } else {
+        Err(table.cell_error(
+            row,
+            c,
+            "not a control kind",
+            "leave it empty for compound wells, or write 'uninhibited' (full activity) or 'inhibited' (no activity)",
+        ))
+    }
+}
+
+/// Per-plate control statistics from a first pass over the input.
+pub struct Plates {
+    index: HashMap<String, usize>,
+    /// Z′ and control levels of each plate, in order of first appearance.
+    pub qc: Vec<PlateQc>,
+    /// Control wells that could not be used: their plate and why.
+    pub rejected: Vec<(String, Error)>,
+}
+
+/// Reads every control well of `input` (the first pass of `--normalise`).
+pub fn read_controls(input: &Input, min_z_prime: f64) -> Result<Plates> {
+    let mut stream = input.open()?;
+    let table = stream.table().clone();
+    let plate_col = table.find(&PLATE);
+    let control_col = Some(table.require(&CONTROL)?);
+    let response_col = table.require(&RESPONSE)?;
+    let mut index: HashMap<String, usize> = HashMap::new();
+    let mut wells: Vec<(String, Wells, Wells)> = Vec::new();
+    let mut rejected = Vec::new();
+    let mut row = Record { line: 0, cells: Vec::new() };
+    while stream.next_into(&mut row)? {
+        let plate = plate_col.map_or("", |c| table.text(&row, c));
+        let k = match index.get(plate) {
+            Some(k) => *k,
+            None => {
+                wells.push((plate.to_string(), Wells::default(), Wells::default()));
+                index.insert(plate.to_string(), wells.len() - 1);
+                wells.len() - 1
+            }
+        };
+        let Ok(which) = kind(&table, &row, control_col) else { continue }; // reported with its compound later
+        if which == Kind::Sample {
+            continue;
+        }
+        match table.number(&row, response_col) {
+            Ok(y) if which == Kind::Uninhibited => wells[k].1.add(y),
+            Ok(y) => wells[k].2.add(y),
+            Err(e) => rejected.push((plate.to_string(), e)),
+        }
+    }
+    let qc = wells.iter().map(|(p, u, i)| PlateQc::new(p, u, i, min_z_prime)).collect();
+    Ok(Plates { index, qc, rejected })
+}
+
+/// Builds curves from contiguous compound blocks of a stream.
+pub struct CurveReader<'a> {
+    stream: RowStream,
+    layout: Layout,
+    plates: Option<&'a Plates>,
+    options: ReadOptions,
+    /// The reporting unit: header or flag, else that of the first concentration read.
+    unit: Option<ConcUnit>,
+    row: Record,
+    pending: bool,
+    done: bool,
+    seen: HashSet<String>,
+    unused_controls: usize,
+}
+
+/// A compound block being read.
+struct Block {
+    compound: String,
+    first: u64,
+    last: u64,
+    x: Vec<f64>,
+    y: Vec<f64>,
+    lines: Vec<u64>,
+    carried: Vec<Vec<String>>,
+    low_z: bool,
+    error: Option<Error>,
+}
+
+impl<'a> CurveReader<'a> {
+    /// Opens `input`; with `plates` (from [`read_controls`]) responses become % activity.
+    pub fn new(input: &Input, options: ReadOptions, plates: Option<&'a Plates>) -> Result<CurveReader<'a>> {
+        let stream = input.open()?;
+        let layout = Layout::new(stream.table(), &options)?;
+        Ok(CurveReader {
+            stream,
+            unit: layout.header_unit,
+            layout,
+            plates,
+            options,
+            row: Record { line: 0, cells: Vec::new() },
+            pending: false,
+            done: false,
+            seen: HashSet::new(),
+            unused_controls: 0,
+        })
+    }
+
+    /// The columns carried through, in input order.
+    pub fn carried(&self) -> &[CarriedColumn] {
+        &self.layout.carried
+    }
+
+    /// The unit the response column's header gives (`%` makes it % activity).
+    pub fn response_unit(&self) -> Option<&str> {
+        self.stream.table().unit_text(self.layout.response)
+    }
+
+    /// The reporting unit of concentrations, once known (header, flag, or first cell read).
+    pub fn unit(&self) -> Option<ConcUnit> {
+        self.unit
+    }
+
+    /// Bytes of the input read so far.
+    pub fn bytes_read(&self) -> u64 {
+        self.stream.bytes_read()
+    }
+
+    /// Control rows skipped because there were no plates to use them for.
+    pub fn unused_controls(&self) -> usize {
+        self.unused_controls
+    }
+
+    /// Reads up to `max` complete compound blocks; a block that cannot be a
+    /// curve is an `Err` in its place, so the rest still come out.
+    pub fn next_batch(&mut self, max: usize) -> Result<Vec<Result<Curve>>> {
+        let mut batch = Vec::with_capacity(max.min(4096));
+        let mut block: Option<Block> = None;
+        while batch.len() < max {
+            if !self.pending && (self.done || !self.stream.next_into(&mut self.row)?) {
+                self.done = true;
+                break;
+            }
+            self.pending = false;
+            let table = self.stream.table();
+            let kind = kind(table, &self.row, self.layout.control);
+            if let Ok(Kind::Uninhibited | Kind::Inhibited) = kind {
+                if self.plates.is_none() {
+                    self.unused_controls += 1;
+                }
+                continue;
+            }
+            let name = table.text(&self.row, self.layout.compound);
+            if block.as_ref().is_some_and(|b| b.compound != name) {
+                // This row starts the next block: finish the current one, keep the row.
+                self.pending = true;
+                if let Some(b) = block.take() {
+                    batch.push(self.finish(b));
+                }
+                continue;
+            }
+            if block.is_none() {
+                block = Some(self.start(name.to_string()));
+            }
+            if let Some(b) = block.as_mut() {
+                let mut row = RowContext {
+                    table: self.stream.table(),
+                    layout: &self.layout,
+                    plates: self.plates,
+                    options: &self.options,
+                    unit: &mut self.unit,
+                    row: &self.row,
+                };
+                row.add_to(b, kind.err());
+            }
+        }
+        // The loop stops on a full batch right after a block was finished, so
+        // an open block here means the input ended.
+        if let Some(b) = block.take() {
+            batch.push(self.finish(b));
+        }
+        Ok(batch)
+    }
+
+    fn start(&mut self, compound: String) -> Block {
+        let line = self.row.line;
+        let mut b = Block {
+            compound,
+            first: line,
+            last: line,
+            x: Vec::new(),
+            y: Vec::new(),
+            lines: Vec::new(),
+            carried: vec![Vec::new(); self.layout.carried.len()],
+            low_z: false,
+            error: None,
+        };
+        if b.compound.is_empty() {
+            b.error = Some(self.stream.table().cell_error(
+                &self.row,
+                self.layout.compound,
+                "empty compound identifier",
+                "every compound well needs a compound; control wells need 'uninhibited' or 'inhibited' in the control column",
+            ));
+        } else if !self.seen.insert(b.compound.clone()) {
+            b.error = Some(Error::Data {
+                group: format!("compound '{}' (line {line})", b.compound),
+                problem: "its rows appear again after rows of other compounds".into(),
+                expected: "rows of one compound must be together; sort the file by compound (the earlier block was fitted on its own)".into(),
+            });
+        }
+        b
+    }
+
+    fn finish(&self, b: Block) -> Result<Curve> {
+        if let Some(e) = b.error {
+            return Err(e);
+        }
+        let mut read_flags = Vec::new();
+        if b.low_z {
+            read_flags.push("plate-z-prime-low");
+        }
+        let carried = self
+            .layout
+            .carried
+            .iter()
+            .zip(b.carried)
+            .map(|(column, values)| {
+                if values.len() > 1 && !read_flags.contains(&"carried-varies") {
+                    read_flags.push("carried-varies");
+                }
+                (column.header.clone(), values.join(";"))
+            })
+            .collect();
+        Ok(Curve {
+            compound: b.compound,
+            location: Location { span: line_span(b.first, b.last), lines: b.lines },
+            x: b.x,
+            y: b.y,
+            carried: Carried(carried),
+            read_flags,
+        })
+    }
+}
+
+/// One row being added to its block, with what it needs from the reader.
+struct RowContext<'r> {
+    table: &'r Table,
+    layout: &'r Layout,
+    plates: Option<&'r Plates>,
+    options: &'r ReadOptions,
+    unit: &'r mut Option<ConcUnit>,
+    row: &'r Record,
+}
+
+impl RowContext<'_> {
+    /// Carries its other columns and, unless the block already failed, adds its well.
+    fn add_to(&mut self, b: &mut Block, row_error: Option<Error>) {
+        b.last = self.row.line;
+        for (k, column) in self.layout.carried.iter().enumerate() {
+            let v = self.table.text(self.row, column.index);
+            if !b.carried[k].iter().any(|s| s == v) {
+                b.carried[k].push(v.to_string());
+            }
+        }
+        if b.error.is_some() {
+            return;
+        }
+        let parsed = row_error.map_or_else(|| self.well(b), Err);
+        if let Err(e) = parsed {
+            b.error = Some(with_compound(e, &b.compound));
+        }
+    }
+
+    fn well(&mut self, b: &mut Block) -> Result<()> {
+        let (table, layout, row) = (self.table, self.layout, self.row);
+        let c =
+            table.concentration(row, layout.concentration, self.options.concentration_unit, self.options.unit_flag)?;
+        if c.qualifier.is_bound() {
+            return Err(table.cell_error(
+                row,
+                layout.concentration,
+                "a qualified concentration",
+                "give the concentration tested, without < or >",
+            ));
+        }
+        if c.molar < 0.0 {
+            return Err(table.cell_error(
+                row,
+                layout.concentration,
+                "negative concentration",
+                "concentrations must be zero (no inhibitor) or positive",
+            ));
+        }
+        let mut y = table.number(row, layout.response)?;
+        if let Some(p) = self.plates {
+            let plate = layout.plate.map_or("", |c| table.text(row, c));
+            let qc = p.index.get(plate).map(|k| &p.qc[*k]);
+            match qc.and_then(|q| q.percent_activity(y).map(|a| (a, q))) {
+                Some((activity, q)) => {
+                    y = activity;
+                    b.low_z |= !q.flags.is_empty();
+                }
+                None => {
+                    let (u, i) = qc.map_or((0, 0), |q| (q.uninhibited_n, q.inhibited_n));
+                    return Err(Error::Data {
+                        group: format!("compound '{}' (line {})", b.compound, row.line),
+                        problem: format!(
+                            "plate '{plate}' has {u} uninhibited and {i} inhibited control wells (or no signal window between them)"
+                        ),
+                        expected:
+                            "--normalise needs both kinds of control well, with different mean signals, on every plate"
+                                .into(),
+                    });
+                }
+            }
+        }
+        let reporting = *self.unit.get_or_insert(c.unit);
+        b.x.push(reporting.from_molar(c.molar));
+        b.y.push(y);
+        b.lines.push(row.line);
+        Ok(())
+    }
+}
+
+/// Puts the compound into a cell error's message, so it names compound and line.
+fn with_compound(e: Error, compound: &str) -> Error {
+    match e {
+        Error::Cell(mut cell) => {
+            cell.problem = format!("compound '{compound}': {}", cell.problem);
+            Error::Cell(cell)
+        }
+        other => other,
+    }
+}

@@ -1,0 +1,560 @@
+//! The views of `kimech ic50`, written while the curves stream past: the
+//! CSV (one row per compound, the table `kimech ki` reads), the JSON (the
+//! result structs as they are, one compact line each) and the terminal table.
+//!
+//! The columns are declared once, in [`COLUMNS`], with name, unit and value;
+//! the CSV header, the CSV rows and the terminal table all come from that
+//! list (a column the table shows says how, under which label). Every CSV
+//! cell goes through the one export writer, [`CsvExport`]: text cells and
+//! headers are guarded against spreadsheet formulas, numbers never are, and
+//! an exact qualifier is an empty cell, as in every other export.
+
+use std::io::Write;
+use std::path::PathBuf;
+
+use super::CAUTION;
+use crate::analysis::ic50::{Ic50Result, PlateQc};
+use crate::error::{Error, Result};
+use crate::io::Format;
+use crate::io::ic50::CarriedColumn;
+use crate::io::output::{Cell, CsvExport, RenderedRow, new_grid, qualifier_cell, sig};
+use crate::report::Param;
+use crate::units::{ConcUnit, Qualifier};
+
+/// What the header and the table need besides a result.
+#[derive(Debug, Clone, Copy)]
+pub struct Context {
+    /// Unit of IC50, its interval and Ki,app.
+    pub unit: ConcUnit,
+    /// Tight-binding fits (`--enzyme`): the Ki,app columns are written and the table shows Ki,app for Hill.
+    pub morrison: bool,
+    /// Confidence level of the intervals.
+    pub confidence: f64,
+}
+
+/// What a column's header carries besides its name.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Unit {
+    /// Nothing (counts, words, response units, fractions).
+    None,
+    /// The concentration unit, as `ic50 (nM)`, so that the next step reads it.
+    Concentration,
+}
+
+/// Which fits have the column.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Models {
+    /// Every fit.
+    All,
+    /// Only Morrison fits (`--enzyme`).
+    Morrison,
+}
+
+/// Which number of a [`Param`] a column holds.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Part {
+    /// The estimate.
+    Value,
+    /// Its standard error.
+    Se,
+    /// The lower end of its interval.
+    Low,
+    /// The upper end of its interval.
+    High,
+}
+
+/// How a row fills a column.
+#[derive(Clone, Copy)]
+pub enum Value {
+    /// A cell made from the result.
+    Cell(fn(&Ic50Result) -> Cell),
+    /// One number of a parameter (empty when the parameter is absent).
+    Param(fn(&Ic50Result) -> Option<&Param>, Part),
+}
+
+/// A table label: fixed, or made from the context (units, confidence level).
+#[derive(Clone, Copy)]
+pub enum Label {
+    /// As written.
+    Fixed(&'static str),
+    /// Made from the context.
+    Made(fn(&Context) -> String),
+}
+
+/// How the terminal table shows a column.
+#[derive(Clone, Copy)]
+pub struct Shown {
+    /// Its label.
+    pub label: Label,
+    /// Its cell, for people.
+    pub text: fn(&Ic50Result, &Context) -> String,
+}
+
+/// One output column: name, unit and value, and whether the table shows it.
+#[derive(Clone, Copy)]
+pub struct Column {
+    /// CSV header name (the unit appended by [`Unit`]).
+    pub name: &'static str,
+    /// What the header carries besides the name.
+    pub unit: Unit,
+    /// Which fits have it.
+    pub models: Models,
+    /// How a row fills it.
+    pub value: Value,
+    /// The terminal table's view of it, if shown.
+    pub shown: Option<Shown>,
+}
+
+impl Column {
+    const fn cell(name: &'static str, value: fn(&Ic50Result) -> Cell) -> Column {
+        Column { name, unit: Unit::None, models: Models::All, value: Value::Cell(value), shown: None }
+    }
+
+    const fn param(name: &'static str, get: fn(&Ic50Result) -> Option<&Param>, part: Part) -> Column {
+        Column { name, unit: Unit::None, models: Models::All, value: Value::Param(get, part), shown: None }
+    }
+
+    const fn concentration(mut self) -> Column {
+        self.unit = Unit::Concentration;
+        self
+    }
+
+    const fn morrison(mut self) -> Column {
+        self.models = Models::Morrison;
+        self
+    }
+
+    const fn shown(mut self, label: Label, text: fn(&Ic50Result, &Context) -> String) -> Column {
+        self.shown = Some(Shown { label, text });
+        self
+    }
+
+    /// Whether fits of this kind have the column.
+    pub fn present(&self, morrison: bool) -> bool {
+        morrison || self.models == Models::All
+    }
+
+    /// Its CSV header.
+    pub fn header(&self, unit: ConcUnit) -> String {
+        match self.unit {
+            Unit::None => self.name.to_string(),
+            Unit::Concentration => format!("{} ({unit})", self.name),
+        }
+    }
+
+    /// Its CSV cell for `r`.
+    pub fn cell_of(&self, r: &Ic50Result) -> Cell {
+        match self.value {
+            Value::Cell(f) => f(r),
+            Value::Param(get, part) => Cell::Full(get(r).and_then(|p| match part {
+                Part::Value => Some(p.value),
+                Part::Se => p.se,
+                Part::Low => p.low,
+                Part::High => p.high,
+            })),
+        }
+    }
+}
+
+fn text(s: impl Into<String>) -> Cell {
+    Cell::Text(s.into())
+}
+
+/// An IC50 (or Ki,app) cell: the number, or its bound as written (`>10000`).
+fn qualified(q: Qualifier, v: f64) -> Cell {
+    match q {
+        Qualifier::Equal => Cell::Full(Some(v)),
+        q => text(format!("{}{}", q.symbol(), Cell::Full(Some(v)).render())),
+    }
+}
+
+/// A concentration or pIC50 for people, with its qualifier (`> 10000`).
+fn people(q: Qualifier, v: String) -> String {
+    match q {
+        Qualifier::Equal => v,
+        q => format!("{} {v}", q.symbol()),
+    }
+}
+
+/// A slope fitted to a curve without its middle is not a measurement: it is
+/// left out of the table the next step reads (JSON keeps it, with the qualifier).
+fn measured_hill(r: &Ic50Result) -> Option<&Param> {
+    r.hill.as_ref().filter(|_| r.qualifier == Qualifier::Equal)
+}
+
+fn upper(r: &Ic50Result) -> Option<&Param> {
+    Some(&r.upper)
+}
+
+fn lower(r: &Ic50Result) -> Option<&Param> {
+    Some(&r.lower)
+}
+
+fn ki_app(r: &Ic50Result) -> Option<&Param> {
+    r.ki_app.as_ref()
+}
+
+/// The table's slope column: Hill, or Ki,app for Morrison fits. Out of
+/// range, neither is measured: show the bound or nothing.
+fn slope_text(r: &Ic50Result, c: &Context) -> String {
+    match (c.morrison, r.qualifier) {
+        (true, q) => r.ki_app.as_ref().map_or("—".into(), |k| people(q, sig(k.value, 4))),
+        (false, Qualifier::Equal) => r.hill.as_ref().map_or("—".into(), |h| sig(h.value, 3)),
+        (false, _) => "—".into(),
+    }
+}
+
+/// The columns before the carried ones, in order.
+pub const COLUMNS: &[Column] = &[
+    Column::cell("compound", |r| text(r.compound.clone())).shown(Label::Fixed("compound"), |r, _| r.compound.clone()),
+    Column::cell("n", |r| Cell::Count(Some(r.n))).shown(Label::Fixed("n"), |r, _| match r.outliers.len() {
+        0 => r.n.to_string(),
+        k => format!("{} (+{k} out)", r.n),
+    }),
+    Column::cell("converged", |r| text(r.converged.to_string())),
+    Column::cell("call", |r| text(r.call.word())).shown(Label::Fixed("call"), |r, _| r.call.word().to_string()),
+    Column::cell("qualifier", |r| text(qualifier_cell(r.qualifier))),
+    Column::cell("ic50", |r| qualified(r.qualifier, r.ic50.value))
+        .concentration()
+        .shown(Label::Made(|c| format!("IC50 ({})", c.unit)), |r, _| people(r.qualifier, sig(r.ic50.value, 4))),
+    Column::cell("ic50_se", |r| Cell::Full(r.ic50.se)),
+    Column::cell("ic50_low", |r| Cell::Full(r.ic50.low)).shown(
+        Label::Made(|c| format!("{:.0}% interval", 100.0 * c.confidence)),
+        |r, _| match r.qualifier.is_bound() {
+            true => "(bound)".into(),
+            false => crate::plot::ic50::interval_text(r.ic50.low, r.ic50.high),
+        },
+    ),
+    Column::cell("ic50_high", |r| Cell::Full(r.ic50.high)),
+    Column::cell("ic50_interval", |r| text(r.ic50.interval)),
+    Column::cell("pic50", |r| Cell::Full(Some(r.pic50)))
+        .shown(Label::Fixed("pIC50"), |r, _| people(r.qualifier.reversed(), format!("{:.2}", r.pic50))),
+    Column::param("hill", measured_hill, Part::Value)
+        .shown(Label::Made(|c| if c.morrison { format!("Ki,app ({})", c.unit) } else { "Hill".into() }), slope_text),
+    Column::param("hill_se", measured_hill, Part::Se),
+    Column::param("hill_low", measured_hill, Part::Low),
+    Column::param("hill_high", measured_hill, Part::High),
+    Column::param("upper", upper, Part::Value).shown(Label::Fixed("upper"), |r, _| sig(r.upper.value, 4)),
+    Column::param("upper_se", upper, Part::Se),
+    Column::param("upper_low", upper, Part::Low),
+    Column::param("upper_high", upper, Part::High),
+    Column::param("lower", lower, Part::Value).shown(Label::Fixed("lower"), |r, _| sig(r.lower.value, 4)),
+    Column::param("lower_se", lower, Part::Se),
+    Column::param("lower_low", lower, Part::Low),
+    Column::param("lower_high", lower, Part::High),
+    Column::cell("residual_sd", |r| Cell::Full(Some(r.residual_sd))),
+    Column::cell("r2", |r| Cell::Full(Some(r.r2))).shown(Label::Fixed("R²"), |r, _| sig(r.r2, 3)),
+    Column::cell("model", |r| text(r.model)),
+    Column::cell("flat_p", |r| Cell::Full(r.flat_p)),
+    Column::cell("outliers", |r| Cell::Count(Some(r.outliers.len()))),
+    Column::cell("ki_app", |r| ki_app(r).map_or(Cell::Full(None), |k| qualified(r.qualifier, k.value)))
+        .concentration()
+        .morrison(),
+    Column::param("ki_app_low", ki_app, Part::Low).morrison(),
+    Column::param("ki_app_high", ki_app, Part::High).morrison(),
+    Column::cell("flags", |r| text(r.flags.join(";"))).shown(Label::Fixed("flags"), |r, _| r.flags.join(", ")),
+];
+
+/// The CSV header of a carried column: as written, or `carried_…` when its
+/// name is one of the output's own.
+pub fn carried_header(column: &CarriedColumn, morrison: bool) -> String {
+    let clash = COLUMNS.iter().any(|c| c.present(morrison) && c.name == column.key);
+    if clash { format!("carried_{}", column.header) } else { column.header.clone() }
+}
+
+/// The whole CSV header.
+fn csv_header(carried: &[String], context: &Context) -> Vec<String> {
+    let ours = COLUMNS.iter().filter(|c| c.present(context.morrison)).map(|c| c.header(context.unit));
+    ours.chain(carried.iter().cloned()).collect()
+}
+
+/// A result's CSV row, rendered (on a worker thread).
+pub fn csv_row(r: &Ic50Result, morrison: bool) -> RenderedRow {
+    let mut cells: Vec<Cell> = COLUMNS.iter().filter(|c| c.present(morrison)).map(|c| c.cell_of(r)).collect();
+    cells.extend(r.carried.0.iter().map(|(_, v)| Cell::Text(v.clone())));
+    RenderedRow::new(&cells)
+}
+
+/// A result as written in the chosen format, rendered on the worker thread
+/// that fitted it (formatting two dozen numbers per curve is too much to
+/// leave to the one thread that writes).
+#[derive(Debug, Clone)]
+pub enum Line {
+    /// Nothing: the terminal table is built from the results at the batch's
+    /// end, and a failed compound has no line.
+    Nothing,
+    /// A CSV row.
+    Csv(RenderedRow),
+    /// One compact JSON object.
+    Json(String),
+}
+
+impl Line {
+    /// `r` in `format`.
+    pub fn of(r: &Ic50Result, format: Format, morrison: bool) -> Line {
+        match format {
+            Format::Csv => Line::Csv(csv_row(r, morrison)),
+            Format::Json => Line::Json(serde_json::to_string(r).unwrap_or_default()),
+            Format::Table => Line::Nothing,
+        }
+    }
+}
+
+/// The destination while the document is being written: raw bytes until
+/// the CSV header is known, then the export writer.
+enum Sink<'a> {
+    Raw(&'a mut dyn Write),
+    Csv(Box<CsvExport<&'a mut dyn Write>>),
+    Done,
+}
+
+/// Writes one run's output batch by batch. The document header of JSON and
+/// the column header of CSV depend on the first batch (the unit), so the
+/// writer keeps a little state.
+pub struct StreamWriter<'a> {
+    sink: Sink<'a>,
+    format: Format,
+    carried: Vec<String>,
+    morrison: bool,
+    confidence: f64,
+    started: bool,
+    any_result: bool,
+    flags_seen: Vec<&'static str>,
+}
+
+impl<'a> StreamWriter<'a> {
+    /// A writer of `format` into `out`, with the carried columns the reader found.
+    pub fn new(
+        out: &'a mut dyn Write,
+        format: Format,
+        carried: &[CarriedColumn],
+        morrison: bool,
+        confidence: f64,
+    ) -> StreamWriter<'a> {
+        StreamWriter {
+            sink: Sink::Raw(out),
+            format,
+            carried: carried.iter().map(|c| carried_header(c, morrison)).collect(),
+            morrison,
+            confidence,
+            started: false,
+            any_result: false,
+            flags_seen: Vec::new(),
+        }
+    }
+
+    fn raw(&mut self, bytes: &[u8]) -> Result<()> {
+        match &mut self.sink {
+            Sink::Raw(out) => {
+                out.write_all(bytes).map_err(|source| Error::Write { path: PathBuf::from("<output>"), source })
+            }
+            _ => Err(Error::Serialise("the CSV export has already begun".into())),
+        }
+    }
+
+    fn start_csv(&mut self, unit: ConcUnit) -> Result<()> {
+        let context = Context { unit, morrison: self.morrison, confidence: self.confidence };
+        let Sink::Raw(out) = std::mem::replace(&mut self.sink, Sink::Done) else {
+            return Err(Error::Serialise("the CSV export has already begun".into()));
+        };
+        self.sink = Sink::Csv(Box::new(CsvExport::new(out, &csv_header(&self.carried, &context))?));
+        self.started = true;
+        Ok(())
+    }
+
+    /// The plates' control statistics (JSON writes them before the results).
+    pub fn plates(&mut self, qc: &[PlateQc]) -> Result<()> {
+        if self.format == Format::Json {
+            let plates = serde_json::to_string(qc).map_err(|e| Error::Serialise(e.to_string()))?;
+            self.raw(format!("{{\"plates\": {plates},\n\"results\": [\n").as_bytes())?;
+            self.started = true;
+        }
+        Ok(())
+    }
+
+    /// Writes a batch; failed compounds are left out (their errors go elsewhere).
+    pub fn batch(&mut self, results: &[(Result<Ic50Result>, Line)], unit: ConcUnit) -> Result<()> {
+        let ok: Vec<&Ic50Result> = results.iter().filter_map(|r| r.0.as_ref().ok()).collect();
+        for r in &ok {
+            for f in &r.flags {
+                if !self.flags_seen.contains(f) {
+                    self.flags_seen.push(f);
+                }
+            }
+        }
+        let lines = results.iter().filter(|r| r.0.is_ok()).map(|r| &r.1);
+        match self.format {
+            Format::Json => {
+                if !self.started {
+                    self.raw(b"{\"results\": [\n")?;
+                    self.started = true;
+                }
+                let mut text = String::new();
+                for line in lines {
+                    if let Line::Json(json) = line {
+                        if self.any_result {
+                            text.push_str(",\n");
+                        }
+                        self.any_result = true;
+                        text.push_str(json);
+                    }
+                }
+                self.raw(text.as_bytes())
+            }
+            Format::Csv => {
+                if !self.started {
+                    self.start_csv(unit)?;
+                }
+                let Sink::Csv(export) = &mut self.sink else { return Ok(()) };
+                for line in lines {
+                    if let Line::Csv(row) = line {
+                        export.rendered(row)?;
+                    }
+                }
+                Ok(())
+            }
+            Format::Table => {
+                if ok.is_empty() {
+                    return Ok(());
+                }
+                self.started = true;
+                let context = Context { unit, morrison: self.morrison, confidence: self.confidence };
+                self.raw(table(&ok, &context).as_bytes())
+            }
+        }
+    }
+
+    /// Ends the document: the JSON tail with provenance, the CSV header of an
+    /// empty run, or the table's plate summary, flag meanings and caution.
+    pub fn finish(mut self, plates: Option<&[PlateQc]>) -> Result<()> {
+        match self.format {
+            Format::Json => {
+                if !self.started {
+                    self.raw(b"{\"results\": [\n")?;
+                }
+                self.raw(&crate::io::provenance::compact_json_tail())
+            }
+            Format::Csv => {
+                if !self.started {
+                    self.start_csv(ConcUnit::Molar)?;
+                }
+                match std::mem::replace(&mut self.sink, Sink::Done) {
+                    Sink::Csv(export) => export.finish().map(|_| ()),
+                    _ => Ok(()),
+                }
+            }
+            Format::Table => {
+                let mut text = String::new();
+                if let Some(qc) = plates {
+                    text.push_str(&plates_table(qc));
+                }
+                if !self.flags_seen.is_empty() {
+                    text.push_str("flags:\n");
+                    for f in &self.flags_seen {
+                        text.push_str(&format!("  {f}: {}\n", flag_meaning(f)));
+                    }
+                }
+                text.push_str(CAUTION);
+                text.push('\n');
+                self.raw(text.as_bytes())
+            }
+        }
+    }
+}
+
+/// The labels of the table for people (terminal and HTML report alike).
+pub fn table_header(context: &Context) -> Vec<String> {
+    COLUMNS
+        .iter()
+        .filter_map(|c| c.shown)
+        .map(|s| match s.label {
+            Label::Fixed(l) => l.to_string(),
+            Label::Made(f) => f(context),
+        })
+        .collect()
+}
+
+/// One result's row of the table for people (terminal and HTML report alike).
+pub fn table_row(r: &Ic50Result, context: &Context) -> Vec<String> {
+    COLUMNS.iter().filter_map(|c| c.shown).map(|s| (s.text)(r, context)).collect()
+}
+
+/// The terminal table of a batch, with the model and interval method under it.
+pub fn table(results: &[&Ic50Result], context: &Context) -> String {
+    let mut grid = new_grid(table_header(context));
+    for r in results {
+        grid.add_row(table_row(r, context));
+    }
+    let method = results.first().map_or("", |r| {
+        if context.morrison {
+            "Morrison (known Et); Ki,app is the apparent constant, before any mechanism correction (kimech ki applies it)"
+        } else {
+            r.model
+        }
+    });
+    format!("{grid}\nmodel: {method}; IC50 interval: {}\n\n", results.first().map_or("", |r| r.ic50.interval))
+}
+
+/// The plates' control statistics for people.
+pub fn plates_table(qc: &[PlateQc]) -> String {
+    let mut grid = new_grid(
+        ["plate", "uninhibited n", "mean", "SD", "inhibited n", "mean", "SD", "Z′", "flags"].map(String::from).to_vec(),
+    );
+    for p in qc {
+        grid.add_row(vec![
+            if p.plate.is_empty() { "(one plate)".into() } else { p.plate.clone() },
+            p.uninhibited_n.to_string(),
+            sig(p.uninhibited_mean, 4),
+            sig(p.uninhibited_sd, 3),
+            p.inhibited_n.to_string(),
+            sig(p.inhibited_mean, 4),
+            sig(p.inhibited_sd, 3),
+            sig(p.z_prime, 3),
+            p.flags.join(", "),
+        ]);
+    }
+    format!("Plate controls (Z′, Zhang, Chung & Oldenburg 1999)\n{grid}\n\n")
+}
+
+/// One line per flag for the human report.
+pub fn flag_meaning(code: &str) -> &'static str {
+    match code {
+        "ic50-above-range" => "IC50 above the highest tested concentration; reported as '>' that concentration",
+        "ic50-below-range" => "IC50 below the lowest tested concentration; reported as '<' that concentration",
+        "hill-steep" => {
+            "Hill coefficient steeper than the --hill-steep limit (aggregation, tight binding or an assay artefact?)"
+        }
+        "hill-shallow" => {
+            "Hill coefficient shallower than the --hill-shallow limit (heterogeneity, solubility or several sites?)"
+        }
+        "partial-inhibition" => {
+            "the curve levels off well above zero activity (lower asymptote above --partial-above of the full activity)"
+        }
+        "no-inhibition" => {
+            "no significant inhibition: a flat line fits as well (F test, --flat-alpha), or less than --min-inhibition at the highest concentration"
+        }
+        "poor-fit" => "R² below --min-r2: the logistic does not describe these data well",
+        "too-few-points" => "fewer distinct concentrations than --min-concentrations",
+        "not-converged" => "the fit did not converge; the estimates are not trustworthy",
+        "hill-fixed" => {
+            "no transition inside the tested range determines the slope; Hill held at 1 to place the IC50, which is therefore approximate (~) or a bound"
+        }
+        "tight-binding-titration" => "Ki,app below Et/10: the curve mostly measures the enzyme concentration",
+        "plate-z-prime-low" => "a plate of this compound has Z′ below --min-z-prime",
+        "carried-varies" => "a carried column has different values within the compound (joined with ';')",
+        "outlier-excluded" => {
+            "wells marked by the outlier rule (studentized residual beyond the Bonferroni bound, Cook & Weisberg 1982) were left out of the fit; they are listed"
+        }
+        "outlier-flagged" => "wells marked by the outlier rule are listed but still fitted (--outliers flag)",
+        "too-many-outliers" => {
+            "the outlier rule marks more wells than --max-outliers allows; the curve itself may be unreliable"
+        }
+        "upper-outside-window" => {
+            "% activity: the fitted upper asymptote fell outside --upper-min..--upper-max; it was held at 100 %"
+        }
+        "lower-outside-window" => {
+            "% activity: the fitted lower asymptote fell outside --lower-min..--lower-max; it was held at 0 %"
+        }
+        _ => "",
+    }
+}
