@@ -1,8 +1,6 @@
 //! The vocabulary shared by every command's results: a reported parameter
 //! and a warning. Results are plain serde structs; writers live in `io`.
 
-pub mod registry;
-
 use serde::Serialize;
 
 use crate::fit::intervals::{Bound, Interval};

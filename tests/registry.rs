@@ -169,11 +169,11 @@ fn the_readme_lists_the_registry_contract() {
         .lines()
         .filter_map(|l| l.strip_prefix("| `"))
         .filter_map(|l| l.split('`').next())
-        .take(kimech::report::registry::COLUMNS.len())
+        .take(kimech::view::registry::COLUMNS.len())
         .collect();
-    let declared: Vec<&str> = kimech::report::registry::COLUMNS.iter().map(|c| c.name).collect();
+    let declared: Vec<&str> = kimech::view::registry::COLUMNS.iter().map(|c| c.name).collect();
     assert_eq!(listed, declared);
-    assert!(section.contains(&format!("version {}", kimech::report::registry::REGISTRY_VERSION)));
+    assert!(section.contains(&format!("version {}", kimech::view::registry::REGISTRY_VERSION)));
 }
 
 /// SHA-256 by an independent implementation: GNU coreutils' `sha256sum`, else Python's hashlib.

@@ -89,15 +89,18 @@
 //! reliable single measurements (their classification; 0.5 is the usual
 //! acceptance limit). % activity = 100·(y − μ₋)/(μ₊ − μ₋).
 
+mod projected;
+
 use serde::Serialize;
 use serde::ser::SerializeMap;
 
 use crate::error::{Error, Result};
 use crate::fit::intervals::{Bound, Interval, profile, t_quantile};
-use crate::fit::{Data, Fit, FitSettings, Model, Scale, fit_logistic_projected, fit_small};
+use crate::fit::{Data, Fit, FitSettings, Model, Scale, fit_small};
 use crate::models::{Dose, Logistic, Morrison};
 use crate::report::Param;
 use crate::units::{ConcUnit, Qualifier, p_value};
+use projected::fit_logistic_projected;
 
 /// One compound's dose-response rows, concentrations in the reporting unit.
 #[derive(Debug, Clone)]
@@ -368,7 +371,7 @@ fn check(curve: &Curve, n_free: usize) -> Result<(usize, f64, f64)> {
     let (levels, min_pos, max) = tested_range(&curve.x);
     if levels < 2 {
         return Err(fail(
-            format!("only one concentration ({})", crate::io::output::sig(max, 4)),
+            format!("only one concentration ({})", crate::units::sig(max, 4)),
             "a dose-response curve needs several concentrations (8–10 spanning the IC50 is common practice)".into(),
         ));
     }
@@ -385,7 +388,7 @@ fn check(curve: &Curve, n_free: usize) -> Result<(usize, f64, f64)> {
     let (lo, hi) = curve.y.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
     if hi - lo <= 1e-12 * hi.abs().max(lo.abs()) {
         return Err(fail(
-            format!("all {} responses are equal ({})", curve.y.len(), crate::io::output::sig(hi, 6)),
+            format!("all {} responses are equal ({})", curve.y.len(), crate::units::sig(hi, 6)),
             "there is no dose-response to fit; check the response column".into(),
         ));
     }
@@ -782,9 +785,9 @@ impl Verdict {
 /// asymptotes for raw signal.
 fn decide(shape: &Shape, flat_p: Option<f64>, y: &[f64], options: &Options, min_pos: f64, max: f64) -> Verdict {
     let t = &options.thresholds;
-    let sig3 = |v: f64| crate::io::output::sig(v, 3);
+    let sig3 = |v: f64| crate::units::sig(v, 3);
     let verdict = |call, qualifier, reason: String| Verdict { call, qualifier, reason };
-    let p_text = flat_p.map_or("not formed".into(), |p| crate::io::output::sig(p, 2));
+    let p_text = flat_p.map_or("not formed".into(), |p| crate::units::sig(p, 2));
     let flat = flat_p.is_some_and(|p| p >= t.flat_alpha);
     if flat {
         let mean = y.iter().sum::<f64>() / y.len() as f64;
@@ -1014,7 +1017,7 @@ fn ic50_param<M: Model>(
         interval: "bound",
         note: Some(format!(
             "IC50 {words} tested concentration; the value is that concentration, a bound (fitted value {} {})",
-            crate::io::output::sig(fitted, 4),
+            crate::units::sig(fitted, 4),
             options.unit
         )),
     };

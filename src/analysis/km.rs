@@ -371,9 +371,9 @@ fn design_warnings(series: &Series, km: f64) -> Vec<Warning> {
             "km-not-bracketed",
             format!(
                 "the substrate range {}–{} does not include the fitted Km {}; Km and Vmax are then poorly defined (common practice: about 0.2–5 × Km)",
-                crate::io::output::sig(s_min, 3),
-                crate::io::output::sig(s_max, 3),
-                crate::io::output::sig(km, 3)
+                crate::units::sig(s_min, 3),
+                crate::units::sig(s_max, 3),
+                crate::units::sig(km, 3)
             ),
         ));
     }
@@ -407,10 +407,10 @@ fn substrate_inhibition(levels: &[(f64, f64, usize)]) -> Option<Warning> {
             "substrate-inhibition",
             format!(
                 "the mean rate falls from {} at S = {} to {} at the highest S = {}: possible substrate inhibition, which a Michaelis–Menten fit cannot describe",
-                crate::io::output::sig(peak, 3),
-                crate::io::output::sig(peak_s, 3),
-                crate::io::output::sig(top.1, 3),
-                crate::io::output::sig(top.0, 3)
+                crate::units::sig(peak, 3),
+                crate::units::sig(peak_s, 3),
+                crate::units::sig(top.1, 3),
+                crate::units::sig(top.0, 3)
             ),
         )
     })

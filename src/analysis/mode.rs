@@ -36,10 +36,10 @@ use crate::error::{Error, Result};
 use crate::fit::intervals::{Bound, Interval, profile, wald};
 use crate::fit::stats::{aicc, akaike_weights, extra_sum_of_squares, lack_of_fit, runs_test};
 use crate::fit::{Data, Fit, FitSettings, Model, WeightProblem, Weighting, fit, fit_from, weights};
-use crate::io::output::sig;
 use crate::models::inhibition::{Extension, Mechanism, MixedAlphaKiu, MixedKiu, Point, RateLaw};
 use crate::report::{Param, Warning};
 use crate::units::same_levels;
+use crate::units::sig;
 
 mod extensions;
 pub mod headline;

@@ -223,7 +223,7 @@ fn warnings_for(window: &Window, min_points: usize, rate: &Param) -> Vec<Warning
                 "curved-from-start",
                 format!(
                     "the first {min_points} points already curve (t² term p = {}); the rate is likely underestimated — measure earlier or more often",
-                    crate::io::output::sig(*p, 2)
+                    crate::units::sig(*p, 2)
                 ),
             ));
         }

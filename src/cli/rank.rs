@@ -7,7 +7,7 @@
 //! [`crate::analysis::rank`]; this file reads and writes.
 //!
 //! `--format csv` is the registry export, a versioned contract whose columns
-//! are declared in [`crate::report::registry`] (and listed in README.md).
+//! are declared in [`crate::view::registry`] (and listed in README.md).
 //!
 //! Rows are read one at a time and folded into one accumulator per compound ×
 //! target × endpoint ([`Aggregator`]), so memory grows with the groups, not

@@ -13,9 +13,9 @@
 //! | `approximate-input` | the IC50 was written with `~` | DESIGN §3 |
 
 use super::{Assay, Conditions, Measurement, Mechanism, Settings};
-use crate::io::output::sig;
 use crate::report::Warning;
 use crate::units::Qualifier;
+use crate::units::sig;
 
 /// Below this IC50 (mol/L), with no Et, tight binding could matter: tenfold
 /// above 10 nM, the top of the usual enzyme concentrations (common practice).

@@ -204,10 +204,10 @@ impl Problem {
                 )
             }
             Problem::NotPositive { what, value } if *what == "alpha" => {
-                format!("{what} is {}, not positive", crate::io::output::sig(*value, 4))
+                format!("{what} is {}, not positive", crate::units::sig(*value, 4))
             }
             Problem::NotPositive { what, value } => {
-                format!("the {what} is {} nM, not positive", crate::io::output::sig(value * 1e9, 4))
+                format!("the {what} is {} nM, not positive", crate::units::sig(value * 1e9, 4))
             }
             Problem::BindingMechanism(m) => format!(
                 "the binding-assay relation assumes competitive displacement of the labelled ligand, but the mechanism is {}",
@@ -218,8 +218,8 @@ impl Problem {
             }
             Problem::BelowHalfEnzyme { ic50, enzyme } => format!(
                 "the IC50 ({} nM) is not above half the enzyme concentration (Et/2 = {} nM), which no inhibitor can achieve (Morrison 1969)",
-                crate::io::output::sig(ic50 * 1e9, 4),
-                crate::io::output::sig(enzyme * 0.5e9, 4)
+                crate::units::sig(ic50 * 1e9, 4),
+                crate::units::sig(enzyme * 0.5e9, 4)
             ),
             Problem::OutOfRange { ic50, factor } => format!(
                 "the relation gives Ki = IC50 × {factor:e} = {ic50:e} M × {factor:e}, which is beyond what a double can hold (below 2.2e-308 or above 1.8e308 mol/L)"
@@ -314,8 +314,8 @@ fn tight_binding_effect(mut flags: Vec<Warning>, uncorrected: f64, corrected: f6
     for f in flags.iter_mut().filter(|f| f.code == "tight-binding") {
         f.message.push_str(&format!(
             "; ignoring Et would give {} nM instead of {} nM",
-            crate::io::output::sig(uncorrected * 1e9, 4),
-            crate::io::output::sig(corrected * 1e9, 4)
+            crate::units::sig(uncorrected * 1e9, 4),
+            crate::units::sig(corrected * 1e9, 4)
         ));
     }
     flags

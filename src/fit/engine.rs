@@ -353,7 +353,10 @@ pub(super) fn weighted_sse<M: Model>(model: &M, data: &Data<M::Point>, theta: &[
         .sum()
 }
 
-pub(super) fn summarise<M: Model>(
+/// Builds a [`Fit`] (SSE, covariance, residual SD) from a converged parameter
+/// vector: shared by the engine and the specialised kernels that reach the
+/// optimum their own way, so every fit is reported alike.
+pub fn summarise<M: Model>(
     model: &M,
     data: &Data<M::Point>,
     theta: Vec<f64>,

@@ -11,12 +11,10 @@
 
 mod engine;
 pub mod intervals;
-mod projected;
 mod small;
 pub mod stats;
 
-pub use engine::{Fit, FitSettings, Termination, fit, fit_from};
-pub use projected::fit_logistic_projected;
+pub use engine::{Fit, FitSettings, Termination, fit, fit_from, summarise};
 pub use small::fit_small;
 
 /// How a parameter is represented inside the minimiser.

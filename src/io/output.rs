@@ -251,22 +251,9 @@ pub fn new_grid(header: Vec<String>) -> comfy_table::Table {
     grid
 }
 
-/// A number for people: `digits` significant digits, scientific when very
-/// large or small.
-pub fn sig(value: f64, digits: usize) -> String {
-    if !value.is_finite() {
-        return if value.is_nan() { "—".into() } else { format!("{value}") };
-    }
-    if value == 0.0 {
-        return "0".into();
-    }
-    let magnitude = value.abs().log10().floor() as i32;
-    if !(-4..6).contains(&magnitude) {
-        return format!("{:.*e}", digits.saturating_sub(1), value);
-    }
-    let decimals = (digits as i32 - 1 - magnitude).max(0) as usize;
-    format!("{value:.decimals$}")
-}
+/// Numbers for people (defined beside the units, so that the core can word
+/// its messages without the output layer).
+pub use crate::units::sig;
 
 #[cfg(test)]
 mod tests {

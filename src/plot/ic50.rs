@@ -47,15 +47,7 @@ fn ic50_text(r: &Ic50Result, unit: &str) -> String {
     format!("IC50 {} {} {unit} ({})", r.qualifier, sig(p.value, 3), interval_text(p.low, p.high))
 }
 
-/// An interval in words, the same in the pictures and the table: "8.26–10.8",
-/// "8.26–unbounded" when one end is missing, "not determined" when both are.
-pub fn interval_text(low: Option<f64>, high: Option<f64>) -> String {
-    let end = |v: Option<f64>| v.map_or("unbounded".into(), |v| sig(v, 3));
-    match (low, high) {
-        (None, None) => "not determined".into(),
-        _ => format!("{}–{}", end(low), end(high)),
-    }
-}
+pub use crate::view::ic50::interval_text;
 
 /// The panel of one curve.
 pub fn panel(r: &Ic50Result, curve: &Curve, unit: &str, response: &str, et: Option<f64>) -> XyChart {

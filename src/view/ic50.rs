@@ -222,7 +222,7 @@ pub const COLUMNS: &[Column] = &[
         Label::Made(|c| format!("{:.0}% interval", 100.0 * c.confidence)),
         |r, _| match r.qualifier.is_bound() {
             true => "(bound)".into(),
-            false => crate::plot::ic50::interval_text(r.ic50.low, r.ic50.high),
+            false => interval_text(r.ic50.low, r.ic50.high),
         },
     ),
     Column::cell("ic50_high", |r| Cell::Full(r.ic50.high)),
@@ -556,5 +556,15 @@ pub fn flag_meaning(code: &str) -> &'static str {
             "% activity: the fitted lower asymptote fell outside --lower-min..--lower-max; it was held at 0 %"
         }
         _ => "",
+    }
+}
+
+/// An interval in words, the same in the pictures and the table: "8.26–10.8",
+/// "8.26–unbounded" when one end is missing, "not determined" when both are.
+pub fn interval_text(low: Option<f64>, high: Option<f64>) -> String {
+    let end = |v: Option<f64>| v.map_or("unbounded".into(), |v| sig(v, 3));
+    match (low, high) {
+        (None, None) => "not determined".into(),
+        _ => format!("{}–{}", end(low), end(high)),
     }
 }

@@ -9,6 +9,7 @@ pub mod mode;
 pub mod onset;
 pub mod rank;
 pub mod rates;
+pub mod registry;
 
 /// The sentence every human-readable report ends with.
 pub const CAUTION: &str = "These are research estimates whose validity rests on the stated assumptions \

@@ -1,5 +1,5 @@
 //! Views of `kimech rank`: ranked rows → terminal table, JSON and the
-//! registry CSV (declared in [`crate::report::registry`]), written one row at a time.
+//! registry CSV (declared in [`crate::view::registry`]), written one row at a time.
 
 use std::io::Write;
 
@@ -10,8 +10,8 @@ use crate::analysis::rank::{Bounded, RankRow};
 use crate::error::{Error, Result};
 use crate::io::Format;
 use crate::io::output::{new_grid, sig};
-use crate::report::registry::{self, REGISTRY_VERSION};
 use crate::units::{ConcUnit, Qualifier};
+use crate::view::registry::{self, REGISTRY_VERSION};
 
 /// The JSON document: `{"unit": …, "tool_version": …, "registry_version": …, "results": [...]}`;
 /// Ki values in mol/L are converted to `unit`.

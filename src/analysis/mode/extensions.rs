@@ -25,9 +25,9 @@ use super::{Adequacy, Matrix, Options, Units, adequacy_of, p_text};
 use crate::fit::intervals::{Interval, profile, wald};
 use crate::fit::stats::{aicc, extra_sum_of_squares};
 use crate::fit::{Data, Fit, FitSettings, Model, fit_from};
-use crate::io::output::sig;
 use crate::models::inhibition::{Extension, ExtensionLaw, Point};
 use crate::report::{Param, Warning};
+use crate::units::sig;
 
 /// F-test level at which an extension must beat mixed to be named when the
 /// five laws are adequate: strict, because naming a diagnosis replaces a

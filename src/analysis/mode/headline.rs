@@ -20,8 +20,8 @@ use serde::Serialize;
 
 use super::ModelResult;
 use crate::fit::stats::extra_sum_of_squares;
-use crate::io::output::sig;
 use crate::report::{Param, Warning};
+use crate::units::sig;
 
 /// Cumulative Akaike weight of the confidence set of models.
 pub const CONFIDENCE_SET: f64 = 0.95;

@@ -28,8 +28,7 @@
 
 use nalgebra::{Matrix2, Vector2};
 
-use super::engine::{Termination, summarise};
-use super::{Data, Fit, Model};
+use crate::fit::{Data, Fit, Model, Termination, summarise};
 use crate::models::{Dose, Logistic};
 
 /// Curves with more wells than this go to the general engine (stack buffers).
