@@ -47,6 +47,16 @@ pub const MAX_KSI_FACTOR: f64 = 3.0;
 /// inhibition is possible (the diagnosis itself needs [`DIAGNOSIS_LEVEL`]).
 pub const HINT_LEVEL: f64 = 0.05;
 
+/// The residual activity a plain call must be able to rule out: an inhibitor
+/// that leaves 10 % or more of the activity at saturation changes what its Ki
+/// means for dosing. A plain call whose data are compatible with β at or
+/// above this (see [`residual_activity_p`]) gets `partial-inhibition-possible`.
+pub const NOTABLE_RESIDUAL_ACTIVITY: f64 = 0.1;
+
+/// Level of the test of β = [`NOTABLE_RESIDUAL_ACTIVITY`]: β is compatible
+/// with the data when it lies inside the 95 % profile-likelihood interval.
+pub const EXCLUSION_LEVEL: f64 = 0.05;
+
 /// One extension's fit and its comparison with the five.
 #[derive(Debug, Clone, Serialize)]
 pub struct ExtensionResult {
@@ -325,16 +335,41 @@ pub fn diagnosis_warning(r: &ExtensionResult, five_adequate: bool, units: &Units
     Warning::new(r.model, format!("{what}; named because {why}. No plain mechanism is given.{caveat}"))
 }
 
-/// A note on a plain call when partial inhibition fits better than mixed at
-/// [`HINT_LEVEL`] but not at [`DIAGNOSIS_LEVEL`], with a residual activity
-/// worth mentioning: the mechanism stands, but mild partial inhibition is
-/// not excluded.
-pub fn partial_hint(extensions: &[ExtensionResult]) -> Option<Warning> {
+/// Whether the data can rule out a residual activity of
+/// [`NOTABLE_RESIDUAL_ACTIVITY`] or more: the p-value of the F test of the
+/// partial law with β held at that value against the free partial fit
+/// (one numerator degree of freedom; a profile-likelihood test, Bates & Watts
+/// 1988, §6.1). 1 when the free fit already has β at or above it. `None`
+/// when the fit cannot be made.
+pub fn residual_activity_p(data: &Data<Point>, partial: &Fit, mixed: &Fit, settings: &FitSettings) -> Option<f64> {
+    let beta0 = NOTABLE_RESIDUAL_ACTIVITY;
+    if !partial.converged() {
+        return None;
+    }
+    if partial.theta[4] >= beta0 {
+        return Some(1.0);
+    }
+    let (p, m) = (&partial.theta, &mixed.theta);
+    let mut starts = vec![vec![p[0], p[1], p[2], p[3], beta0], vec![m[0], m[1], m[2], m[3], beta0]];
+    starts.retain(|s| s.iter().all(|v| v.is_finite() && *v > 0.0));
+    let fixed = [None, None, None, None, Some(beta0)];
+    let held = fit_from(&ExtensionLaw(Extension::Partial), data, &starts, &fixed, settings);
+    let sse = held.sse.max(partial.sse);
+    extra_sum_of_squares(sse, held.df, partial.sse, partial.df).map(|t| t.1)
+}
+
+/// A note on a plain call when partial inhibition is not ruled out: either it
+/// fits better than mixed at [`HINT_LEVEL`] (but not at [`DIAGNOSIS_LEVEL`])
+/// with a residual activity worth mentioning, or the data are compatible
+/// with a residual activity of [`NOTABLE_RESIDUAL_ACTIVITY`] or more
+/// (`residual_p` ≥ [`EXCLUSION_LEVEL`], from [`residual_activity_p`]). The
+/// mechanism stands, but its constants assume the inhibition is complete.
+pub fn partial_hint(extensions: &[ExtensionResult], residual_p: Option<f64>) -> Option<Warning> {
     let r = extensions.iter().find(|r| r.model == Extension::Partial.name())?;
     let beta = r.params.beta.as_ref()?.value;
     let p = r.p_vs_mixed?;
-    (p < HINT_LEVEL && (MIN_RESIDUAL_ACTIVITY..1.0).contains(&beta)).then(|| {
-        Warning::new(
+    if p < HINT_LEVEL && (MIN_RESIDUAL_ACTIVITY..1.0).contains(&beta) {
+        return Some(Warning::new(
             "partial-inhibition-possible",
             format!(
                 "partial inhibition (residual activity β = {} at saturating inhibitor) fits better than mixed \
@@ -344,6 +379,18 @@ pub fn partial_hint(extensions: &[ExtensionResult]) -> Option<Warning> {
                 sig(beta, 2),
                 p_text(Some(p))
             ),
-        )
-    })
+        ));
+    }
+    let q = residual_p.filter(|q| *q >= EXCLUSION_LEVEL)?;
+    Some(Warning::new(
+        "partial-inhibition-possible",
+        format!(
+            "the data cannot rule out partial inhibition: a residual activity of {:.0} % or more at saturating \
+             inhibitor is compatible with them (F test of β = {NOTABLE_RESIDUAL_ACTIVITY} against the free partial \
+             fit {}, level {EXCLUSION_LEVEL}); the mechanism and its constants assume the inhibition is complete — \
+             test higher inhibitor concentrations to see whether rates level off",
+            100.0 * NOTABLE_RESIDUAL_ACTIVITY,
+            p_text(Some(q))
+        ),
+    ))
 }
