@@ -15,8 +15,8 @@
 
 use std::collections::BTreeMap;
 
-use kimech::analysis::mode::{Basis, Matrix, ModeResult, Options, Units, analyse};
-use kimech::fit::{Model, Weighting};
+use kimech::analysis::mode::{Basis, Matrix, ModeResult, Options, Units, analyse, extension_starts, fit_all};
+use kimech::fit::{Data, FitSettings, Model, Weighting, fit_from, weights};
 use kimech::models::inhibition::{Extension, ExtensionLaw, Mechanism, RateLaw, implied_ic50};
 use rand::rngs::StdRng;
 use rand::{Rng, SeedableRng};
@@ -415,4 +415,72 @@ fn headline_covers_uncertainty_fires_and_diagnoses_are_named() {
         failures.push(format!("partial-inhibition-possible on {cautioned} of {n} full-inhibition matrices > 25%"));
     }
     assert!(failures.is_empty(), "{failures:#?}");
+}
+
+/// The extension fits of `mode` start only from the mixed optimum and the
+/// data's own Vmax/Km guess (`extension_starts`, 5–9 starts). This compares
+/// them, matrix by matrix, with the same fit from those starts plus the
+/// generic grid of `ExtensionLaw::starts` (the mixed grid crossed with the
+/// extra constant: 27 and 18 more), on every simulated class; a miss is an
+/// SSE above the grid's × (1 + 10⁻⁶), the tolerance of the scipy check.
+/// `KIMECH_SIM_N` matrices per class (default 200), `KIMECH_SIM_SEED_OFFSET`
+/// shifts the seeds.
+#[test]
+#[ignore = "measurement behind the README's statement on the extension starts; run in release"]
+fn extension_starts_reach_the_grid_optimum() {
+    let n = std::env::var("KIMECH_SIM_N").ok().and_then(|v| v.parse().ok()).unwrap_or(200);
+    let offset: u64 = std::env::var("KIMECH_SIM_SEED_OFFSET").ok().and_then(|v| v.parse().ok()).unwrap_or(0);
+    let classes = [
+        Class::Competitive,
+        Class::Uncompetitive,
+        Class::Noncompetitive,
+        Class::MixedLow,
+        Class::MixedHigh,
+        Class::Partial,
+        Class::MildPartial,
+        Class::SubstrateInhibition,
+    ];
+    let settings = FitSettings::default();
+    let (mut ours_time, mut grid_time, mut misses, mut fits) = (0.0, 0.0, 0, 0);
+    let only = std::env::var("KIMECH_SIM_ONLY").ok();
+    for (k, &class) in classes.iter().enumerate() {
+        if only.as_ref().is_some_and(|o| *o != format!("{class:?}")) {
+            continue;
+        }
+        let mut rng = StdRng::seed_from_u64(SEED + 1000 * k as u64 + offset);
+        for j in 0..n {
+            let case = simulate(class, &mut rng);
+            let m = &case.matrix;
+            let w = weights(case.options.weighting, &m.rate, None).expect("positive simulated rates");
+            let x = m.substrate.iter().cloned().zip(m.inhibitor.iter().cloned()).collect();
+            let data = Data { x, y: m.rate.clone(), weights: w };
+            let mixed = fit_all(&data, &settings).swap_remove(4);
+            for e in Extension::ALL {
+                let law = ExtensionLaw(e);
+                let ours_starts = extension_starts(e, &data, &mixed.theta);
+                let mut grid_starts = law.starts(&data);
+                grid_starts.extend(ours_starts.iter().cloned());
+                let timed = |mut starts: Vec<Vec<f64>>, clock: &mut f64| {
+                    starts.retain(|s| s.iter().all(|v| v.is_finite() && *v > 0.0));
+                    let t = std::time::Instant::now();
+                    let f = fit_from(&law, &data, &starts, &[None; 5], &settings);
+                    *clock += t.elapsed().as_secs_f64();
+                    f
+                };
+                let ours = timed(ours_starts, &mut ours_time);
+                let grid = timed(grid_starts, &mut grid_time);
+                fits += 1;
+                if ours.sse > grid.sse * (1.0 + 1e-6) {
+                    misses += 1;
+                    eprintln!("{class:?} #{j} {}: SSE {} against the grid's {}", e.name(), ours.sse, grid.sse);
+                }
+            }
+        }
+    }
+    eprintln!(
+        "extension fits: {misses} of {fits} above the grid's optimum; time {:.0} ms (mode's starts) against {:.0} ms (with the grid)",
+        ours_time * 1e3,
+        grid_time * 1e3
+    );
+    assert_eq!(misses, 0);
 }

@@ -46,6 +46,7 @@ pub mod headline;
 
 pub use extensions::{
     DIAGNOSIS_LEVEL, ExtensionParams, ExtensionResult, HINT_LEVEL, MAX_KSI_FACTOR, MIN_RESIDUAL_ACTIVITY,
+    extension_starts,
 };
 use extensions::{diagnose, diagnosis_warning, fit_extensions, partial_hint, residual_activity_p};
 use headline::uncertain;
