@@ -15,8 +15,8 @@
 
 use std::collections::BTreeMap;
 
-use kimech::analysis::mode::{Basis, Matrix, ModeResult, Options, Units, analyse};
-use kimech::fit::{Model, Weighting};
+use kimech::analysis::mode::{Basis, Matrix, ModeResult, Options, Units, analyse, extension_starts, fit_all};
+use kimech::fit::{Data, FitSettings, Model, Weighting, fit_from, weights};
 use kimech::models::inhibition::{Extension, ExtensionLaw, Mechanism, RateLaw, implied_ic50};
 use rand::rngs::StdRng;
 use rand::{Rng, SeedableRng};
@@ -193,6 +193,8 @@ struct Tally {
     choices: BTreeMap<String, usize>,
     /// Wrong plain calls with neither `mechanism-uncertain` nor `partial-inhibition-possible`.
     plain_unwarned: usize,
+    /// Matrices (any call) carrying `partial-inhibition-possible`.
+    partial_cautioned: usize,
     spans: usize,
 }
 
@@ -216,6 +218,7 @@ fn run(class: Class, n: usize, seed: u64) -> Tally {
         if let Ok(path) = std::env::var("KIMECH_SIM_DUMP") {
             dump(&path, class, &r, &case);
         }
+        t.partial_cautioned += usize::from(fired(&r, "partial-inhibition-possible"));
         let cautioned = ["mechanism-uncertain", "partial-inhibition-possible"].iter().any(|c| fired(&r, c));
         let plain = Mechanism::ALL.iter().any(|m| m.name() == r.chosen);
         if plain {
@@ -285,7 +288,7 @@ fn simulate_all(n: usize) -> Vec<(Class, Tally)> {
         .collect();
     for (c, t) in &out {
         eprintln!(
-            "{c:?}: n {} | headline covers {:.1}% | right {} (flagged {:.1}%) wrong {} (flagged {:.1}%, uncautioned {}) | spans {} | {:?}",
+            "{c:?}: n {} | headline covers {:.1}% | right {} (flagged {:.1}%) wrong {} (flagged {:.1}%, uncautioned {}) | partial-inhibition-possible {} | spans {} | {:?}",
             t.n,
             pct(t.covered, t.n),
             t.right,
@@ -293,6 +296,7 @@ fn simulate_all(n: usize) -> Vec<(Class, Tally)> {
             t.wrong,
             pct(t.wrong_flagged, t.wrong),
             t.plain_unwarned,
+            t.partial_cautioned,
             t.spans,
             t.choices
         );
@@ -330,6 +334,43 @@ fn full_simulation_figures() {
         "five laws: headline coverage {:.1}% (mixed {:.1}%); mechanism-uncertain on right calls {:.1}%, on wrong calls {:.1}%",
         r.coverage, r.mixed_coverage, r.fires_right, r.fires_wrong
     );
+    if let Some((_, t)) = all.iter().find(|(c, _)| *c == Class::MildPartial) {
+        eprintln!(
+            "mild partial: {} of {} named, {} plain calls, {} of them without any caution",
+            t.choices.get(Class::MildPartial.name()).copied().unwrap_or(0),
+            t.n,
+            t.wrong,
+            t.plain_unwarned
+        );
+    }
+    let (cautioned, n) = partial_caution_on_full_inhibition(&all);
+    eprintln!(
+        "partial-inhibition-possible on full-inhibition matrices (the five laws): {cautioned} of {n} ({:.1}%)",
+        pct(cautioned, n)
+    );
+}
+
+/// How many matrices simulated from the five (complete-inhibition) laws carry `partial-inhibition-possible`.
+fn partial_caution_on_full_inhibition(all: &[(Class, Tally)]) -> (usize, usize) {
+    let five = all.iter().filter(|(c, _)| Class::FIVE.contains(c)).map(|(_, t)| t);
+    five.fold((0, 0), |(a, b), t| (a + t.partial_cautioned, b + t.n))
+}
+
+/// Mild partial inhibition (β 0.1–0.4) is never given a plain mechanism
+/// without a caution. The first 35 matrices of the full simulation's mild
+/// class (same seed) include one that a test of the partial fit against mixed
+/// alone could not catch (F p 0.63: the data neither show nor rule out the
+/// plateau): it is named mixed and must carry `partial-inhibition-possible`.
+/// About 2 s in release.
+#[test]
+fn mild_partial_inhibition_never_gets_a_plain_call_without_a_caution() {
+    let t = run(Class::MildPartial, 35, SEED + 1000 * 6);
+    assert!(t.wrong >= 1, "the sample must contain plain calls to test the rule: {:?}", t.choices);
+    assert_eq!(
+        t.plain_unwarned, 0,
+        "{} of {} plain calls without a caution: {:?}",
+        t.plain_unwarned, t.wrong, t.choices
+    );
 }
 
 fn named(all: &[(Class, Tally)], class: Class) -> (usize, usize) {
@@ -365,5 +406,81 @@ fn headline_covers_uncertainty_fires_and_diagnoses_are_named() {
     if substrate + 1 < n {
         failures.push(format!("substrate inhibition named in {substrate}/{n}"));
     }
+    let mild = &all.iter().find(|(c, _)| *c == Class::MildPartial).unwrap().1;
+    if mild.plain_unwarned > 0 {
+        failures.push(format!("{} mild-partial matrices given a plain call without a caution", mild.plain_unwarned));
+    }
+    let (cautioned, n) = partial_caution_on_full_inhibition(&all);
+    if cautioned * 100 > 25 * n {
+        failures.push(format!("partial-inhibition-possible on {cautioned} of {n} full-inhibition matrices > 25%"));
+    }
     assert!(failures.is_empty(), "{failures:#?}");
+}
+
+/// The extension fits of `mode` start only from the mixed optimum and the
+/// data's own Vmax/Km guess (`extension_starts`, 5–9 starts). This compares
+/// them, matrix by matrix, with the same fit from those starts plus the
+/// generic grid of `ExtensionLaw::starts` (the mixed grid crossed with the
+/// extra constant: 27 and 18 more), on every simulated class; a miss is an
+/// SSE above the grid's × (1 + 10⁻⁶), the tolerance of the scipy check.
+/// `KIMECH_SIM_N` matrices per class (default 200), `KIMECH_SIM_SEED_OFFSET`
+/// shifts the seeds.
+#[test]
+#[ignore = "measurement behind the README's statement on the extension starts; run in release"]
+fn extension_starts_reach_the_grid_optimum() {
+    let n = std::env::var("KIMECH_SIM_N").ok().and_then(|v| v.parse().ok()).unwrap_or(200);
+    let offset: u64 = std::env::var("KIMECH_SIM_SEED_OFFSET").ok().and_then(|v| v.parse().ok()).unwrap_or(0);
+    let classes = [
+        Class::Competitive,
+        Class::Uncompetitive,
+        Class::Noncompetitive,
+        Class::MixedLow,
+        Class::MixedHigh,
+        Class::Partial,
+        Class::MildPartial,
+        Class::SubstrateInhibition,
+    ];
+    let settings = FitSettings::default();
+    let (mut ours_time, mut grid_time, mut misses, mut fits) = (0.0, 0.0, 0, 0);
+    let only = std::env::var("KIMECH_SIM_ONLY").ok();
+    for (k, &class) in classes.iter().enumerate() {
+        if only.as_ref().is_some_and(|o| *o != format!("{class:?}")) {
+            continue;
+        }
+        let mut rng = StdRng::seed_from_u64(SEED + 1000 * k as u64 + offset);
+        for j in 0..n {
+            let case = simulate(class, &mut rng);
+            let m = &case.matrix;
+            let w = weights(case.options.weighting, &m.rate, None).expect("positive simulated rates");
+            let x = m.substrate.iter().cloned().zip(m.inhibitor.iter().cloned()).collect();
+            let data = Data { x, y: m.rate.clone(), weights: w };
+            let mixed = fit_all(&data, &settings).swap_remove(4);
+            for e in Extension::ALL {
+                let law = ExtensionLaw(e);
+                let ours_starts = extension_starts(e, &data, &mixed.theta);
+                let mut grid_starts = law.starts(&data);
+                grid_starts.extend(ours_starts.iter().cloned());
+                let timed = |mut starts: Vec<Vec<f64>>, clock: &mut f64| {
+                    starts.retain(|s| s.iter().all(|v| v.is_finite() && *v > 0.0));
+                    let t = std::time::Instant::now();
+                    let f = fit_from(&law, &data, &starts, &[None; 5], &settings);
+                    *clock += t.elapsed().as_secs_f64();
+                    f
+                };
+                let ours = timed(ours_starts, &mut ours_time);
+                let grid = timed(grid_starts, &mut grid_time);
+                fits += 1;
+                if ours.sse > grid.sse * (1.0 + 1e-6) {
+                    misses += 1;
+                    eprintln!("{class:?} #{j} {}: SSE {} against the grid's {}", e.name(), ours.sse, grid.sse);
+                }
+            }
+        }
+    }
+    eprintln!(
+        "extension fits: {misses} of {fits} above the grid's optimum; time {:.0} ms (mode's starts) against {:.0} ms (with the grid)",
+        ours_time * 1e3,
+        grid_time * 1e3
+    );
+    assert_eq!(misses, 0);
 }

@@ -46,8 +46,9 @@ pub mod headline;
 
 pub use extensions::{
     DIAGNOSIS_LEVEL, ExtensionParams, ExtensionResult, HINT_LEVEL, MAX_KSI_FACTOR, MIN_RESIDUAL_ACTIVITY,
+    extension_starts,
 };
-use extensions::{diagnose, diagnosis_warning, fit_extensions, partial_hint};
+use extensions::{diagnose, diagnosis_warning, fit_extensions, partial_hint, residual_activity_p};
 use headline::uncertain;
 pub use headline::{Basis, Headline};
 
@@ -325,7 +326,14 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
         .collect();
     if plain {
         warnings.extend(uncertain(&models, picked));
-        warnings.extend(partial_hint(&extensions));
+        // Partial inhibition acts through ESI: a call in which no ESI forms (competitive) cannot hide it.
+        let esi = match picked {
+            2 | 3 => true,
+            4 => models[4].limit != Some("competitive"),
+            _ => false,
+        };
+        let residual_p = if esi { residual_activity_p(&data, &ext_fits[0], &fits[4], &options.settings) } else { None };
+        warnings.extend(partial_hint(&extensions, residual_p));
     }
     let headline = match named {
         Some(k) => headline::from_extension(&extensions[k]),
