@@ -67,6 +67,7 @@ fn inhibitor_far_below_ki_gives_a_low_chance_of_naming_competitive() {
 #[test]
 fn classic_grid_gives_a_high_chance_of_naming_competitive() {
     let share = right_share(&classic(), Truth::Competitive, 60, Noise::Proportional(0.05), 12);
+    println!("classic grid: competitive named in {share:.3}");
     assert!(share >= 0.85, "competitive named in only {share} of classic-grid matrices");
 }
 
@@ -128,6 +129,7 @@ fn suggestion_raises_the_chance_within_the_budget() {
     let search = SearchSettings { wells: poor.wells(), screening: 4, finalists: 1 };
     let found = suggest(&base, &s, &search, &()).unwrap();
     let best = &found.suggestions[0];
+    println!("poor grid {:.2} → suggestion {:.2}: {:?}", base.mean_right, best.mean_right, best.reasons);
     assert!(best.wells <= poor.wells());
     assert!(
         best.mean_right >= base.mean_right + 0.3,
@@ -241,6 +243,26 @@ fn table_and_csv_carry_the_caution_and_one_row_per_truth() {
     let lines: Vec<&str> = text.lines().collect();
     assert!(lines[0].starts_with("grid,substrate,inhibitor,replicates,wells,truth,simulations,named_none"));
     assert_eq!(lines.len(), 6);
+}
+
+/// `--plot` writes the confusion heatmaps and the grid chart; `--report` a page with the tables.
+#[test]
+fn plot_and_report_show_the_confusion_and_the_proposed_grid() {
+    let dir = tempfile::tempdir().unwrap();
+    let flags = ["--simulations", "2", "--sensitivity-simulations", "0", "--suggest", "--wells", "30"];
+    plan_args(dir.path(), &flags)
+        .args(["--screening", "1", "--plot", "pics", "--report", "plan.html", "-o", "plan.txt"])
+        .assert()
+        .success();
+    let heatmap = std::fs::read_to_string(dir.path().join("pics/plan-confusion.svg")).unwrap();
+    assert!(heatmap.contains("<svg") && heatmap.contains("noncompetitive") && heatmap.contains("share of calls"));
+    let grid = std::fs::read_to_string(dir.path().join("pics/plan-grid.svg")).unwrap();
+    assert!(grid.contains("proposed") && grid.contains("substrate (uM)") && grid.contains("inhibitor (nM)"));
+    assert!(dir.path().join("pics/plan-suggestion-1.svg").exists());
+    let page = std::fs::read_to_string(dir.path().join("plan.html")).unwrap();
+    assert!(page.contains("Suggested grids within 30 wells") && page.contains("<svg") && page.contains("guesses"));
+    let text = std::fs::read_to_string(dir.path().join("plan.txt")).unwrap();
+    assert!(text.contains("Suggested grids within 30 wells"));
 }
 
 #[test]

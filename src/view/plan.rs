@@ -237,7 +237,7 @@ pub fn power_table(rows: &[PowerRow]) -> (Vec<String>, Vec<Vec<String>>) {
         .collect();
     let mut header = vec!["truth \\ named".to_string()];
     header.extend(shown.iter().map(|c| c.name().to_string()));
-    header.extend(["right ± SE", "uncertain", "Ki width median", "Ki width p90"].map(String::from));
+    header.extend(["right ± SE", "uncertain", "Ki width median", "Ki width p90", "Ki open"].map(String::from));
     let body = rows
         .iter()
         .map(|r| {
@@ -247,6 +247,7 @@ pub fn power_table(rows: &[PowerRow]) -> (Vec<String>, Vec<Vec<String>>) {
             cells.push(share(r.uncertain));
             cells.push(width_text(r, r.ki_width_median));
             cells.push(width_text(r, r.ki_width_p90));
+            cells.push(r.ki_open.map_or("—".into(), share));
             cells
         })
         .collect();
@@ -311,8 +312,9 @@ pub fn human(view: &PlanView) -> String {
     out.push_str(&format!(
         "\nmean chance of naming the right mechanism: {}\n\
          rows: share of simulated matrices given each call; uncertain: share with the mechanism-uncertain warning;\n\
-         Ki width: high/low of the 95% headline interval of Kic (Kiu for uncompetitive); 'open' when that share of \
-         intervals has an open end (infinite width)\n",
+         Ki width: high/low of the headline interval of Kic (Kiu for uncompetitive); an interval with an open end \
+         has infinite width, so the median is 'open' when half of them are, the p90 when a tenth are; \
+         Ki open: that share\n",
         share(p.mean_right)
     ));
     if !p.sensitivity.is_empty() {

@@ -208,9 +208,10 @@ pub fn suggest(base: &PlanResult, settings: &Settings, search: &SearchSettings, 
     })
 }
 
-/// "0.25" for multiples.
+/// A multiple for people: "0.25", "4", "10" (two significant digits, no trailing zeros).
 fn times(v: f64) -> String {
-    sig(v, 2).trim_end_matches('0').trim_end_matches('.').to_string()
+    let s = sig(v, 2);
+    if s.contains('.') && !s.contains('e') { s.trim_end_matches('0').trim_end_matches('.').to_string() } else { s }
 }
 
 /// What differs between the grid given and a candidate, in words.
@@ -261,6 +262,14 @@ fn reasons(base: &PlanResult, c: &Candidate, chance: f64) -> Vec<String> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn multiples_keep_their_digits() {
+        assert_eq!(times(10.0), "10");
+        assert_eq!(times(0.25), "0.25");
+        assert_eq!(times(4.0), "4");
+        assert_eq!(times(0.05), "0.05");
+    }
 
     #[test]
     fn candidates_stay_within_the_budget() {
