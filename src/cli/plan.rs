@@ -300,7 +300,7 @@ fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
 /// 4 % of the rate plus 0.3 nM/min and `mode` runs unweighted, so the plan
 /// takes a constant SD of 1.5 nM/min (≈ 4 % of a mid-range rate).
 pub fn demo_stage(matrix_csv: &str, sections: &mut Vec<crate::plot::html::Section>) -> Result<()> {
-    let command = "kimech plan --km \"12 uM\" --ki \"40 nM\" --vmax 85 --substrate \"2,4,7,12,20,35,60,100 uM\" \
+    let command = "kimech plan --km \"12 uM\" --ki \"40 nM\" --alpha 6 --vmax 85 --substrate \"2,4,7,12,20,35,60,100 uM\" \
                    --inhibitor \"0,20,40,80,160,320 nM\" --replicates 2 --noise 1.5 --simulations 40 \
                    --sensitivity-simulations 0";
     println!("\nStage 3c — before the experiment: how often should `mode` name each mechanism on this design?");
