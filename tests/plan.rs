@@ -49,7 +49,7 @@ fn right_share(design: &Design, truth: Truth, n: usize, noise: Noise, seed: u64)
 }
 
 /// Issue check: inhibitor ≤ 0.05 × Ki cannot show competitive inhibition.
-/// Measured 0.00 over these 40 matrices; the bound is the issue's 0.5.
+/// Measured 0.075 (3 of these 40 matrices; most are called `none`); the bound is the issue's 0.5.
 #[test]
 fn inhibitor_far_below_ki_gives_a_low_chance_of_naming_competitive() {
     let design = Design {
@@ -58,6 +58,7 @@ fn inhibitor_far_below_ki_gives_a_low_chance_of_naming_competitive() {
         replicates: 2,
     };
     let share = right_share(&design, Truth::Competitive, 40, Noise::Proportional(0.05), 11);
+    println!("inhibitor ≤ 0.05 × Ki: competitive named in {share:.3}");
     assert!(share <= 0.5, "competitive named in {share} of matrices with I ≤ 0.05 × Ki");
 }
 
