@@ -49,7 +49,7 @@ fn right_share(design: &Design, truth: Truth, n: usize, noise: Noise, seed: u64)
 }
 
 /// Issue check: inhibitor ≤ 0.05 × Ki cannot show competitive inhibition.
-/// Measured 0.075 (3 of these 40 matrices; most are called `none`); the bound is the issue's 0.5.
+/// Measured 0.075 (3 of these 40 matrices); the bound is the issue's 0.5.
 #[test]
 fn inhibitor_far_below_ki_gives_a_low_chance_of_naming_competitive() {
     let design = Design {
