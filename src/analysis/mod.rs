@@ -5,5 +5,6 @@ pub mod ic50;
 pub mod km;
 pub mod mode;
 pub mod onset;
+pub mod plan;
 pub mod rank;
 pub mod rates;

@@ -50,6 +50,7 @@ pub fn run(args: &Args) -> Result<()> {
     let rate_table = rates_stage(&mut sections)?;
     let km_status = km_stage(&rate_table, &mut sections);
     let mode_status = mode_stage(&mut sections).and(difficult_mode_stage(&mut sections));
+    let mode_status = mode_status.and(super::plan::demo_stage(RATE_MATRIX, &mut sections));
     let (ic50_csv, ic50_status) = dose_response_stage_into(&mut sections)?;
     let ki_status = ki_rank_stage(&ic50_csv, &mut sections);
     let onset_status = onset_stage(&mut sections);

@@ -15,6 +15,7 @@ pub mod ki;
 pub mod km;
 pub mod mode;
 pub mod onset;
+pub mod plan;
 pub mod rank;
 pub mod rates;
 
@@ -43,6 +44,8 @@ enum Command {
     Ki(ki::Args),
     /// Time-dependent inhibition from progress curves: onset, kinact, KI, kinact/KI.
     Onset(onset::Args),
+    /// Before the experiment: how likely is an [S]×[I] grid to tell the mechanisms apart, and which grid would.
+    Plan(plan::Args),
     /// Aggregate, rank and export Ki results: the registry table.
     Rank(rank::Args),
     /// Run the whole chain on the bundled invented demo scenario.
@@ -73,6 +76,7 @@ pub fn run(args: impl IntoIterator<Item = impl Into<OsString> + Clone>) -> Resul
         Command::Demo(args) => demo::run(&args),
         Command::Mode(args) => mode::run(&args),
         Command::Onset(args) => onset::run(&args),
+        Command::Plan(args) => plan::run(&args),
     }
 }
 

@@ -20,6 +20,7 @@ pub mod ic50;
 pub mod km;
 pub mod mode;
 pub mod onset;
+pub mod plan;
 pub mod rank;
 pub mod style;
 pub mod xy;

@@ -7,6 +7,7 @@ pub mod ki;
 pub mod km;
 pub mod mode;
 pub mod onset;
+pub mod plan;
 pub mod rank;
 pub mod rates;
 pub mod registry;
