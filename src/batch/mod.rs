@@ -47,3 +47,37 @@ impl Progress {
         }
     }
 }
+
+/// A progress bar over a count of jobs (simulated matrices), on stderr and
+/// only when it is a terminal.
+pub struct CountProgress(Option<indicatif::ProgressBar>);
+
+impl CountProgress {
+    /// A bar over `total` jobs, labelled `what`.
+    pub fn new(total: u64, what: &str) -> CountProgress {
+        if !std::io::stderr().is_terminal() {
+            return CountProgress(None);
+        }
+        let bar = indicatif::ProgressBar::new(total);
+        let template = format!("{what} {{bar:40}} {{pos}}/{{len}} matrices, eta {{eta}}");
+        let style = indicatif::ProgressStyle::with_template(&template)
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar());
+        bar.set_style(style);
+        CountProgress(Some(bar))
+    }
+
+    /// Clears the bar.
+    pub fn finish(self) {
+        if let Some(bar) = self.0 {
+            bar.finish_and_clear();
+        }
+    }
+}
+
+impl crate::analysis::plan::Tick for CountProgress {
+    fn tick(&self) {
+        if let Some(bar) = &self.0 {
+            bar.inc(1);
+        }
+    }
+}

@@ -3,13 +3,11 @@
 //! Parses the flags, runs [`crate::analysis::plan`], writes with
 //! [`crate::view::plan`] and draws with [`crate::plot::plan`].
 
-use std::io::IsTerminal;
-
 use super::{OutputArgs, parse_flag_concentration};
 use crate::analysis::plan::{
-    Constants, Design, Noise, PlanResult, Search, SearchSettings, Settings, Tick, plan, search_workload, suggest,
-    workload,
+    Constants, Design, Noise, PlanResult, Search, SearchSettings, Settings, plan, search_workload, suggest, workload,
 };
+use crate::batch::CountProgress;
 use crate::error::{Error, Result};
 use crate::io::write_output;
 use crate::units::{ACCEPTED_UNITS, ConcUnit, ConcentrationArg, Qualifier, parse_written};
@@ -144,37 +142,6 @@ pub fn parse_noise(text: &str) -> std::result::Result<Noise, String> {
     }
 }
 
-/// A progress bar on stderr, only when it is a terminal.
-struct Progress(Option<indicatif::ProgressBar>);
-
-impl Progress {
-    fn new(total: u64, what: &str) -> Progress {
-        if !std::io::stderr().is_terminal() {
-            return Progress(None);
-        }
-        let bar = indicatif::ProgressBar::new(total);
-        let template = format!("{what} {{bar:40}} {{pos}}/{{len}} matrices, eta {{eta}}");
-        let style = indicatif::ProgressStyle::with_template(&template)
-            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar());
-        bar.set_style(style);
-        Progress(Some(bar))
-    }
-
-    fn finish(self) {
-        if let Some(bar) = self.0 {
-            bar.finish_and_clear();
-        }
-    }
-}
-
-impl Tick for Progress {
-    fn tick(&self) {
-        if let Some(bar) = &self.0 {
-            bar.inc(1);
-        }
-    }
-}
-
 /// Everything a run produced, for the views.
 pub struct Outcome {
     /// The plan of the grid given.
@@ -245,7 +212,7 @@ pub fn compute(args: &Args) -> Result<Outcome> {
         partial_beta: args.partial,
     };
     let settings = settings(args);
-    let bar = Progress::new(workload(&constants, &settings), "simulating");
+    let bar = CountProgress::new(workload(&constants, &settings), "simulating");
     let result = plan(&design, &constants, &settings, &bar);
     bar.finish();
     let plan = result?;
@@ -253,7 +220,7 @@ pub fn compute(args: &Args) -> Result<Outcome> {
         (true, Some(wells)) => {
             let search_settings =
                 SearchSettings { wells: wells as usize, screening: args.screening as usize, finalists: 3 };
-            let bar = Progress::new(search_workload(&constants, &settings, &search_settings), "searching");
+            let bar = CountProgress::new(search_workload(&constants, &settings, &search_settings), "searching");
             let found = suggest(&plan, &settings, &search_settings, &bar);
             bar.finish();
             Some(found?)
@@ -290,84 +257,5 @@ fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
         };
         write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[])?;
     }
-    Ok(())
-}
-
-/// The demo's plan stage: `plan` for the design of the demo's rate matrix
-/// (demo-compounds/make_rate_matrix.py: VRD7, Km = 12 uM, Vmax = 85 nM/min;
-/// KX-201's grid, Ki = 40 nM: S = 2–100 uM, I = 0 and 0.5–8 × Ki, duplicates),
-/// printed next to what `mode` finds on the bundled matrix. The noise there is
-/// 4 % of the rate plus 0.3 nM/min and `mode` runs unweighted, so the plan
-/// takes a constant SD of 1.5 nM/min (≈ 4 % of a mid-range rate).
-pub fn demo_stage(matrix_csv: &str, sections: &mut Vec<crate::plot::html::Section>) -> Result<()> {
-    let command = "kimech plan --km \"12 uM\" --ki \"40 nM\" --alpha 6 --vmax 85 --substrate \"2,4,7,12,20,35,60,100 uM\" \
-                   --inhibitor \"0,20,40,80,160,320 nM\" --replicates 2 --noise 1.5 --simulations 40 \
-                   --sensitivity-simulations 0";
-    println!("\nStage 3c — before the experiment: how often should `mode` name each mechanism on this design?");
-    println!("  $ {command}\n");
-    let args = Args {
-        km: ConcentrationArg { molar: 12e-6, unit: ConcUnit::Micromolar },
-        ki: ConcentrationArg { molar: 40e-9, unit: ConcUnit::Nanomolar },
-        alpha: 6.0,
-        vmax: 85.0,
-        partial: None,
-        substrate: parse_levels("2,4,7,12,20,35,60,100 uM").map_err(Error::Usage)?,
-        inhibitor: parse_levels("0,20,40,80,160,320 nM").map_err(Error::Usage)?,
-        replicates: 2,
-        noise: Noise::Constant(1.5),
-        simulations: 40,
-        sensitivity_simulations: Some(0),
-        seed: 1,
-        suggest: false,
-        wells: None,
-        screening: 30,
-        choice: super::ModelChoiceArgs::default(),
-        output: OutputArgs { format: crate::io::Format::Table, output: None },
-        pictures: super::PictureArgs::default(),
-    };
-    let outcome = compute(&args)?;
-    let table = crate::io::Table::parse("demo-compounds/rate-matrix.csv", matrix_csv.as_bytes(), b',')?;
-    let mode_args = super::mode::Args {
-        file: "demo-compounds/rate-matrix.csv".into(),
-        substrate_unit: None,
-        inhibitor_unit: None,
-        weighting: super::km::WeightingArg::None,
-        choice: super::ModelChoiceArgs::default(),
-        output: OutputArgs { format: crate::io::Format::Table, output: None },
-        pictures: super::PictureArgs::default(),
-    };
-    let found = super::mode::analyse_with_matrices(&table, &mode_args)?;
-    // The compounds of the demo matrix and the mechanism each was made with.
-    let made = [
-        ("KX-205", "none"),
-        ("KX-201", "competitive"),
-        ("KX-202", "uncompetitive"),
-        ("KX-203", "noncompetitive"),
-        ("KX-204", "mixed"),
-    ];
-    let mut lines = Vec::new();
-    for row in &outcome.plan.power {
-        let compound = made.iter().find(|(_, m)| *m == row.truth.name()).map_or("", |(c, _)| c);
-        let named = found
-            .pairs
-            .iter()
-            .find(|(r, _)| r.compound.as_deref() == Some(compound))
-            .map_or("not analysed".to_string(), |(r, _)| r.chosen.clone());
-        lines.push(format!(
-            "  made {:<15} plan: named right in {:.2} of simulations (uncertain {:.2})   mode on {compound}: {named}",
-            row.truth.name(),
-            row.right,
-            row.uncertain
-        ));
-    }
-    let text = lines.join("\n");
-    println!("{text}");
-    println!(
-        "  (KX-202…204 were measured on this grid scaled to their own constant, α = 6 as KX-204; \
-         KX-205 at 0–10 uM, where Ki plays no part.)"
-    );
-    let mut section = crate::plot::plan::section(&outcome.view(), command)?;
-    section.blocks.push(crate::plot::html::Block::Preformatted(text));
-    sections.push(section);
     Ok(())
 }

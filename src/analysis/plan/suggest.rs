@@ -22,7 +22,7 @@ use serde::Serialize;
 
 use super::{Constants, Design, PlanResult, PowerRow, Settings, Tick, mean_right, power};
 use crate::error::{Error, Result};
-use crate::io::output::sig;
+use crate::units::sig;
 
 /// Mean chances this close count as tied.
 pub const TIE_BAND: f64 = 0.02;

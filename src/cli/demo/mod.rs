@@ -4,27 +4,33 @@
 
 use std::path::PathBuf;
 
+mod chain;
+mod plan_stage;
+
+use chain::{IC50_CSV, ki_rank_stage};
+pub use chain::{ki_and_rank, ki_and_rank_into};
+
 use super::{OutputArgs, ic50, ki, km, mode, rates};
 use crate::error::Result;
 use crate::io::{Format, Table};
 use crate::plot::html::{Block, Page, Section, without_caution};
 
 /// Invented progress curves (see demo-compounds/README.md).
-const PROGRESS_CURVES: &str = include_str!("../../demo-compounds/progress-curves.csv");
+const PROGRESS_CURVES: &str = include_str!("../../../demo-compounds/progress-curves.csv");
 
 /// The invented rate matrix of five compounds (demo-compounds/make_rate_matrix.py).
-const RATE_MATRIX: &str = include_str!("../../demo-compounds/rate-matrix.csv");
+const RATE_MATRIX: &str = include_str!("../../../demo-compounds/rate-matrix.csv");
 /// Two matrices the five rate laws cannot settle (demo-compounds/make_difficult_matrices.py).
-const DIFFICULT_MATRIX: &str = include_str!("../../demo-compounds/rate-matrix-difficult.csv");
+const DIFFICULT_MATRIX: &str = include_str!("../../../demo-compounds/rate-matrix-difficult.csv");
 
 /// The invented dose-response plates (demo-compounds/make_dose_response.py).
-const DOSE_RESPONSE: &str = include_str!("../../demo-compounds/dose-response.csv");
+const DOSE_RESPONSE: &str = include_str!("../../../demo-compounds/dose-response.csv");
 
 /// The invented IC50 table of a second assay at other conditions (see its header comments).
-const SECOND_ASSAY: &str = include_str!("../../demo-compounds/second-assay-ic50.csv");
+const SECOND_ASSAY: &str = include_str!("../../../demo-compounds/second-assay-ic50.csv");
 
 /// Invented progress curves of a covalent and a slow-binding compound (demo-compounds/make_onset_curves.py).
-const ONSET_CURVES: &str = include_str!("../../demo-compounds/onset-curves.csv");
+const ONSET_CURVES: &str = include_str!("../../../demo-compounds/onset-curves.csv");
 
 /// Where the report goes when `--report` is not given.
 const DEFAULT_REPORT: &str = "kimech-demo-report.html";
@@ -50,7 +56,7 @@ pub fn run(args: &Args) -> Result<()> {
     let rate_table = rates_stage(&mut sections)?;
     let km_status = km_stage(&rate_table, &mut sections);
     let mode_status = mode_stage(&mut sections).and(difficult_mode_stage(&mut sections));
-    let mode_status = mode_status.and(super::plan::demo_stage(RATE_MATRIX, &mut sections));
+    let mode_status = mode_status.and(plan_stage::plan_stage(RATE_MATRIX, &mut sections));
     let (ic50_csv, ic50_status) = dose_response_stage_into(&mut sections)?;
     let ki_status = ki_rank_stage(&ic50_csv, &mut sections);
     let onset_status = onset_stage(&mut sections);
@@ -232,104 +238,6 @@ fn raw_and_normalised_agree(name: &str, normalised: &ic50::Args) -> Result<Strin
         percent.len(),
         crate::io::output::sig(worst, 2)
     ))
-}
-
-/// The file name the dose-response stage's CSV is shown under.
-const IC50_CSV: &str = "dose-response-ic50.csv";
-
-/// Stages 5 and 6: IC50 tables (the plates' and a second assay's) → Ki → ranking.
-fn ki_rank_stage(ic50_csv: &str, sections: &mut Vec<Section>) -> Result<()> {
-    let second = "demo-compounds/second-assay-ic50.csv";
-    ki_and_rank_into(&[(IC50_CSV, ic50_csv, ki_args(IC50_CSV)), (second, SECOND_ASSAY, ki_args(second))], sections)
-}
-
-/// The `ki` and `rank` stages: each IC50 table (name, CSV text, `ki` options) goes through
-/// `kimech ki` and its CSV output, and all of them together through `kimech rank`,
-/// exactly as a user would pipe them.
-pub fn ki_and_rank(tables: &[(&str, &str, ki::Args)]) -> Result<()> {
-    ki_and_rank_into(tables, &mut Vec::new())
-}
-
-/// [`ki_and_rank`], adding a report section per stage (the ranking with its charts).
-pub fn ki_and_rank_into(tables: &[(&str, &str, ki::Args)], sections: &mut Vec<Section>) -> Result<()> {
-    let mut ki_csv = Vec::new();
-    let mut failures = Vec::new();
-    let mut total = 0;
-    println!("\nStage 5 — IC50 tables → Ki (conditions from each table's columns)");
-    for (name, text, args) in tables {
-        println!("\n  $ kimech ki {name}\n");
-        let table = crate::io::Table::parse(name, text.as_bytes(), b',')?;
-        let (rows, carried, row_failures) = ki::convert_table(&table, args)?;
-        let human = crate::view::ki::human(&rows);
-        print!("{human}");
-        sections.push(text_section(&format!("Ki from {name}"), &format!("kimech ki {name}"), &human));
-        total += rows.len();
-        failures.extend(row_failures);
-        ki_csv.push((
-            format!("{}-ki.csv", name.trim_end_matches(".csv")),
-            crate::view::ki::render(&rows, &carried, crate::io::Format::Csv)?,
-        ));
-    }
-    let names: Vec<&str> = ki_csv.iter().map(|(n, _)| n.as_str()).collect();
-    println!("\nStage 6 — Ki → one ranked, flagged, registry-ready table (selectivity against VRD3)");
-    for ((n, _), (name, _, _)) in ki_csv.iter().zip(tables) {
-        println!("  $ kimech ki {name} --format csv -o {n}");
-    }
-    println!("  $ kimech rank {} --versus VRD3\n", names.join(" "));
-    let mut entries = Vec::new();
-    for (n, bytes) in &ki_csv {
-        let table = crate::io::Table::parse(n, bytes, b',')?;
-        let (e, f) = crate::io::rank::read_entries(&table, None)?;
-        entries.extend(e);
-        failures.extend(f);
-    }
-    let options = crate::analysis::rank::Options { versus: Some("VRD3".into()), confidence: 0.95 };
-    let ranked = crate::analysis::rank::aggregate(&entries, &options);
-    let unit = crate::units::ConcUnit::Nanomolar;
-    print!("{}", String::from_utf8_lossy(&crate::view::rank::render(&ranked, unit, crate::io::Format::Table)?));
-    let command = format!("kimech rank {} --versus VRD3", names.join(" "));
-    sections.push(crate::plot::rank::section(&ranked, unit, &failures, &command)?);
-    print_registry_excerpt(&ranked, unit)?;
-    expected_failures_only(&failures, total)
-}
-
-/// Compounds of the demo data that fail on purpose (see demo-compounds/README.md).
-/// The planted partial inhibitor (KX-113) is refused too, by the message
-/// [`crate::io::ki::PARTIAL_REFUSED`]: Cheng–Prusoff needs complete inhibition.
-const FAILING_ON_PURPOSE: [&str; 1] = ["'KX-131'"];
-
-/// The demo's own deliberately failing rows are shown, not treated as a failed
-/// run; any other failure is one.
-fn expected_failures_only(failures: &[crate::Error], total: usize) -> Result<()> {
-    let on_purpose = |f: &crate::Error| {
-        let text = f.to_string();
-        text.contains(crate::io::ki::PARTIAL_REFUSED) || FAILING_ON_PURPOSE.iter().any(|c| text.contains(c))
-    };
-    let mut unexpected = 0;
-    for f in failures {
-        if on_purpose(f) {
-            println!("(on purpose) kimech: {f}");
-        } else {
-            eprintln!("kimech: {f}");
-            unexpected += 1;
-        }
-    }
-    if unexpected == 0 { Ok(()) } else { Err(crate::Error::Partial { failed: unexpected, total, what: "rows" }) }
-}
-
-/// Three rows of the registry export: a two-value group, a bound and a failed row.
-fn print_registry_excerpt(ranked: &[crate::analysis::rank::RankRow], unit: crate::units::ConcUnit) -> Result<()> {
-    let pick = [
-        ranked.iter().find(|r| r.n == 2 && r.n_censored == 0),
-        ranked.iter().find(|r| r.n == 0 && r.n_censored > 0 && r.ki.is_some()),
-        ranked.iter().find(|r| r.error.is_some()),
-    ];
-    let rows: Vec<_> = pick.into_iter().flatten().cloned().collect();
-    let bytes = crate::view::rank::render(&rows, unit, crate::io::Format::Csv)?;
-    println!("\nRegistry export (`kimech rank … --format csv`; contract in README.md), three of its rows:");
-    println!("a two-value group (interval = the range of the two), a bound, and a row that failed:\n");
-    print!("{}", String::from_utf8_lossy(&bytes));
-    Ok(())
 }
 
 /// `kimech ki NAME` with every default: conditions come from the table.
