@@ -335,6 +335,23 @@ pub(crate) fn describe_csv_error(e: &csv::Error) -> String {
     }
 }
 
+/// The table's rows grouped by the text of `label_col` (one group, labelled
+/// `None`, without one), groups in order of first appearance and rows in file
+/// order: the series of `km`, the compounds of `mode`, the curves of `rates`.
+pub fn group_by_label(table: &Table, label_col: Option<usize>) -> Vec<(Option<String>, Vec<&Record>)> {
+    let mut groups: Vec<(Option<String>, Vec<&Record>)> = Vec::new();
+    let mut index: std::collections::HashMap<Option<String>, usize> = std::collections::HashMap::new();
+    for row in &table.rows {
+        let label = label_col.map(|c| table.text(row, c).to_string());
+        let k = *index.entry(label.clone()).or_insert_with(|| {
+            groups.push((label, Vec::new()));
+            groups.len() - 1
+        });
+        groups[k].1.push(row);
+    }
+    groups
+}
+
 /// "line 4" or "lines 4-9": where a group's rows are, for messages.
 pub fn rows_origin(rows: &[&Record]) -> String {
     match (rows.first(), rows.last()) {

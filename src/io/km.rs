@@ -2,11 +2,9 @@
 //! optional series and sd) into one [`Series`] per series label, with the
 //! substrate converted to one unit.
 
-use std::collections::HashMap;
-
 use crate::analysis::km::{Series, Units};
 use crate::error::Result;
-use crate::io::input::{ColumnSpec, Table, rows_origin};
+use crate::io::input::{ColumnSpec, Table, group_by_label, rows_origin};
 use crate::units::ConcUnit;
 
 const SUBSTRATE: ColumnSpec = ColumnSpec::new("substrate", &["s", "substrate_concentration", "conc", "concentration"]);
@@ -33,16 +31,7 @@ pub fn read(table: &Table, options: &ReadOptions) -> Result<(Vec<Series>, Units)
         return Err(table.require(&SD).unwrap_err());
     }
     let unit = table.column_unit(s_col, options.substrate_unit)?;
-    let mut groups: Vec<(Option<String>, Vec<&crate::io::input::Record>)> = Vec::new();
-    let mut index: HashMap<Option<String>, usize> = HashMap::new();
-    for row in &table.rows {
-        let label = series_col.map(|c| table.text(row, c).to_string());
-        let k = *index.entry(label.clone()).or_insert_with(|| {
-            groups.push((label, Vec::new()));
-            groups.len() - 1
-        });
-        groups[k].1.push(row);
-    }
+    let groups = group_by_label(table, series_col);
     let mut series = Vec::new();
     for (label, rows) in groups {
         let mut s = Series {

@@ -2,11 +2,9 @@
 //! rate; optional compound and sd) into one [`Matrix`] per compound, with
 //! both concentrations converted to one unit each.
 
-use std::collections::HashMap;
-
 use crate::analysis::mode::{Matrix, Units};
 use crate::error::{Error, Result};
-use crate::io::input::{ColumnSpec, Record, Table, rows_origin};
+use crate::io::input::{ColumnSpec, Record, Table, group_by_label, rows_origin};
 use crate::units::ConcUnit;
 
 const SUBSTRATE: ColumnSpec = ColumnSpec::new("substrate", &["s", "substrate_concentration"]);
@@ -46,16 +44,7 @@ pub fn read(table: &Table, options: &ReadOptions) -> Result<(Vec<Matrix>, Units,
             });
         }
     }
-    let mut groups: Vec<(Option<String>, Vec<&Record>)> = Vec::new();
-    let mut index: HashMap<Option<String>, usize> = HashMap::new();
-    for row in &table.rows {
-        let label = compound_col.map(|c| table.text(row, c).to_string());
-        let k = *index.entry(label.clone()).or_insert_with(|| {
-            groups.push((label, Vec::new()));
-            groups.len() - 1
-        });
-        groups[k].1.push(row);
-    }
+    let groups = group_by_label(table, compound_col);
     let cols = Columns { s: s_col, i: i_col, v: v_col, sd: sd_col, s_unit, i_unit };
     let (mut matrices, mut failures) = (Vec::new(), Vec::new());
     for (label, rows) in groups {

@@ -2,11 +2,9 @@
 //! optional curve label and any other columns, which must be constant per
 //! curve and are carried to the output) into one [`Curve`] per curve.
 
-use std::collections::HashMap;
-
 use crate::analysis::rates::Curve;
 use crate::error::Result;
-use crate::io::input::{ColumnSpec, Record, Table, rows_origin};
+use crate::io::input::{ColumnSpec, Record, Table, group_by_label, rows_origin};
 use crate::units::ConcUnit;
 
 const CURVE: ColumnSpec = ColumnSpec::new("curve", &["well", "progress_curve", "id"]);
@@ -42,7 +40,7 @@ pub fn read(table: &Table) -> Result<RatesInput> {
     let product_unit = table.unit_text(signal_col).and_then(ConcUnit::parse);
     let substrate_col = table.find(&SUBSTRATE).filter(|c| carried_cols.contains(c));
     let mut curves = Vec::new();
-    for (label, rows) in &group_rows(table, curve_col) {
+    for (label, rows) in &group_by_label(table, curve_col) {
         let carried = carried_values(table, rows, &carried_cols)?;
         let mut curve = read_curve(table, label.clone(), rows, time_col, signal_col)?;
         curve.substrate = initial_substrate(table, rows[0], substrate_col, product_unit)?;
@@ -54,20 +52,6 @@ pub fn read(table: &Table) -> Result<RatesInput> {
         has_curve_column: curve_col.is_some(),
         rate_unit,
     })
-}
-
-fn group_rows(table: &Table, curve_col: Option<usize>) -> Vec<(Option<String>, Vec<&Record>)> {
-    let mut groups: Vec<(Option<String>, Vec<&Record>)> = Vec::new();
-    let mut index: HashMap<Option<String>, usize> = HashMap::new();
-    for row in &table.rows {
-        let label = curve_col.map(|c| table.text(row, c).to_string());
-        let k = *index.entry(label.clone()).or_insert_with(|| {
-            groups.push((label, Vec::new()));
-            groups.len() - 1
-        });
-        groups[k].1.push(row);
-    }
-    groups
 }
 
 /// The carried columns' values, which must not change within a curve.

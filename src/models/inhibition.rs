@@ -378,19 +378,6 @@ impl Extension {
         }
     }
 
-    /// Parses a name as written in a table or on the command line
-    /// (case-insensitive; `non-competitive`, `no inhibition` accepted).
-    pub fn parse(text: &str) -> Option<Mechanism> {
-        match text.trim().to_ascii_lowercase().replace(['-', ' ', '_'], "").as_str() {
-            "none" | "noinhibition" => Some(Mechanism::None),
-            "competitive" => Some(Mechanism::Competitive),
-            "uncompetitive" => Some(Mechanism::Uncompetitive),
-            "noncompetitive" => Some(Mechanism::Noncompetitive),
-            "mixed" => Some(Mechanism::Mixed),
-            _ => None,
-        }
-    }
-
     /// Parameter names in vector order.
     pub fn names(self) -> &'static [&'static str] {
         match self {
