@@ -382,7 +382,7 @@ fn csv_output_carries_columns_and_writes_bounds_with_their_qualifier() {
     let table = kimech::io::Table::parse("out.csv", &out.stdout, b',').unwrap();
     let col = |name: &str| table.columns.iter().position(|c| c.header == name).unwrap_or_else(|| panic!("{name}"));
     let (ic50, q) = (col("ic50 (nM)"), col("qualifier"));
-    for name in ["compound", "ic50_low", "ic50_high", "hill", "target", "substrate (uM)", "km (uM)"] {
+    for name in ["compound", "ic50_low (nM)", "ic50_high (nM)", "hill", "target", "substrate (uM)", "km (uM)"] {
         col(name);
     }
     let weak = &table.rows[1];

@@ -217,15 +217,15 @@ pub const COLUMNS: &[Column] = &[
     Column::cell("ic50", |r| qualified(r.qualifier, r.ic50.value))
         .concentration()
         .shown(Label::Made(|c| format!("IC50 ({})", c.unit)), |r, _| people(r.qualifier, sig(r.ic50.value, 4))),
-    Column::cell("ic50_se", |r| Cell::Full(r.ic50.se)),
-    Column::cell("ic50_low", |r| Cell::Full(r.ic50.low)).shown(
+    Column::cell("ic50_se", |r| Cell::Full(r.ic50.se)).concentration(),
+    Column::cell("ic50_low", |r| Cell::Full(r.ic50.low)).concentration().shown(
         Label::Made(|c| format!("{:.0}% interval", 100.0 * c.confidence)),
         |r, _| match r.qualifier.is_bound() {
             true => "(bound)".into(),
             false => interval_text(r.ic50.low, r.ic50.high),
         },
     ),
-    Column::cell("ic50_high", |r| Cell::Full(r.ic50.high)),
+    Column::cell("ic50_high", |r| Cell::Full(r.ic50.high)).concentration(),
     Column::cell("ic50_interval", |r| text(r.ic50.interval)),
     Column::cell("pic50", |r| Cell::Full(Some(r.pic50)))
         .shown(Label::Fixed("pIC50"), |r, _| people(r.qualifier.reversed(), format!("{:.2}", r.pic50))),
