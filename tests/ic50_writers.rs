@@ -70,7 +70,9 @@ fn text_cells_are_guarded_and_numbers_are_not() {
     // The fitted lower asymptotes of these curves are slightly negative: numbers, not text.
     let lower: Vec<f64> = rows.iter().map(|r| r[col("lower")].parse().unwrap()).collect();
     assert!(lower[..2].iter().all(|v| *v < 0.0), "{lower:?}");
-    for name in ["ic50_se (nM)", "ic50_low (nM)", "pic50", "hill", "upper", "lower", "lower_low", "residual_sd", "r2", "flat_p"] {
+    for name in
+        ["ic50_se (nM)", "ic50_low (nM)", "pic50", "hill", "upper", "lower", "lower_low", "residual_sd", "r2", "flat_p"]
+    {
         for r in &rows {
             let cell = &r[col(name)];
             assert!(!cell.starts_with('\''), "{name}: {cell}");

@@ -465,8 +465,10 @@ fn rank_plots_put_each_compound_at_its_pki_and_draw_bounds_apart() {
     assert_eq!(xs.len(), 2, "two estimates: {xs:?}");
     let px = (frame.x.hi - frame.x.lo) / (frame.px.1 - frame.px.0) as f64;
     assert!((xs[0] - 6.0).abs() <= px && (xs[1] - 8.0).abs() <= px, "{xs:?}");
-    // The bound is an open circle in the second colour, not a diamond.
+    // The bound is an open circle in the second colour, not a diamond — in the
+    // plot and in the legend's key alike.
     assert!(svg.text.contains("fill=\"none\" stroke=\"#D55E00\""));
+    assert!(diamonds(&svg.text, "#D55E00").is_empty(), "a diamond drawn for a bound");
 }
 
 #[test]

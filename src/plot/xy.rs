@@ -379,8 +379,11 @@ fn legend_entries(chart: &XyChart) -> Vec<(Key, String)> {
             | Layer::Function { label: Some(l), series, dashed, .. } => {
                 Some((Key::Line(style::colour(*series), *dashed), l))
             }
-            Layer::Estimate { label: Some(l), series, .. } => {
-                Some((Key::Marker(Shape::Diamond, style::colour(*series)), l))
+            // The key is the marker drawn: a diamond for an estimate, an open
+            // circle for a bound (see `draw_point`).
+            Layer::Estimate { label: Some(l), series, bound, .. } => {
+                let shape = if bound.is_some() { Shape::OpenCircle } else { Shape::Diamond };
+                Some((Key::Marker(shape, style::colour(*series)), l))
             }
             Layer::Reference { label: Some(l), .. } => Some((Key::Line(style::REFERENCE, true), l)),
             Layer::Band { label: Some(l), series, .. } => Some((Key::Swatch(style::colour(*series)), l)),
