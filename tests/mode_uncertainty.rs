@@ -267,18 +267,21 @@ fn pct(a: usize, b: usize) -> f64 {
     if b == 0 { f64::NAN } else { 100.0 * a as f64 / b as f64 }
 }
 
+/// Every simulated class, in the order the tables list them.
+const ALL_CLASSES: [Class; 8] = [
+    Class::Competitive,
+    Class::Uncompetitive,
+    Class::Noncompetitive,
+    Class::MixedLow,
+    Class::MixedHigh,
+    Class::Partial,
+    Class::MildPartial,
+    Class::SubstrateInhibition,
+];
+
 /// Runs every class and prints the confusion matrix and rates; returns the tallies.
 fn simulate_all(n: usize) -> Vec<(Class, Tally)> {
-    let classes = [
-        Class::Competitive,
-        Class::Uncompetitive,
-        Class::Noncompetitive,
-        Class::MixedLow,
-        Class::MixedHigh,
-        Class::Partial,
-        Class::MildPartial,
-        Class::SubstrateInhibition,
-    ];
+    let classes = ALL_CLASSES;
     let only = std::env::var("KIMECH_SIM_ONLY").ok();
     let out: Vec<(Class, Tally)> = classes
         .iter()
@@ -430,16 +433,7 @@ fn headline_covers_uncertainty_fires_and_diagnoses_are_named() {
 fn extension_starts_reach_the_grid_optimum() {
     let n = std::env::var("KIMECH_SIM_N").ok().and_then(|v| v.parse().ok()).unwrap_or(200);
     let offset: u64 = std::env::var("KIMECH_SIM_SEED_OFFSET").ok().and_then(|v| v.parse().ok()).unwrap_or(0);
-    let classes = [
-        Class::Competitive,
-        Class::Uncompetitive,
-        Class::Noncompetitive,
-        Class::MixedLow,
-        Class::MixedHigh,
-        Class::Partial,
-        Class::MildPartial,
-        Class::SubstrateInhibition,
-    ];
+    let classes = ALL_CLASSES;
     let settings = FitSettings::default();
     let (mut ours_time, mut grid_time, mut misses, mut fits) = (0.0, 0.0, 0, 0);
     let only = std::env::var("KIMECH_SIM_ONLY").ok();

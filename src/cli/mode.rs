@@ -80,7 +80,8 @@ pub struct Outcome {
     pub total: usize,
 }
 
-/// [`analyse_table`], keeping each compound's matrix beside its result.
+/// Reads and analyses every compound of a table, keeping each compound's
+/// matrix beside its result (for pictures); a compound that fails is a failure, not fatal.
 pub fn analyse_with_matrices(table: &Table, args: &Args) -> Result<Outcome> {
     let (matrices, units, mut failures) = read(table, &read_options(args))?;
     let total = matrices.len() + failures.len();

@@ -109,6 +109,11 @@ impl<R: Read> Read for HashingReader<R> {
     }
 }
 
+/// `kimech <version>`: how every output names the tool that made it.
+pub fn tool() -> String {
+    format!("kimech {}", env!("CARGO_PKG_VERSION"))
+}
+
 /// The record so far; `None` when the run did not come through `cli::run`.
 /// A streamed input's hash covers the bytes read until now (all of them once
 /// the command has read to the end, which every command does before writing
@@ -117,7 +122,7 @@ pub fn current() -> Option<Provenance> {
     with_state(|s| {
         let state = s.as_ref()?;
         Some(Provenance {
-            tool: format!("kimech {}", env!("CARGO_PKG_VERSION")),
+            tool: tool(),
             command: state.command.clone(),
             started: state.started.clone(),
             inputs: distinct_inputs(&state.inputs),

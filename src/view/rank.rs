@@ -29,7 +29,7 @@ pub struct Report {
 
 /// The version string written into every export.
 pub fn tool_version() -> String {
-    format!("kimech {}", env!("CARGO_PKG_VERSION"))
+    crate::io::provenance::tool()
 }
 
 /// Serialises ranked rows (Ki in mol/L) in the chosen format, Ki values in `unit`.

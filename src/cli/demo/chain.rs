@@ -15,13 +15,8 @@ pub(super) fn ki_rank_stage(ic50_csv: &str, sections: &mut Vec<Section>) -> Resu
 
 /// The `ki` and `rank` stages: each IC50 table (name, CSV text, `ki` options) goes through
 /// `kimech ki` and its CSV output, and all of them together through `kimech rank`,
-/// exactly as a user would pipe them.
-pub fn ki_and_rank(tables: &[(&str, &str, ki::Args)]) -> Result<()> {
-    ki_and_rank_into(tables, &mut Vec::new())
-}
-
-/// [`ki_and_rank`], adding a report section per stage (the ranking with its charts).
-pub fn ki_and_rank_into(tables: &[(&str, &str, ki::Args)], sections: &mut Vec<Section>) -> Result<()> {
+/// exactly as a user would pipe them; a report section per stage (the ranking with its charts).
+fn ki_and_rank_into(tables: &[(&str, &str, ki::Args)], sections: &mut Vec<Section>) -> Result<()> {
     let mut ki_csv = Vec::new();
     let mut failures = Vec::new();
     let mut total = 0;

@@ -8,7 +8,6 @@ mod chain;
 mod plan_stage;
 
 use chain::{IC50_CSV, ki_rank_stage};
-pub use chain::{ki_and_rank, ki_and_rank_into};
 
 use super::{OutputArgs, ic50, ki, km, mode, rates};
 use crate::error::Result;
@@ -182,14 +181,10 @@ fn mode_file_stage(sections: &mut Vec<Section>, path: &str, text: &str) -> Resul
     super::finish(&outcome.failures, outcome.total, "compounds")
 }
 
-/// Stage 4: dose-response plates → IC50 table. Prints the human report and
-/// returns the CSV a user would pass on to `kimech ki`, with the stage's status.
-pub fn dose_response_stage() -> Result<(String, Result<()>)> {
-    dose_response_stage_into(&mut Vec::new())
-}
-
-/// [`dose_response_stage`], adding the report section (table and thumbnails).
-pub fn dose_response_stage_into(sections: &mut Vec<Section>) -> Result<(String, Result<()>)> {
+/// Stage 4: dose-response plates → IC50 table. Prints the human report, adds
+/// the report section (table and thumbnails) and returns the CSV a user would
+/// pass on to `kimech ki`, with the stage's status.
+fn dose_response_stage_into(sections: &mut Vec<Section>) -> Result<(String, Result<()>)> {
     let name = "demo-compounds/dose-response.csv";
     println!("\nStage 4 — dose-response plates → IC50, Hill coefficient, quality flags (Z′ per plate)");
     println!("  $ kimech ic50 {name} --normalise");
