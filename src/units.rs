@@ -375,10 +375,76 @@ pub fn sig(value: f64, digits: usize) -> String {
     format!("{value:.decimals$}")
 }
 
+/// A potency (IC50, Ki, KI …) for people: three significant figures, the
+/// integer digits rounded too (`6666` → `6670`), so that a table never
+/// suggests more precision than an assay carries (common practice).
+pub fn potency(value: f64) -> String {
+    if !value.is_finite() || value == 0.0 {
+        return sig(value, 3);
+    }
+    let magnitude = value.abs().log10().floor() as i32;
+    if (3..6).contains(&magnitude) {
+        let step = 10f64.powi(magnitude - 2);
+        let rounded = (value / step).round() * step;
+        return sig(rounded, 3);
+    }
+    sig(value, 3)
+}
+
+/// A unit as people read it: `uM` → `µM` and `umol` → `µmol` wherever they
+/// stand as a unit (`uM/min`, `1/(uM·min)`), the ASCII spelling being kept
+/// for files (exports stay ASCII).
+pub fn for_people(unit: &str) -> String {
+    let mut out = String::with_capacity(unit.len() + 1);
+    for (i, c) in unit.char_indices() {
+        let starts_word = !unit[..i].ends_with(|b: char| b.is_ascii_alphabetic());
+        let rest = &unit[i + c.len_utf8()..];
+        let micro_molar = rest.starts_with('M') && !rest[1..].starts_with(|b: char| b.is_ascii_alphabetic());
+        if c == 'u' && starts_word && (micro_molar || rest.starts_with("mol")) {
+            out.push('µ');
+        } else {
+            out.push(c);
+        }
+    }
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
     use approx::assert_relative_eq;
+
+    #[test]
+    fn potencies_have_three_significant_figures() {
+        for (v, text) in [
+            (9.454, "9.45"),
+            (0.35, "0.350"),
+            (6666.0, "6670"),
+            (49999.0, "50000"),
+            (835.1, "835"),
+            (1.0e7, "1.00e7"),
+            (-12.34, "-12.3"),
+        ] {
+            assert_eq!(potency(v), text, "{v}");
+        }
+    }
+
+    #[test]
+    fn micro_is_written_as_mu_for_people_only_where_it_is_a_unit() {
+        for (unit, text) in [
+            ("uM", "µM"),
+            ("uM/min", "µM/min"),
+            ("1/(uM*min)", "1/(µM*min)"),
+            ("1/(uM·min)", "1/(µM·min)"),
+            ("umol/L", "µmol/L"),
+            ("nM", "nM"),
+            ("1/min", "1/min"),
+            ("uMax", "uMax"),
+            ("sum", "sum"),
+        ] {
+            assert_eq!(for_people(unit), text, "{unit}");
+        }
+    }
 
     #[test]
     fn parses_every_accepted_spelling() {

@@ -25,4 +25,16 @@ fn demo_runs_every_stage_states_the_caution_and_writes_its_report() {
         .stdout(predicate::str::contains("Report written to kimech-demo-report.html"));
     let report = std::fs::read_to_string(dir.path().join("kimech-demo-report.html")).unwrap();
     assert!(report.contains("<svg") && report.contains("research estimates"));
+    // Issue 12: the report is a document — every table is an HTML table (no
+    // preformatted terminal text that a narrow window cuts off), each command
+    // with a summary, rows with an error or a flag listed first.
+    assert!(!report.contains("<pre class=\"table\">"), "a terminal table was pasted into the report");
+    assert!(report.contains("<h3>Summary (compounds with a warning first)</h3>"));
+    assert!(report.contains("compounds. Calls: competitive × 1"), "the mode summary counts the calls");
+    assert!(report.contains("<h3>Rows with an error or a flag</h3>"));
+    assert!(report.matches("<div class=\"scroll\"><table>").count() >= 10, "tables scroll instead of being cut off");
+    // People read µM; the files keep the ASCII uM.
+    assert!(report.contains("Km (µM)") && !report.contains("Km (uM)"));
+    // Potencies to three significant figures in what people read.
+    assert!(report.contains("Ki = 42.3 nM"), "three significant figures for a potency");
 }

@@ -181,7 +181,7 @@ fn human_output_has_one_block_per_compound_and_the_caution() {
     let text = String::from_utf8(out.stdout).unwrap();
     assert_eq!(text.matches("Inhibition mode — ").count(), 4);
     assert!(text.contains("choice (AICc): competitive (Akaike weight"), "{text}");
-    assert!(text.contains("competitive inhibition, global fit, 95% profile-likelihood intervals: Ki = 2.346 uM"));
+    assert!(text.contains("competitive inhibition, global fit, 95% profile-likelihood intervals: Ki = 2.35 µM"));
     assert!(text.trim_end().ends_with(kimech::cli::CAUTION));
 }
 

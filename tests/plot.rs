@@ -214,7 +214,7 @@ fn km_report_holds_tables_warnings_and_one_figure_per_series() {
     assert_eq!(html.matches("<svg").count(), 2, "treated and untreated");
     assert!(html.contains("Michaelis–Menten fit — series treated"));
     assert!(html.contains("kcat/Km"));
-    assert!(html.contains("<table>") && html.contains("Km") && html.contains("profile"));
+    assert!(html.contains("<table>\n<thead>") && html.contains("Km") && html.contains("profile"));
     assert!(html.contains(&kimech::plot::html::escape(kimech::cli::CAUTION)));
     assert!(html.contains("for display only"));
 }

@@ -18,7 +18,7 @@ use crate::error::{Error, Result};
 use crate::io::Format;
 use crate::io::ic50::{CurveReader, Input, ReadOptions, read_controls};
 use crate::units::ConcUnit;
-use crate::view::ic50::{Context, Line, StreamWriter, plates_table, table_header, table_row};
+use crate::view::ic50::{Context, Line, StreamWriter, plates_grid, table_header, table_row};
 
 /// Everything a run needs besides its input and output.
 #[derive(Debug, Clone)]
@@ -79,7 +79,7 @@ pub struct Pictures {
     /// Thumbnails and table rows.
     pub gallery: crate::plot::ic50::Gallery,
     /// The plate table (with normalisation).
-    pub plates: Option<String>,
+    pub plates: Option<crate::view::Grid>,
     /// Messages of compounds that failed.
     pub failures: Vec<String>,
     names: crate::plot::files::Names,
@@ -141,7 +141,7 @@ impl Pictures {
 
     /// The report section of what was collected.
     pub fn section(&self, command: &str) -> Result<crate::plot::html::Section> {
-        crate::plot::ic50::section(&self.gallery, self.plates.as_deref(), &self.failures, command)
+        crate::plot::ic50::section(&self.gallery, self.plates.as_ref(), &self.failures, command)
     }
 
     /// Hands a fitted batch over (the curves only when kept).
@@ -195,7 +195,7 @@ pub fn run(
     if let Some(p) = &plates {
         writer.plates(&p.qc)?;
         if let Some(pics) = pictures.as_deref_mut() {
-            pics.plates = Some(plates_table(&p.qc));
+            pics.plates = Some(plates_grid(&p.qc));
         }
     }
     let response_unit =

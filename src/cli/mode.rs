@@ -9,7 +9,7 @@ use crate::fit::FitSettings;
 use crate::io::mode::{ReadOptions, read};
 use crate::io::{Table, write_output};
 use crate::units::ConcUnit;
-use crate::view::mode::{block, render};
+use crate::view::mode::render;
 
 /// Say how a compound inhibits: global fits of none, competitive,
 /// uncompetitive, noncompetitive and mixed inhibition to an [S]×[I] rate
@@ -99,7 +99,7 @@ pub fn analyse_with_matrices(table: &Table, args: &Args) -> Result<Outcome> {
 /// The report section of a run: per compound its text block and figure.
 pub fn report_section(outcome: &Outcome, command: &str) -> Result<crate::plot::html::Section> {
     let pairs: Vec<(&ModeResult, &Matrix)> = outcome.pairs.iter().map(|(r, m)| (r, m)).collect();
-    crate::plot::mode::section(&pairs, &outcome.units, block, &outcome.failures, command)
+    crate::plot::mode::section(&pairs, &outcome.units, &outcome.failures, command)
 }
 
 /// Writes `--plot` SVGs (one per compound) and the `--report` page.

@@ -44,8 +44,8 @@ pub enum Block {
     Warnings(Vec<(String, String)>),
     /// Errors of groups that could not be analysed.
     Failures(Vec<String>),
-    /// Text laid out in columns already (a command's human table), shown as it is.
-    Preformatted(String),
+    /// Notes in words (errors, ranges and flags of rows already in a table), as a list.
+    Notes(Vec<String>),
     /// A figure: inline SVG and a caption.
     Figure {
         /// The SVG document as the chart functions return it.
@@ -55,20 +55,30 @@ pub enum Block {
     },
 }
 
-/// A table: header cells and rows of text cells.
-#[derive(Debug, Clone, Default)]
-pub struct Table {
-    /// Column headings.
-    pub header: Vec<String>,
-    /// Rows; numbers already formatted.
-    pub rows: Vec<Vec<String>>,
-}
+/// A table: header cells and rows of text cells — the views' [`Grid`], so
+/// the report shows what the terminal shows.
+pub use crate::view::Grid as Table;
 
-/// A command's human output without its closing caution, which the page
-/// states once at its end.
-pub fn without_caution(text: &str) -> String {
-    let trimmed = text.trim_end();
-    trimmed.strip_suffix(crate::view::CAUTION).unwrap_or(trimmed).trim_end().to_string()
+/// A report's parts (from a view) as page blocks: the title as a heading, lines
+/// as paragraphs, tables as tables, warnings gathered into one list.
+pub fn blocks_of(parts: &[crate::view::Part]) -> Vec<Block> {
+    use crate::view::Part;
+    let mut blocks = Vec::new();
+    let mut warnings = Vec::new();
+    for part in parts {
+        match part {
+            Part::Title(t) => blocks.push(Block::Heading(t.clone())),
+            Part::TitleWith { title, finding } => {
+                blocks.push(Block::Heading(title.clone()));
+                blocks.push(Block::Paragraph(finding.clone()));
+            }
+            Part::Line(t) => blocks.push(Block::Paragraph(t.clone())),
+            Part::Table(g) => blocks.push(Block::Table(g.clone())),
+            Part::Warning { code, message } => warnings.push((code.clone(), message.clone())),
+        }
+    }
+    blocks.push(Block::Warnings(warnings));
+    blocks
 }
 
 /// Escapes text for HTML element content and attribute values.
@@ -213,8 +223,14 @@ fn render_block(out: &mut String, block: &Block) {
             }
             out.push_str("</ul>\n");
         }
-        Block::Warnings(_) | Block::Failures(_) => {}
-        Block::Preformatted(text) => out.push_str(&format!("<pre class=\"table\">{}</pre>\n", escape(text))),
+        Block::Notes(ns) if !ns.is_empty() => {
+            out.push_str("<ul class=\"notes\">\n");
+            for n in ns {
+                out.push_str(&format!("<li>{}</li>\n", escape(n)));
+            }
+            out.push_str("</ul>\n");
+        }
+        Block::Warnings(_) | Block::Failures(_) | Block::Notes(_) => {}
         Block::Figure { svg, caption } => {
             out.push_str("<figure>\n");
             out.push_str(&super::inline(svg));
@@ -232,7 +248,7 @@ fn is_numeric(cell: &str) -> bool {
 }
 
 fn render_table(out: &mut String, t: &Table) {
-    out.push_str("<table>\n<thead><tr>");
+    out.push_str("<div class=\"scroll\"><table>\n<thead><tr>");
     for h in &t.header {
         out.push_str(&format!("<th>{}</th>", escape(h)));
     }
@@ -245,7 +261,7 @@ fn render_table(out: &mut String, t: &Table) {
         }
         out.push_str("</tr>\n");
     }
-    out.push_str("</tbody>\n</table>\n");
+    out.push_str("</tbody>\n</table></div>\n");
 }
 
 #[cfg(test)]

@@ -190,10 +190,16 @@ impl Gallery {
 
 /// The report section of an ic50 run: the summary table (the terminal's, from the view), the plate table when
 /// there is one, and the thumbnail grid (flagged first).
-pub fn section(gallery: &Gallery, plates: Option<&str>, failures: &[String], command: &str) -> Result<Section> {
+pub fn section(
+    gallery: &Gallery,
+    plates: Option<&crate::view::Grid>,
+    failures: &[String],
+    command: &str,
+) -> Result<Section> {
     let mut blocks = Vec::new();
     if let Some(p) = plates {
-        blocks.push(Block::Preformatted(super::html::without_caution(p)));
+        blocks.push(Block::Heading(crate::view::ic50::PLATES_TITLE.into()));
+        blocks.push(Block::Table(p.clone()));
     }
     if !gallery.rows.is_empty() {
         blocks.push(Block::Table(super::html::Table { header: gallery.header.clone(), rows: gallery.rows.clone() }));

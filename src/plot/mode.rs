@@ -10,7 +10,7 @@
 use std::rc::Rc;
 
 use super::charts::{RatePoint, RateUnits, View, evidence_panel, linear_view, rate_family, residual_panel};
-use super::html::{Block, Section, without_caution};
+use super::html::{Block, Section, blocks_of};
 use super::xy::{Layer, XyChart};
 use super::{PANEL, Svg};
 use crate::analysis::mode::{Matrix, ModeResult, ModelResult, Units};
@@ -207,19 +207,17 @@ pub fn figure(r: &ModeResult, matrix: &Matrix, u: &Units) -> Result<Svg> {
     super::figure(&panels, 3, PANEL, &format!("the mode plots of {}", compound_name(r)))
 }
 
-/// The report section of a mode run: the human text per compound and its figure.
-pub fn section(
-    results: &[(&ModeResult, &Matrix)],
-    u: &Units,
-    human: impl Fn(&ModeResult) -> String,
-    failures: &[Error],
-    command: &str,
-) -> Result<Section> {
-    let mut blocks = Vec::new();
+/// The report section of a mode run: per compound the view's parts (the
+/// terminal's lines and model table, as HTML) and its figure.
+pub fn section(results: &[(&ModeResult, &Matrix)], u: &Units, failures: &[Error], command: &str) -> Result<Section> {
+    let all: Vec<&ModeResult> = results.iter().map(|(r, _)| *r).collect();
+    let mut blocks = vec![
+        Block::Paragraph(crate::view::mode::summary_text(&all)),
+        Block::Heading("Summary (compounds with a warning first)".into()),
+        Block::Table(crate::view::mode::summary_grid(&all)),
+    ];
     for (r, matrix) in results {
-        blocks.push(Block::Heading(format!("Mechanism — {}", compound_name(r))));
-        blocks.push(Block::Preformatted(without_caution(&human(r))));
-        blocks.push(Block::Warnings(r.warnings.iter().map(|w| (w.code.to_string(), w.message.clone())).collect()));
+        blocks.extend(blocks_of(&crate::view::mode::parts(r)));
         blocks.push(Block::Figure {
             svg: figure(r, matrix, u)?.text,
             caption: format!(

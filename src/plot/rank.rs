@@ -86,7 +86,7 @@ pub fn section(rows: &[RankRow], unit: ConcUnit, failures: &[Error], command: &s
     }
     let notes = crate::view::rank::row_notes(&shown);
     if !notes.is_empty() {
-        blocks.push(Block::Failures(notes));
+        blocks.push(Block::Notes(notes));
     }
     blocks.push(Block::Paragraph(crate::view::rank::LE_NOTE.into()));
     for ((target, endpoint), group) in groups(rows) {

@@ -12,14 +12,14 @@
 use std::io::Write;
 use std::path::PathBuf;
 
-use super::CAUTION;
+use super::{CAUTION, Grid};
 use crate::analysis::ic50::{Ic50Result, PlateQc};
 use crate::error::{Error, Result};
 use crate::io::Format;
 use crate::io::ic50::CarriedColumn;
 use crate::io::output::{Cell, CsvExport, RenderedRow, new_grid, qualifier_cell, sig};
 use crate::report::Param;
-use crate::units::{ConcUnit, Qualifier};
+use crate::units::{ConcUnit, Qualifier, for_people, potency};
 
 /// What the header and the table need besides a result.
 #[derive(Debug, Clone, Copy)]
@@ -198,7 +198,7 @@ fn ki_app(r: &Ic50Result) -> Option<&Param> {
 /// range, neither is measured: show the bound or nothing.
 fn slope_text(r: &Ic50Result, c: &Context) -> String {
     match (c.morrison, r.qualifier) {
-        (true, q) => r.ki_app.as_ref().map_or("—".into(), |k| people(q, sig(k.value, 4))),
+        (true, q) => r.ki_app.as_ref().map_or("—".into(), |k| people(q, potency(k.value))),
         (false, Qualifier::Equal) => r.hill.as_ref().map_or("—".into(), |h| sig(h.value, 3)),
         (false, _) => "—".into(),
     }
@@ -216,7 +216,9 @@ pub const COLUMNS: &[Column] = &[
     Column::cell("qualifier", |r| text(qualifier_cell(r.qualifier))),
     Column::cell("ic50", |r| qualified(r.qualifier, r.ic50.value))
         .concentration()
-        .shown(Label::Made(|c| format!("IC50 ({})", c.unit)), |r, _| people(r.qualifier, sig(r.ic50.value, 4))),
+        .shown(Label::Made(|c| format!("IC50 ({})", for_people(c.unit.symbol()))), |r, _| {
+            people(r.qualifier, potency(r.ic50.value))
+        }),
     Column::cell("ic50_se", |r| Cell::Full(r.ic50.se)).concentration(),
     Column::cell("ic50_low", |r| Cell::Full(r.ic50.low)).concentration().shown(
         Label::Made(|c| format!("{:.0}% interval", 100.0 * c.confidence)),
@@ -229,8 +231,10 @@ pub const COLUMNS: &[Column] = &[
     Column::cell("ic50_interval", |r| text(r.ic50.interval)),
     Column::cell("pic50", |r| Cell::Full(Some(r.pic50)))
         .shown(Label::Fixed("pIC50"), |r, _| people(r.qualifier.reversed(), format!("{:.2}", r.pic50))),
-    Column::param("hill", measured_hill, Part::Value)
-        .shown(Label::Made(|c| if c.morrison { format!("Ki,app ({})", c.unit) } else { "Hill".into() }), slope_text),
+    Column::param("hill", measured_hill, Part::Value).shown(
+        Label::Made(|c| if c.morrison { format!("Ki,app ({})", for_people(c.unit.symbol())) } else { "Hill".into() }),
+        slope_text,
+    ),
     Column::param("hill_se", measured_hill, Part::Se),
     Column::param("hill_low", measured_hill, Part::Low),
     Column::param("hill_high", measured_hill, Part::High),
@@ -495,13 +499,16 @@ pub fn table(results: &[&Ic50Result], context: &Context) -> String {
     format!("{grid}\nmodel: {method}; IC50 interval: {}\n\n", results.first().map_or("", |r| r.ic50.interval))
 }
 
-/// The plates' control statistics for people.
-pub fn plates_table(qc: &[PlateQc]) -> String {
-    let mut grid = new_grid(
+/// The title of the plates' control table.
+pub const PLATES_TITLE: &str = "Plate controls (Z′, Zhang, Chung & Oldenburg 1999)";
+
+/// The plates' control statistics as cells (terminal and report).
+pub fn plates_grid(qc: &[PlateQc]) -> Grid {
+    let mut grid = Grid::new(
         ["plate", "uninhibited n", "mean", "SD", "inhibited n", "mean", "SD", "Z′", "flags"].map(String::from).to_vec(),
     );
     for p in qc {
-        grid.add_row(vec![
+        grid.rows.push(vec![
             if p.plate.is_empty() { "(one plate)".into() } else { p.plate.clone() },
             p.uninhibited_n.to_string(),
             sig(p.uninhibited_mean, 4),
@@ -513,7 +520,12 @@ pub fn plates_table(qc: &[PlateQc]) -> String {
             p.flags.join(", "),
         ]);
     }
-    format!("Plate controls (Z′, Zhang, Chung & Oldenburg 1999)\n{grid}\n\n")
+    grid
+}
+
+/// The plates' control statistics for people.
+pub fn plates_table(qc: &[PlateQc]) -> String {
+    format!("{PLATES_TITLE}\n{}\n\n", plates_grid(qc).terminal())
 }
 
 /// One line per flag for the human report.
@@ -562,7 +574,7 @@ pub fn flag_meaning(code: &str) -> &'static str {
 /// An interval in words, the same in the pictures and the table: "8.26–10.8",
 /// "8.26–unbounded" when one end is missing, "not determined" when both are.
 pub fn interval_text(low: Option<f64>, high: Option<f64>) -> String {
-    let end = |v: Option<f64>| v.map_or("unbounded".into(), |v| sig(v, 3));
+    let end = |v: Option<f64>| v.map_or("unbounded".into(), potency);
     match (low, high) {
         (None, None) => "not determined".into(),
         _ => format!("{}–{}", end(low), end(high)),

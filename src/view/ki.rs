@@ -5,12 +5,12 @@ use std::io::Write;
 
 use serde::Serialize;
 
-use super::CAUTION;
+use super::{CAUTION, Grid};
 use crate::convert::{Conversion, MechanismSource};
 use crate::error::{Error, Result};
 use crate::io::Format;
-use crate::io::output::{Cell, CsvExport, JsonRows, new_grid, qualifier_cell, sig};
-use crate::units::{ConcUnit, Qualifier};
+use crate::io::output::{Cell, CsvExport, JsonRows, qualifier_cell};
+use crate::units::{ConcUnit, Qualifier, for_people, potency};
 
 /// Output columns of the CSV before the carried ones (a carried column with one
 /// of these names is renamed `input <name>`).
@@ -249,7 +249,7 @@ fn constant_text(r: &KiRow) -> String {
         None => "—".into(),
         Some(v) => {
             let q = if r.ki.qualifier == Qualifier::Equal { String::new() } else { format!("{} ", r.ki.qualifier) };
-            format!("{} {q}{} {}", r.endpoint, sig(v, 3), r.ki.unit)
+            format!("{} {q}{} {}", r.endpoint, potency(v), for_people(&r.ki.unit))
         }
     }
 }
@@ -262,12 +262,25 @@ fn pki_text(r: &KiRow) -> String {
     }
 }
 
-/// The human-readable report: one line per row, methods as a legend, then
-/// ranges, flags and errors in words.
-pub fn human(rows: &[KiRow]) -> String {
-    let mut methods: Vec<&str> = Vec::new();
-    let interval_header = format!("interval ({})", rows.first().map_or("nM", |r| r.ki.unit.as_str()));
-    let mut grid = new_grid(
+/// The conversions as table cells, shared by the terminal and the HTML
+/// report: the table, the method behind each footnote number, and every
+/// error, range and flag in words.
+pub struct KiTable {
+    /// One row per input row, in input order.
+    pub grid: Grid,
+    /// The relation behind footnote `[k]` (k = index + 1).
+    pub methods: Vec<String>,
+    /// Errors, ranges and flags in words, one line each, with the interval methods last.
+    pub notes: Vec<String>,
+    /// Which rows carry an error or a flag (for listing them first).
+    pub flagged: Vec<bool>,
+}
+
+/// Builds the [`KiTable`] of converted rows.
+pub fn ki_table(rows: &[KiRow]) -> KiTable {
+    let mut methods: Vec<String> = Vec::new();
+    let interval_header = format!("interval ({})", rows.first().map_or("nM".to_string(), |r| for_people(&r.ki.unit)));
+    let mut grid = Grid::new(
         ["line", "compound", "target", "constant", "pKi", &interval_header, "mechanism", "method", "flags"]
             .map(String::from)
             .to_vec(),
@@ -278,18 +291,16 @@ pub fn human(rows: &[KiRow]) -> String {
             _ if r.error.is_some() => 0,
             Some(i) => i + 1,
             None => {
-                methods.push(&r.method);
+                methods.push(r.method.clone());
                 methods.len()
             }
         };
         let interval = match (r.ki.low, r.ki.high) {
             (None, None) => "—".to_string(),
-            (lo, hi) => {
-                format!("{} – {}", lo.map_or("0".into(), |v| sig(v, 3)), hi.map_or("unbounded".into(), |v| sig(v, 3)))
-            }
+            (lo, hi) => format!("{} – {}", lo.map_or("0".into(), potency), hi.map_or("unbounded".into(), potency)),
         };
         let source = if r.mechanism_source == MechanismSource::Measured { "measured" } else { "assumed" };
-        grid.add_row(vec![
+        grid.rows.push(vec![
             r.row.to_string(),
             r.compound.clone(),
             r.target.clone().unwrap_or_default(),
@@ -301,26 +312,29 @@ pub fn human(rows: &[KiRow]) -> String {
             if r.error.is_some() { "ERROR".into() } else { r.flags.join(" ") },
         ]);
     }
-    let mut out = format!("IC50 → Ki\n{grid}\n");
-    for (i, m) in methods.iter().enumerate() {
-        out.push_str(&format!("[{}] {m}\n", i + 1));
-    }
+    let flagged = rows.iter().map(|r| r.error.is_some() || !r.flags.is_empty()).collect();
+    KiTable { grid, methods, notes: notes(rows), flagged }
+}
+
+/// Every error, range and flag in words, then how the intervals were made.
+fn notes(rows: &[KiRow]) -> Vec<String> {
+    let mut out = Vec::new();
     for r in rows {
         let who = format!("line {} {}", r.row, r.compound);
         if let Some(e) = &r.error {
-            out.push_str(&format!("{who}: ERROR: {e}\n"));
+            out.push(format!("{who}: ERROR: {e}"));
         }
         if let Some(g) = &r.range {
-            out.push_str(&format!(
-                "{who}: over the competitive, noncompetitive and uncompetitive relations the constant spans {}{} – {} {}\n",
+            out.push(format!(
+                "{who}: over the competitive, noncompetitive and uncompetitive relations the constant spans {}{} – {} {}",
                 if r.ki.qualifier.is_bound() { format!("{} ", r.ki.qualifier) } else { String::new() },
-                sig(g.low, 3),
-                sig(g.high, 3),
-                g.unit
+                potency(g.low),
+                potency(g.high),
+                for_people(&g.unit)
             ));
         }
         for (code, message) in r.flags.iter().zip(&r.messages) {
-            out.push_str(&format!("{who} [{code}]: {message}\n"));
+            out.push(format!("{who} [{code}]: {message}"));
         }
     }
     let mut interval_methods: Vec<&str> = Vec::new();
@@ -329,8 +343,20 @@ pub fn human(rows: &[KiRow]) -> String {
             interval_methods.push(m);
         }
     }
-    for m in interval_methods {
-        out.push_str(&format!("interval: {m}\n"));
+    out.extend(interval_methods.into_iter().map(|m| format!("interval: {m}")));
+    out
+}
+
+/// The human-readable report: one line per row, methods as a legend, then
+/// ranges, flags and errors in words.
+pub fn human(rows: &[KiRow]) -> String {
+    let table = ki_table(rows);
+    let mut out = format!("IC50 → Ki\n{}\n", table.grid.terminal());
+    for (i, m) in table.methods.iter().enumerate() {
+        out.push_str(&format!("[{}] {m}\n", i + 1));
+    }
+    for note in &table.notes {
+        out.push_str(&format!("{note}\n"));
     }
     out.push('\n');
     out.push_str(CAUTION);

@@ -135,7 +135,7 @@ pub fn param_rows(r: &KmResult) -> Vec<Vec<String>> {
             p.se.map_or("—".into(), |s| sig(s, 3)),
             end(p.low),
             end(p.high),
-            p.unit.clone().unwrap_or_default(),
+            p.unit.as_deref().map(crate::units::for_people).unwrap_or_default(),
             p.interval.to_string(),
         ]
     };

@@ -3,12 +3,13 @@
 
 use serde::Serialize;
 
-use super::CAUTION;
+use super::{CAUTION, Grid, Part};
 use crate::analysis::mode::{Basis, Criterion, ModeResult, ModelResult};
 use crate::error::Result;
 use crate::io::Format;
-use crate::io::output::{csv_bytes, json_bytes, new_grid, sig};
+use crate::io::output::{csv_bytes, json_bytes, sig};
 use crate::report::Param;
+use crate::units::{for_people, potency};
 
 /// The JSON document: `{"results": [...]}`.
 #[derive(Debug, Serialize)]
@@ -214,39 +215,46 @@ pub fn headline_text(r: &ModeResult) -> String {
     };
     let consts: Vec<String> = [("Ki", &h.ki), ("Kiu", &h.kiu)]
         .into_iter()
-        .map(|(n, p)| p.as_ref().map_or(format!("{n} not given"), |p| with_interval(n, p)))
+        .map(|(n, p)| p.as_ref().map_or(format!("{n} not given"), |p| with_interval(n, p, potency)))
         .collect();
     let flag = if r.warnings.iter().any(|w| w.code == "mechanism-uncertain") { "; MECHANISM UNCERTAIN" } else { "" };
     format!("headline: {} ({basis}{flag})", consts.join("; "))
 }
 
-/// A constant in a table cell: the estimate, or `→ ∞` / `n.d.` when it lies at a limit.
-fn cell(p: Option<&Param>) -> String {
+/// A constant in a table cell, written by `number`: the estimate, or `→ ∞` /
+/// `n.d.` when it lies at a limit.
+fn cell(p: Option<&Param>, number: fn(f64) -> String) -> String {
     match p {
         None => String::new(),
         Some(p) if p.value.is_infinite() => "→ ∞".into(),
         Some(p) if p.value.is_nan() => "n.d.".into(),
-        Some(p) => sig(p.value, 4),
+        Some(p) => number(p.value),
     }
 }
 
-/// A constant with its interval, for the chosen model's line.
-fn with_interval(name: &str, p: &Param) -> String {
-    let end = |v: Option<f64>| v.map_or("unbounded".to_string(), |v| sig(v, 3));
-    let unit = p.unit.as_deref().map(|u| format!(" {u}")).unwrap_or_default();
-    let value = if p.value.is_finite() { sig(p.value, 4) } else { cell(Some(p)) };
-    format!("{name} = {value}{unit} [{} to {}]", end(p.low), end(p.high))
+fn four(v: f64) -> String {
+    sig(v, 4)
+}
+
+/// A constant with its interval (ends to three significant figures), for the chosen
+/// model's line and the headline: `Ki = 42.3 nM [39.3 to 48.6]`, or
+/// `Ki → ∞ nM [5710 to unbounded]` at a limit.
+fn with_interval(name: &str, p: &Param, number: fn(f64) -> String) -> String {
+    let end = |v: Option<f64>| v.map_or("unbounded".to_string(), potency);
+    let unit = p.unit.as_deref().map(|u| format!(" {}", for_people(u))).unwrap_or_default();
+    let value = if p.value.is_finite() { format!("= {}", number(p.value)) } else { cell(Some(p), number) };
+    format!("{name} {value}{unit} [{} to {}]", end(p.low), end(p.high))
 }
 
 fn model_row(m: &ModelResult) -> Vec<String> {
     let p = &m.params;
     vec![
         m.model.to_string(),
-        cell(Some(&p.vmax)),
-        cell(Some(&p.km)),
-        cell(p.ki.as_ref()),
-        cell(p.alpha.as_ref()),
-        cell(p.kiu.as_ref()),
+        cell(Some(&p.vmax), four),
+        cell(Some(&p.km), four),
+        cell(p.ki.as_ref(), potency),
+        cell(p.alpha.as_ref(), four),
+        cell(p.kiu.as_ref(), potency),
         sig(m.sse, 4),
         m.aicc.map_or("—".into(), |a| format!("{a:.2}")),
         format!("{:.3}", m.weight),
@@ -258,7 +266,7 @@ fn model_row(m: &ModelResult) -> Vec<String> {
 pub fn human(results: &[ModeResult]) -> String {
     let mut out = String::new();
     for r in results {
-        out.push_str(&block(r));
+        out.push_str(&super::terminal(&parts(r)));
         out.push('\n');
     }
     out.push_str(CAUTION);
@@ -266,84 +274,150 @@ pub fn human(results: &[ModeResult]) -> String {
     out
 }
 
-/// One compound's text block: headline, model table, tests and warnings (terminal and report).
-pub fn block(r: &ModeResult) -> String {
-    let mut out = String::new();
-    let name = r.compound.as_deref().map_or("Inhibition mode".to_string(), |c| format!("Inhibition mode — {c}"));
-    out.push_str(&format!("{name} — {}\n", headline_text(r)));
-    out.push_str(&format!(
-        "(n = {}, weighting {}, global fits, Vmax and Km shared)\n",
-        r.n,
-        format!("{:?}", r.weighting).to_lowercase()
-    ));
-    let first = &r.models[0].params;
-    let unit = |p: Option<&Param>| p.and_then(|p| p.unit.clone()).map(|u| format!(" ({u})")).unwrap_or_default();
-    let iu = r.models[4].params.ki.as_ref();
-    let mut grid = new_grid(vec![
+/// The model table: every law's constants, SSE, AICc and Akaike weight.
+fn model_table(r: &ModeResult) -> Grid {
+    let unit = |p: Option<&Param>| {
+        p.and_then(|p| p.unit.as_deref()).map(|u| format!(" ({})", for_people(u))).unwrap_or_default()
+    };
+    let any = |get: fn(&ModelResult) -> Option<&Param>| r.models.iter().find_map(get);
+    let mut grid = Grid::new(vec![
         "model".into(),
-        format!("Vmax{}", unit(Some(&first.vmax))),
-        format!("Km{}", unit(Some(&first.km))),
-        format!("Ki{}", unit(iu)),
+        format!("Vmax{}", unit(any(|m| Some(&m.params.vmax)))),
+        format!("Km{}", unit(any(|m| Some(&m.params.km)))),
+        format!("Ki{}", unit(any(|m| m.params.ki.as_ref()))),
         "α".into(),
-        format!("Kiu{}", unit(iu)),
+        format!("Kiu{}", unit(any(|m| m.params.kiu.as_ref()))),
         "SSE".into(),
         "AICc".into(),
         "weight".into(),
         String::new(),
     ]);
-    for m in &r.models {
-        grid.add_row(model_row(m));
-    }
-    out.push_str(&format!("{grid}\n"));
+    grid.rows = r.models.iter().map(model_row).collect();
+    grid
+}
+
+/// One compound's report, in parts: title with the headline, the model table,
+/// the choice, the chosen law's constants, adequacy, F tests and warnings —
+/// the terminal prints them as lines, the HTML report as a section.
+pub fn parts(r: &ModeResult) -> Vec<Part> {
+    let name = r.compound.as_deref().map_or("Inhibition mode".to_string(), |c| format!("Inhibition mode — {c}"));
+    let mut parts = vec![
+        Part::TitleWith { title: name, finding: headline_text(r) },
+        Part::Line(format!(
+            "(n = {}, weighting {}, global fits, Vmax and Km shared)",
+            r.n,
+            format!("{:?}", r.weighting).to_lowercase()
+        )),
+        Part::Table(model_table(r)),
+    ];
     let criterion = match r.criterion {
         Criterion::Aicc => "AICc",
         Criterion::FTest => "F test",
     };
-    if r.extensions.iter().any(|e| e.named) {
-        out.push_str(&format!(
-            "choice: {} (diagnosis); among the five laws alone ({criterion}): {}\n",
-            r.chosen, r.evidence
-        ));
+    parts.push(Part::Line(if r.extensions.iter().any(|e| e.named) {
+        format!("choice: {} (diagnosis); among the five laws alone ({criterion}): {}", r.chosen, r.evidence)
     } else {
-        out.push_str(&format!("choice ({criterion}): {}\n", r.evidence));
-    }
-    if let Some(m) = r.models.iter().find(|m| m.model == r.chosen) {
-        let level = format!("{:.0}%", r.confidence * 100.0);
-        let consts: Vec<String> = [("Ki", &m.params.ki), ("α", &m.params.alpha), ("Kiu", &m.params.kiu)]
-            .into_iter()
-            .filter_map(|(n, p)| p.as_ref().map(|p| with_interval(n, p)))
-            .collect();
-        if !consts.is_empty() {
-            out.push_str(&format!(
-                "{} inhibition, global fit, {level} profile-likelihood intervals: {}\n",
-                m.model,
-                consts.join("; ")
-            ));
-        }
-    } else if r.headline.basis == crate::analysis::mode::Basis::Diagnosis {
-        out.push_str(&format!(
-            "chosen: {} (a diagnosis beyond the five laws) — its constants are in the headline and the warning below\n",
-            r.chosen
-        ));
-    } else {
-        out.push_str(&format!("chosen: {} — no Ki is reported\n", r.chosen));
+        format!("choice ({criterion}): {}", r.evidence)
+    }));
+    if let Some(line) = chosen_line(r) {
+        parts.push(Part::Line(line));
     }
     if !r.alpha_interpretation.is_empty() {
-        out.push_str(&format!("mixed model: {}\n", r.alpha_interpretation));
+        parts.push(Part::Line(format!("mixed model: {}", r.alpha_interpretation)));
     }
     let a = &r.adequacy;
     let p = |p: Option<f64>| p.map_or("—".to_string(), |p| sig(p, 2));
-    out.push_str(&format!(
-        "adequacy of {}: runs-test p = {}, lack-of-fit p = {} ({})\n",
+    parts.push(Part::Line(format!(
+        "adequacy of {}: runs-test p = {}, lack-of-fit p = {} ({})",
         a.model,
         p(a.runs_p),
         p(a.lack_of_fit_p),
         if a.adequate { "adequate" } else { "NOT adequate" }
-    ));
+    )));
     let tests: Vec<String> = r.tests.iter().map(|t| format!("{}→{} p = {}", t.simpler, t.fuller, p(t.p))).collect();
-    out.push_str(&format!("F tests: {}\n", tests.join(", ")));
-    for w in &r.warnings {
-        out.push_str(&format!("warning [{}]: {}\n", w.code, w.message));
+    parts.push(Part::Line(format!("F tests: {}", tests.join(", "))));
+    parts.extend(r.warnings.iter().map(|w| Part::Warning { code: w.code.to_string(), message: w.message.clone() }));
+    parts
+}
+
+/// Counts for the top of a report: compounds, calls and warnings.
+pub fn summary_text(results: &[&ModeResult]) -> String {
+    let mut calls: Vec<(&str, usize)> = Vec::new();
+    let mut codes: Vec<(&str, usize)> = Vec::new();
+    for r in results {
+        count(&mut calls, &r.chosen);
+        for w in &r.warnings {
+            count(&mut codes, w.code);
+        }
     }
-    out
+    let listed = |v: &[(&str, usize)]| v.iter().map(|(c, n)| format!("{c} × {n}")).collect::<Vec<_>>().join(", ");
+    let mut text = format!("{} compounds. Calls: {}.", results.len(), listed(&calls));
+    if !codes.is_empty() {
+        text.push_str(&format!(" Warnings: {}.", listed(&codes)));
+    }
+    text
+}
+
+fn count<'a>(tally: &mut Vec<(&'a str, usize)>, key: &'a str) {
+    match tally.iter_mut().find(|(k, _)| *k == key) {
+        Some((_, n)) => *n += 1,
+        None => tally.push((key, 1)),
+    }
+}
+
+/// One row per compound — call, headline constants, warnings — the compounds
+/// with a warning first (input order within each group).
+pub fn summary_grid(results: &[&ModeResult]) -> Grid {
+    let mut grid = Grid::new(["compound", "call", "Ki", "Kiu", "headline from", "warnings"].map(String::from).to_vec());
+    let (flagged, plain): (Vec<&ModeResult>, Vec<&ModeResult>) =
+        results.iter().copied().partition(|r| !r.warnings.is_empty());
+    for r in flagged.into_iter().chain(plain) {
+        let h = &r.headline;
+        let constant = |p: &Option<Param>| {
+            p.as_ref().map_or("—".to_string(), |p| {
+                let unit = p.unit.as_deref().map(|u| format!(" {}", for_people(u))).unwrap_or_default();
+                format!("{}{unit}", cell(Some(p), potency))
+            })
+        };
+        let from = match h.basis {
+            Basis::ChosenModel => "chosen model",
+            Basis::SpanOverPlausibleModels => "span over plausible models",
+            Basis::Diagnosis => "diagnosis",
+            Basis::NoModelAdequate => "no model adequate",
+        };
+        grid.rows.push(vec![
+            r.compound.clone().unwrap_or_else(|| "—".into()),
+            r.chosen.clone(),
+            constant(&h.ki),
+            constant(&h.kiu),
+            from.to_string(),
+            r.warnings.iter().map(|w| w.code.to_string()).collect::<Vec<_>>().join(", "),
+        ]);
+    }
+    grid
+}
+
+/// The chosen law's constants with their profile intervals, or why none are given.
+fn chosen_line(r: &ModeResult) -> Option<String> {
+    if let Some(m) = r.models.iter().find(|m| m.model == r.chosen) {
+        let level = format!("{:.0}%", r.confidence * 100.0);
+        let consts: Vec<String> = [
+            ("Ki", &m.params.ki, potency as fn(f64) -> String),
+            ("α", &m.params.alpha, four),
+            ("Kiu", &m.params.kiu, potency),
+        ]
+        .into_iter()
+        .filter_map(|(n, p, number)| p.as_ref().map(|p| with_interval(n, p, number)))
+        .collect();
+        (!consts.is_empty()).then(|| {
+            format!("{} inhibition, global fit, {level} profile-likelihood intervals: {}", m.model, consts.join("; "))
+        })
+    } else if r.headline.basis == crate::analysis::mode::Basis::Diagnosis {
+        Some(format!(
+            "chosen: {} (a diagnosis beyond the five laws) — its constants are in the headline and the warning below",
+            r.chosen
+        ))
+    } else {
+        Some(format!("chosen: {} — no Ki is reported", r.chosen))
+    }
 }

@@ -10,7 +10,7 @@ use crate::analysis::rank::{Bounded, RankRow};
 use crate::error::{Error, Result};
 use crate::io::Format;
 use crate::io::output::{new_grid, sig};
-use crate::units::{ConcUnit, Qualifier};
+use crate::units::{ConcUnit, Qualifier, for_people, potency};
 use crate::view::registry::{self, REGISTRY_VERSION};
 
 /// The JSON document: `{"unit": …, "tool_version": …, "registry_version": …, "results": [...]}`;
@@ -92,7 +92,7 @@ fn interval_text(r: &RankRow) -> String {
     match (r.low, r.high) {
         (None, None) => String::new(),
         (lo, hi) => {
-            format!("{} to {}", lo.map_or("0".into(), |v| sig(v, 3)), hi.map_or("unbounded".into(), |v| sig(v, 3)))
+            format!("{} to {}", lo.map_or("0".into(), potency), hi.map_or("unbounded".into(), potency))
         }
     }
 }
@@ -172,7 +172,7 @@ fn constant_text(r: &RankRow, unit: ConcUnit) -> String {
         None => format!("{} —", r.endpoint),
         Some(v) => {
             let q = if r.qualifier == Qualifier::Equal { String::new() } else { format!("{} ", r.qualifier) };
-            format!("{} {q}{} {unit}", r.endpoint, sig(v, 3))
+            format!("{} {q}{} {}", r.endpoint, potency(v), for_people(unit.symbol()))
         }
     }
 }

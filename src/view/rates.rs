@@ -3,11 +3,12 @@
 
 use serde::Serialize;
 
-use super::CAUTION;
+use super::{CAUTION, Grid, Part};
 use crate::analysis::rates::RateResult;
 use crate::error::Result;
 use crate::io::Format;
-use crate::io::output::{Cell, CsvExport, json_bytes, new_grid, sig};
+use crate::io::output::{Cell, CsvExport, json_bytes, sig};
+use crate::units::for_people;
 
 /// One curve's result with the columns carried from its rows.
 #[derive(Debug, Clone, Serialize)]
@@ -97,11 +98,13 @@ fn csv_row(r: &CarriedResult, has_curve_column: bool) -> Vec<Cell> {
     row
 }
 
-fn human(outcome: &RateTable) -> String {
+/// The report in parts — title, the rates table, each warning — shared by
+/// the terminal and the HTML report.
+pub fn parts(outcome: &RateTable) -> Vec<Part> {
     let mut header: Vec<String> = vec!["curve".into()];
     header.extend(outcome.carried_headers.iter().cloned());
-    header.extend([rate_header(outcome), "SE".into(), "window".into(), "points".into(), "flags".into()]);
-    let mut grid = new_grid(header);
+    header.extend([for_people(&rate_header(outcome)), "SE".into(), "window".into(), "points".into(), "flags".into()]);
+    let mut grid = Grid::new(header);
     for r in &outcome.results {
         let res = &r.result;
         let mut row = vec![res.curve.clone().unwrap_or_else(|| "—".into())];
@@ -111,15 +114,26 @@ fn human(outcome: &RateTable) -> String {
         row.push(format!("{}–{}", sig(res.window_start, 4), sig(res.window_end, 4)));
         row.push(format!("{}/{}", res.points_used, res.points_total));
         row.push(res.warnings.iter().map(|w| w.code).collect::<Vec<_>>().join(", "));
-        grid.add_row(row);
+        grid.rows.push(row);
     }
-    let mut out = format!("Initial rates from progress curves (longest initial straight-line window)\n{grid}\n");
+    let mut parts = vec![
+        Part::Title("Initial rates from progress curves (longest initial straight-line window)".into()),
+        Part::Table(grid),
+    ];
     for r in &outcome.results {
-        for w in &r.result.warnings {
-            let name = r.result.curve.as_deref().unwrap_or("curve");
-            out.push_str(&format!("warning [{}] {name}: {}\n", w.code, w.message));
-        }
+        let name = r.result.curve.as_deref().unwrap_or("curve");
+        parts.extend(
+            r.result
+                .warnings
+                .iter()
+                .map(|w| Part::Warning { code: w.code.to_string(), message: format!("{name}: {}", w.message) }),
+        );
     }
+    parts
+}
+
+fn human(outcome: &RateTable) -> String {
+    let mut out = super::terminal(&parts(outcome));
     out.push_str(CAUTION);
     out.push('\n');
     out

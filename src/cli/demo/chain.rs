@@ -1,7 +1,7 @@
 //! The demo's last stages: IC50 tables → Ki → one ranked registry table,
 //! each stage's output parsed as the next one's input.
 
-use super::{SECOND_ASSAY, Section, ki, ki_args, text_section};
+use super::{SECOND_ASSAY, Section, ki, ki_args};
 use crate::error::Result;
 
 /// The file name the dose-response stage's CSV is shown under.
@@ -27,7 +27,7 @@ fn ki_and_rank_into(tables: &[(&str, &str, ki::Args)], sections: &mut Vec<Sectio
         let (rows, carried, row_failures) = ki::convert_table(&table, args)?;
         let human = crate::view::ki::human(&rows);
         print!("{human}");
-        sections.push(text_section(&format!("Ki from {name}"), &format!("kimech ki {name}"), &human));
+        sections.push(crate::plot::ki::section(&format!("Ki from {name}"), &rows, &format!("kimech ki {name}")));
         total += rows.len();
         failures.extend(row_failures);
         ki_csv.push((

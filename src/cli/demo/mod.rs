@@ -12,7 +12,7 @@ use chain::{IC50_CSV, ki_rank_stage};
 use super::{OutputArgs, ic50, ki, km, mode, rates};
 use crate::error::Result;
 use crate::io::{Format, Table};
-use crate::plot::html::{Block, Page, Section, without_caution};
+use crate::plot::html::{Page, Section};
 
 /// Invented progress curves (see demo-compounds/README.md).
 const PROGRESS_CURVES: &str = include_str!("../../../demo-compounds/progress-curves.csv");
@@ -93,15 +93,6 @@ fn write_report(path: &std::path::Path, sections: Vec<Section>) -> Result<()> {
     crate::io::write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[])
 }
 
-/// A section holding a command's human output as it is.
-fn text_section(heading: &str, command: &str, text: &str) -> Section {
-    Section {
-        heading: heading.into(),
-        command: Some(command.into()),
-        blocks: vec![Block::Preformatted(without_caution(text))],
-    }
-}
-
 /// Stage 1: progress curves → initial rates; returns the rates as the table `km` reads.
 fn rates_stage(sections: &mut Vec<Section>) -> Result<Table> {
     println!("Stage 1 — progress curves → initial rates");
@@ -119,11 +110,11 @@ fn rates_stage(sections: &mut Vec<Section>) -> Result<Table> {
     let text = String::from_utf8_lossy(&crate::view::rates::render(&outcome.table, Format::Table)?).into_owned();
     print!("{text}");
     println!();
-    sections.push(text_section(
-        "Initial rates",
-        "kimech rates demo-compounds/progress-curves.csv --format csv -o rates.csv",
-        &text,
-    ));
+    sections.push(Section {
+        heading: "Initial rates".into(),
+        command: Some("kimech rates demo-compounds/progress-curves.csv --format csv -o rates.csv".into()),
+        blocks: crate::plot::html::blocks_of(&crate::view::rates::parts(&outcome.table)),
+    });
     super::finish(&outcome.failures, outcome.total, "curves")?;
     Table::parse("rates.csv", &crate::view::rates::render(&outcome.table, Format::Csv)?, b',')
 }

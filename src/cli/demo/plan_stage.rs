@@ -59,7 +59,9 @@ pub fn plan_stage(matrix_csv: &str, sections: &mut Vec<crate::plot::html::Sectio
         ("KX-203", "noncompetitive"),
         ("KX-204", "mixed"),
     ];
-    let mut lines = Vec::new();
+    let mut grid = crate::view::Grid::new(
+        ["made as", "plan: named right", "plan: uncertain", "compound", "mode named"].map(String::from).to_vec(),
+    );
     for row in &outcome.plan.power {
         let compound = made.iter().find(|(_, m)| *m == row.truth.name()).map_or("", |(c, _)| c);
         let named = found
@@ -67,21 +69,21 @@ pub fn plan_stage(matrix_csv: &str, sections: &mut Vec<crate::plot::html::Sectio
             .iter()
             .find(|(r, _)| r.compound.as_deref() == Some(compound))
             .map_or("not analysed".to_string(), |(r, _)| r.chosen.clone());
-        lines.push(format!(
-            "  made {:<15} plan: named right in {:.2} of simulations (uncertain {:.2})   mode on {compound}: {named}",
-            row.truth.name(),
-            row.right,
-            row.uncertain
-        ));
+        grid.rows.push(vec![
+            row.truth.name().to_string(),
+            format!("{:.2}", row.right),
+            format!("{:.2}", row.uncertain),
+            compound.to_string(),
+            named,
+        ]);
     }
-    let text = lines.join("\n");
-    println!("{text}");
+    println!("{}", grid.terminal());
     println!(
         "  (KX-202…204 were measured on this grid scaled to their own constant, α = 6 as KX-204; \
          KX-205 at 0–10 uM, where Ki plays no part.)"
     );
     let mut section = crate::plot::plan::section(&outcome.view(), command)?;
-    section.blocks.push(crate::plot::html::Block::Preformatted(text));
+    section.blocks.push(crate::plot::html::Block::Table(grid));
     sections.push(section);
     Ok(())
 }
