@@ -5,6 +5,79 @@ use serde::Serialize;
 
 use crate::fit::intervals::{Bound, Interval};
 
+/// Where a result's data came from: the input as named on the command line
+/// and the lines of its rows. Readers fill it (a reader of another shape — a
+/// plate layout — would name its wells' lines its own way); messages show it
+/// as `file, lines 2-8` and every CSV row as `file:2-8` (issue 12).
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct Origin {
+    /// The input, as named on the command line (`<stdin>` for `-`), or what
+    /// made the data (`simulation 3 of competitive`).
+    pub file: String,
+    /// 1-based line numbers of the rows, ascending (empty for simulated data).
+    pub lines: Vec<u64>,
+}
+
+impl Origin {
+    /// The origin of rows on these lines of `file` (sorted, duplicates dropped).
+    pub fn new(file: &str, lines: impl IntoIterator<Item = u64>) -> Origin {
+        let mut lines: Vec<u64> = lines.into_iter().collect();
+        lines.sort_unstable();
+        lines.dedup();
+        Origin { file: file.to_string(), lines }
+    }
+
+    /// Runs of consecutive lines: `[(2, 8), (15, 15)]`.
+    fn runs(&self) -> Vec<(u64, u64)> {
+        let mut runs: Vec<(u64, u64)> = Vec::new();
+        for &l in &self.lines {
+            match runs.last_mut() {
+                Some((_, last)) if *last + 1 == l => *last = l,
+                _ => runs.push((l, l)),
+            }
+        }
+        runs
+    }
+
+    fn runs_text(&self, sep: &str) -> String {
+        let text = |(a, b): (u64, u64)| if a == b { a.to_string() } else { format!("{a}-{b}") };
+        self.runs().into_iter().map(text).collect::<Vec<_>>().join(sep)
+    }
+
+    /// `line 4`, `lines 4-9` or `lines 4-9, 15`.
+    pub fn span(&self) -> String {
+        match self.lines.len() {
+            0 => "no lines".into(),
+            1 => format!("line {}", self.lines[0]),
+            _ => format!("lines {}", self.runs_text(", ")),
+        }
+    }
+
+    /// The CSV cell: `file:4-9,15` (just the name when there are no lines).
+    pub fn cell(&self) -> String {
+        if self.lines.is_empty() { self.file.clone() } else { format!("{}:{}", self.file, self.runs_text(",")) }
+    }
+}
+
+impl std::fmt::Display for Origin {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        if self.lines.is_empty() { f.write_str(&self.file) } else { write!(f, "{}, {}", self.file, self.span()) }
+    }
+}
+
+/// An origin without lines: simulated data, a fixture named in a test.
+impl From<&str> for Origin {
+    fn from(what: &str) -> Origin {
+        Origin::new(what, [])
+    }
+}
+
+impl Serialize for Origin {
+    fn serialize<S: serde::Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
+        serializer.serialize_str(&self.cell())
+    }
+}
+
 /// A reported parameter: estimate, standard error, interval and unit.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Param {
@@ -102,5 +175,25 @@ mod id_tests {
         let long = "é".repeat(100);
         assert_eq!(short_id(&long).chars().count(), 40);
         assert!(short_id(&long).ends_with('…'));
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn an_origin_names_its_file_and_runs_of_lines() {
+        let o = Origin::new("m.csv", [9, 2, 3, 4, 15, 3]);
+        assert_eq!(o.lines, [2, 3, 4, 9, 15]);
+        assert_eq!(o.span(), "lines 2-4, 9, 15");
+        assert_eq!(o.cell(), "m.csv:2-4,9,15");
+        assert_eq!(o.to_string(), "m.csv, lines 2-4, 9, 15");
+        assert_eq!(Origin::new("m.csv", [7]).to_string(), "m.csv, line 7");
+        let simulated = Origin::new("simulation 3 of mixed", []);
+        assert_eq!(
+            (simulated.to_string(), simulated.cell()),
+            ("simulation 3 of mixed".into(), "simulation 3 of mixed".into())
+        );
     }
 }

@@ -18,7 +18,13 @@ fn puromycin_treated() -> KmResult {
         s.push(cells[1].parse::<f64>().unwrap());
         v.push(cells[2].parse::<f64>().unwrap());
     }
-    let series = Series { label: Some("treated".into()), origin: "fixture".into(), substrate: s, rate: v, sd: None };
+    let series = Series {
+        label: Some("treated".into()),
+        origin: kimech::report::Origin::new("fixture", []),
+        substrate: s,
+        rate: v,
+        sd: None,
+    };
     let units = Units { substrate: Some("ppm".into()), rate: Some("counts/min²".into()) };
     let options =
         Options { weighting: Weighting::None, confidence: 0.95, enzyme: None, settings: FitSettings::default() };

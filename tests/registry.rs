@@ -227,3 +227,44 @@ fn outputs_record_their_provenance_with_the_inputs_sha256() {
     assert!(html.contains(&ki_sha), "the report shows the input's SHA-256");
     assert!(html.contains("rank ki.csv --format json --report rank.html --confidence 0.9"), "the command as typed");
 }
+
+/// Reads a CSV output into (header, rows).
+fn csv_cells(bytes: &[u8]) -> (Vec<String>, Vec<Vec<String>>) {
+    let mut reader = csv::Reader::from_reader(bytes);
+    let header = reader.headers().unwrap().iter().map(String::from).collect();
+    let rows = reader.records().map(|r| r.unwrap().iter().map(String::from).collect()).collect();
+    (header, rows)
+}
+
+#[test]
+fn every_csv_row_names_its_source_file_and_lines_whatever_the_line_endings() {
+    // Two km series, one written with its rows apart, in a CRLF file with a comment line.
+    let text = "# assay 7\r\nseries,substrate (uM),rate\r\nA,1,1.0\r\nA,2,1.6\r\nB,1,0.8\r\nA,4,2.3\r\nA,8,2.9\r\nB,2,1.3\r\nB,4,1.9\r\nB,8,2.4\r\n";
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("km.csv"), text).unwrap();
+    let out = common::kimech(dir.path()).args(["km", "km.csv", "--format", "csv"]).output().unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let (header, rows) = csv_cells(&out.stdout);
+    let source = header.iter().position(|h| h == "source").expect("a source column");
+    // Lines counted in the file as written: the comment is line 1, the header line 2.
+    assert_eq!(rows[0][source], "km.csv:3-4,6-7");
+    assert_eq!(rows[1][source], "km.csv:5,8-10");
+    let out = common::kimech(dir.path()).args(["km", "km.csv", "--format", "json"]).output().unwrap();
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(doc["results"][1]["source"], "km.csv:5,8-10");
+
+    // rates and mode: every row names its lines too.
+    let progress = "curve,time (min),product (uM)\nc1,0,0\nc1,1,1.0\nc1,2,2.1\nc1,3,2.9\nc1,4,4.1\n";
+    std::fs::write(dir.path().join("p.csv"), progress).unwrap();
+    let out = common::kimech(dir.path()).args(["rates", "p.csv", "--format", "csv"]).output().unwrap();
+    let (header, rows) = csv_cells(&out.stdout);
+    let source = header.iter().position(|h| h == "source").expect("a source column");
+    assert_eq!(rows[0][source], "p.csv:2-6");
+    let out = common::kimech(dir.path())
+        .args(["mode", &format!("{}/fixtures/mode/all.csv", env!("CARGO_MANIFEST_DIR")), "--format", "csv"])
+        .output()
+        .unwrap();
+    let (header, rows) = csv_cells(&out.stdout);
+    let source = header.iter().position(|h| h == "source").expect("a source column");
+    assert!(rows.iter().all(|r| r[source].contains("fixtures/mode/all.csv:")), "{:?}", rows[0][source]);
+}

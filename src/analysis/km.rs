@@ -21,7 +21,7 @@ pub struct Series {
     /// The series label, if the input had a `series` column.
     pub label: Option<String>,
     /// Where the rows came from, for messages (e.g. "lines 2-13").
-    pub origin: String,
+    pub origin: crate::report::Origin,
     /// Substrate concentrations in `Units::substrate`.
     pub substrate: Vec<f64>,
     /// Initial rates.
@@ -66,6 +66,8 @@ pub struct Enzyme {
 pub struct KmResult {
     /// Series label, or null when the file had no `series` column.
     pub series: Option<String>,
+    /// Where the rows came from (`file:2-8`): the file as named on the command line and the lines.
+    pub source: crate::report::Origin,
     /// Number of observations.
     pub n: usize,
     /// Residual degrees of freedom.
@@ -220,6 +222,7 @@ pub fn analyse(series: &Series, units: &Units, options: &Options) -> Result<KmRe
     let runs = runs_test(&residuals_by_s);
     Ok(KmResult {
         series: series.label.clone(),
+        source: series.origin.clone(),
         n: best.n,
         df: best.df,
         sse: best.sse,

@@ -75,7 +75,7 @@ pub struct Matrix {
     /// Compound label, when the input had a `compound` column.
     pub label: Option<String>,
     /// Where the rows came from, for messages (e.g. "lines 2-61").
-    pub origin: String,
+    pub origin: crate::report::Origin,
     /// Input line of each row.
     pub lines: Vec<u64>,
     /// Substrate concentrations in `Units::substrate`.
@@ -141,6 +141,8 @@ impl Default for Options {
 pub struct ModeResult {
     /// Compound label, or null when the file had no `compound` column.
     pub compound: Option<String>,
+    /// Where the rows came from (`file:2-8`): the file as named on the command line and the lines.
+    pub source: crate::report::Origin,
     /// Number of observations.
     pub n: usize,
     /// The chosen model's name; a diagnosis (`partial-inhibition`,
@@ -342,6 +344,7 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
     };
     Ok(ModeResult {
         compound: matrix.label.clone(),
+        source: matrix.origin.clone(),
         n: matrix.rate.len(),
         chosen,
         headline,
@@ -906,7 +909,7 @@ mod tests {
         // Substrate 1–4 against a fitted Km of 100: km-not-spanned from a standing fit, none without one.
         let matrix = Matrix {
             label: None,
-            origin: "test".into(),
+            origin: crate::report::Origin::new("test", []),
             lines: (0..9).collect(),
             substrate: [1.0, 2.0, 4.0].repeat(3),
             inhibitor: [0.0, 0.0, 0.0, 1.0, 1.0, 1.0, 2.0, 2.0, 2.0].to_vec(),

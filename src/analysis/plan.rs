@@ -446,7 +446,7 @@ pub fn simulate(design: &Design, constants: &Constants, truth: Truth, noise: Noi
     let n = design.wells();
     let mut m = Matrix {
         label: None,
-        origin: format!("simulation {} of {}", k + 1, truth.name()),
+        origin: crate::report::Origin::new(&format!("simulation {} of {}", k + 1, truth.name()), []),
         lines: Vec::with_capacity(n),
         substrate: Vec::with_capacity(n),
         inhibitor: Vec::with_capacity(n),

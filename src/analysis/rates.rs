@@ -25,7 +25,7 @@ pub struct Curve {
     /// The curve's label, if the input had a `curve` column.
     pub label: Option<String>,
     /// Where the rows came from, for messages.
-    pub origin: String,
+    pub origin: crate::report::Origin,
     /// Times.
     pub time: Vec<f64>,
     /// Product concentration or signal at each time.
@@ -55,6 +55,8 @@ pub struct Options {
 pub struct RateResult {
     /// Curve label, or null.
     pub curve: Option<String>,
+    /// Where the rows came from (`file:2-8`): the file as named on the command line and the lines.
+    pub source: crate::report::Origin,
     /// Slope of the initial straight line, with a Wald interval (t quantile).
     pub rate: Param,
     /// Signal of that line at the first time point.
@@ -102,6 +104,7 @@ pub fn analyse(curve: &Curve, options: &Options) -> Result<RateResult> {
     warnings.extend(conversion_warning(curve.substrate, over_limit, options.max_conversion));
     Ok(RateResult {
         curve: curve.label.clone(),
+        source: curve.origin.clone(),
         intercept: line.theta[0] + line.theta[1] * time[0],
         rate,
         window_start: time[0],

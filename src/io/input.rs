@@ -352,6 +352,11 @@ pub fn group_by_label(table: &Table, label_col: Option<usize>) -> Vec<(Option<St
     groups
 }
 
+/// Where a group's rows are: the table's source and their lines.
+pub fn rows_source(table: &Table, rows: &[&Record]) -> crate::report::Origin {
+    crate::report::Origin::new(&table.source, rows.iter().map(|r| r.line))
+}
+
 /// "line 4" or "lines 4-9": where a group's rows are, for messages.
 pub fn rows_origin(rows: &[&Record]) -> String {
     match (rows.first(), rows.last()) {

@@ -4,7 +4,7 @@
 
 use crate::analysis::km::{Series, Units};
 use crate::error::Result;
-use crate::io::input::{ColumnSpec, Table, group_by_label, rows_origin};
+use crate::io::input::{ColumnSpec, Table, group_by_label, rows_source};
 use crate::units::ConcUnit;
 
 const SUBSTRATE: ColumnSpec = ColumnSpec::new("substrate", &["s", "substrate_concentration", "conc", "concentration"]);
@@ -36,7 +36,7 @@ pub fn read(table: &Table, options: &ReadOptions) -> Result<(Vec<Series>, Units)
     for (label, rows) in groups {
         let mut s = Series {
             label,
-            origin: format!("{}, {}", table.source, rows_origin(&rows)),
+            origin: rows_source(table, &rows),
             substrate: Vec::new(),
             rate: Vec::new(),
             sd: sd_col.map(|_| Vec::new()),

@@ -4,7 +4,7 @@
 
 use crate::analysis::mode::{Matrix, Units};
 use crate::error::{Error, Result};
-use crate::io::input::{ColumnSpec, Record, Table, group_by_label, rows_origin};
+use crate::io::input::{ColumnSpec, Record, Table, group_by_label, rows_source};
 use crate::units::ConcUnit;
 
 const SUBSTRATE: ColumnSpec = ColumnSpec::new("substrate", &["s", "substrate_concentration"]);
@@ -79,7 +79,7 @@ fn read_matrix(
 ) -> Result<Matrix> {
     let mut m = Matrix {
         label,
-        origin: rows_origin(rows),
+        origin: rows_source(table, rows),
         lines: Vec::new(),
         substrate: Vec::new(),
         inhibitor: Vec::new(),

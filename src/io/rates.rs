@@ -4,7 +4,7 @@
 
 use crate::analysis::rates::Curve;
 use crate::error::Result;
-use crate::io::input::{ColumnSpec, Record, Table, group_by_label, rows_origin};
+use crate::io::input::{ColumnSpec, Record, Table, group_by_label, rows_source};
 use crate::units::ConcUnit;
 
 const CURVE: ColumnSpec = ColumnSpec::new("curve", &["well", "progress_curve", "id"]);
@@ -88,13 +88,8 @@ fn initial_substrate(
 }
 
 fn read_curve(table: &Table, label: Option<String>, rows: &[&Record], t: usize, y: usize) -> Result<Curve> {
-    let mut curve = Curve {
-        label,
-        origin: format!("{}, {}", table.source, rows_origin(rows)),
-        time: Vec::new(),
-        signal: Vec::new(),
-        substrate: None,
-    };
+    let mut curve =
+        Curve { label, origin: rows_source(table, rows), time: Vec::new(), signal: Vec::new(), substrate: None };
     let mut previous: Option<(f64, u64)> = None;
     for row in rows {
         let time = table.number(row, t)?;

@@ -241,7 +241,7 @@ mod tests {
         let law = RateLaw(Mechanism::Competitive);
         let mut m = Matrix {
             label: None,
-            origin: "test".into(),
+            origin: crate::report::Origin::new("test", []),
             lines: Vec::new(),
             substrate: Vec::new(),
             inhibitor: Vec::new(),

@@ -53,6 +53,8 @@ struct CsvRow {
     runs_p: Option<f64>,
     converged: bool,
     warnings: String,
+    /// The input file and the lines of the rows (`file:2-8`).
+    source: String,
 }
 
 impl From<&KmResult> for CsvRow {
@@ -82,6 +84,7 @@ impl From<&KmResult> for CsvRow {
             runs_p: r.runs_p.and_then(finite),
             converged: r.converged,
             warnings: r.warnings.iter().map(|w| w.code).collect::<Vec<_>>().join(";"),
+            source: r.source.cell(),
         }
     }
 }

@@ -80,6 +80,8 @@ struct CsvRow {
     ksi_low: Option<f64>,
     ksi_high: Option<f64>,
     warnings: String,
+    /// The input file and the lines of the rows (`file:2-8`).
+    source: String,
 }
 
 fn finite(p: Option<&Param>) -> (Option<f64>, Option<f64>, Option<f64>) {
@@ -153,6 +155,7 @@ fn compound_row(
         ksi_low: None,
         ksi_high: None,
         warnings: r.warnings.iter().map(|w| w.code).collect::<Vec<_>>().join(";"),
+        source: r.source.cell(),
     }
 }
 

@@ -74,6 +74,7 @@ fn csv(outcome: &RateTable) -> Result<Vec<u8>> {
         "r2",
         "curvature_p",
         "flags",
+        "source",
     ];
     header.extend(fixed.map(String::from));
     let mut export = CsvExport::new(Vec::new(), &header)?;
@@ -95,6 +96,7 @@ fn csv_row(r: &CarriedResult, has_curve_column: bool) -> Vec<Cell> {
     row.extend([Cell::Count(Some(res.points_used)), Cell::Count(Some(res.points_total))]);
     row.extend([Cell::Full(Some(res.r2)), Cell::Full(res.curvature_p)]);
     row.push(Cell::Text(res.warnings.iter().map(|w| w.code).collect::<Vec<_>>().join(";")));
+    row.push(Cell::Text(res.source.cell()));
     row
 }
 
