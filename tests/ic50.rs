@@ -161,26 +161,26 @@ fn simulated_curves_get_the_right_qualifier_and_flags() {
 
         let above = run_sim(seed, 1e6, 1.0, 0.0);
         assert_eq!(above.qualifier, Qualifier::Greater);
-        assert!(above.flags.contains(&"ic50-above-range"), "{:?}", above.flags);
+        assert!(above.flags.iter().any(|c| *c == "ic50-above-range"), "{:?}", above.flags);
         assert!(rel(above.ic50.value, 10000.0) < 1e-12, "the bound is the top concentration");
         assert_eq!(above.ic50.interval, "bound");
 
         let below = run_sim(seed, 0.005, 1.0, 0.0);
         assert_eq!(below.qualifier, Qualifier::Less, "{:?}", below.flags);
-        assert!(below.flags.contains(&"ic50-below-range"));
+        assert!(below.flags.iter().any(|c| *c == "ic50-below-range"));
         assert!(rel(below.ic50.value, 0.50805) < 1e-12);
 
         let partial = run_sim(seed, 100.0, 1.0, 45.0);
-        assert!(partial.flags.contains(&"partial-inhibition"), "{:?}", partial.flags);
+        assert!(partial.flags.iter().any(|c| *c == "partial-inhibition"), "{:?}", partial.flags);
         assert_eq!(partial.qualifier, Qualifier::Equal);
 
         let steep = run_sim(seed, 100.0, 4.0, 0.0);
-        assert!(steep.flags.contains(&"hill-steep"), "{:?}", steep.flags);
+        assert!(steep.flags.iter().any(|c| *c == "hill-steep"), "{:?}", steep.flags);
         let shallow = run_sim(seed, 100.0, 0.3, 0.0);
-        assert!(shallow.flags.contains(&"hill-shallow"), "{:?}", shallow.flags);
+        assert!(shallow.flags.iter().any(|c| *c == "hill-shallow"), "{:?}", shallow.flags);
 
         let flat = run_sim(seed, 1e9, 1.0, 0.0);
-        assert!(flat.flags.contains(&"no-inhibition"), "{:?}", flat.flags);
+        assert!(flat.flags.iter().any(|c| *c == "no-inhibition"), "{:?}", flat.flags);
         assert_eq!(flat.qualifier, Qualifier::Greater);
     }
 }

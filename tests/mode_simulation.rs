@@ -140,7 +140,7 @@ fn substrate_inhibition_is_diagnosed_not_forced_into_a_mechanism() {
         let r = analyse(&mx, &Units::default(), &options).expect("fit");
         assert!(["substrate-inhibition", "no-model-adequate"].contains(&r.chosen.as_str()), "{}", r.chosen);
         refused += usize::from(r.chosen == "substrate-inhibition");
-        assert!(r.warnings.iter().any(|w| w.code == r.chosen));
+        assert!(r.warnings.iter().any(|w| w.code == r.chosen.as_str()));
     }
     assert!(refused >= 49, "only {refused}/50 substrate-inhibition matrices diagnosed");
 }

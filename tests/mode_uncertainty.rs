@@ -240,7 +240,7 @@ fn dump(path: &str, class: Class, r: &ModeResult, case: &Case) {
     use std::io::Write;
     let chosen = r.models.iter().find(|m| m.model == r.chosen);
     let p = |a: &str, b: &str| r.tests.iter().find(|t| t.simpler == a && t.fuller == b).and_then(|t| t.p);
-    let codes: Vec<&str> = r.warnings.iter().map(|w| w.code).collect();
+    let codes: Vec<&str> = r.warnings.iter().map(|w| w.code.as_str()).collect();
     let line = format!(
         "{:?},{},{:?},{},{},{},{:?},{:?},{:?},{:?},{:?},{:?},{:?},{:?},{}\n",
         class,

@@ -91,6 +91,7 @@
 
 mod projected;
 
+use crate::report::Code;
 use serde::Serialize;
 use serde::ser::SerializeMap;
 
@@ -116,7 +117,7 @@ pub struct Curve {
     /// Other columns, one value per compound.
     pub carried: Carried,
     /// Flags found while reading (plate quality, varying carried values).
-    pub read_flags: Vec<&'static str>,
+    pub read_flags: Vec<Code>,
 }
 
 impl Curve {
@@ -328,7 +329,7 @@ pub struct Ic50Result {
     /// R².
     pub r2: f64,
     /// Flag codes (see the module docs).
-    pub flags: Vec<&'static str>,
+    pub flags: Vec<Code>,
     /// Wells the outlier rule marked: excluded from the fit (`--outliers
     /// exclude`) or only listed (`flag`).
     pub outliers: Vec<Outlier>,
@@ -431,7 +432,7 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     let hill_held = *hill_held;
     let mut flags = Vec::new();
     if hill_held {
-        flags.push("hill-fixed");
+        flags.push(Code::HillFixed);
     }
     flags.extend(window_flags.iter().copied());
     let (ic50, hill, lower, upper) = (fit.theta[0], fit.theta[1], fit.theta[2], fit.theta[3]);
@@ -449,10 +450,10 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     let qualifier = verdict.apply(hill_held, &mut flags);
     if qualifier == Qualifier::Equal && !fit.fixed[Logistic::HILL] {
         if hill.abs() > t.hill_steep {
-            flags.push("hill-steep");
+            flags.push(Code::HillSteep);
         }
         if hill.abs() < t.hill_shallow {
-            flags.push("hill-shallow");
+            flags.push(Code::HillShallow);
         }
     }
     pass.flags(&mut flags);
@@ -484,7 +485,7 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
             options.response_unit.clone(),
         ),
     };
-    let held_by = |option: &'static str, flag: &'static str| {
+    let held_by = |option: &'static str, flag: Code| {
         if flags.contains(&flag) { "the plausible window (the free fit fell outside it)" } else { option }
     };
     Ok(Ic50Result {
@@ -502,8 +503,8 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
                 Param::new(hill, fit.se[1], wald(fit, Logistic::HILL, Scale::Linear, options.confidence), "wald", None)
             }
         }),
-        upper: wald_linear(Logistic::UPPER, held_by("--fix-upper", "upper-outside-window")),
-        lower: wald_linear(Logistic::LOWER, held_by("--fix-lower", "lower-outside-window")),
+        upper: wald_linear(Logistic::UPPER, held_by("--fix-upper", Code::UpperOutsideWindow)),
+        lower: wald_linear(Logistic::LOWER, held_by("--fix-lower", Code::LowerOutsideWindow)),
         residual_sd: fit.residual_sd,
         r2: fit.r2,
         flags,
@@ -526,7 +527,7 @@ struct LogisticFit {
     /// The Hill coefficient was held at 1 (the free fit was degenerate).
     hill_held: bool,
     /// `upper-outside-window` / `lower-outside-window` when an asymptote was held for that reason.
-    window_flags: Vec<&'static str>,
+    window_flags: Vec<Code>,
 }
 
 /// The values of `v` at the indices `kept`.
@@ -548,11 +549,11 @@ fn fit_logistic(x: &[f64], y: &[f64], options: &Options, min_pos: f64, max: f64)
         let inside = |v: f64, (lo, hi): (f64, f64)| v >= lo && v <= hi;
         if fix_upper.is_none() && !inside(fit.theta[Logistic::UPPER], t.upper_window) {
             fix_upper = Some(100.0);
-            window_flags.push("upper-outside-window");
+            window_flags.push(Code::UpperOutsideWindow);
         }
         if fix_lower.is_none() && !inside(fit.theta[Logistic::LOWER], t.lower_window) {
             fix_lower = Some(0.0);
-            window_flags.push("lower-outside-window");
+            window_flags.push(Code::LowerOutsideWindow);
         }
         if !window_flags.is_empty() {
             (fit, hill_held) = fit_held(&data, options, fix_lower, fix_upper, min_pos, max);
@@ -629,15 +630,15 @@ struct Pass<T> {
 }
 
 impl<T> Pass<T> {
-    fn flags(&self, flags: &mut Vec<&'static str>) {
+    fn flags(&self, flags: &mut Vec<Code>) {
         match self.mode {
             _ if self.marked.is_empty() => {}
-            OutlierMode::Exclude => flags.push("outlier-excluded"),
-            OutlierMode::Flag => flags.push("outlier-flagged"),
+            OutlierMode::Exclude => flags.push(Code::OutlierExcluded),
+            OutlierMode::Flag => flags.push(Code::OutlierFlagged),
             OutlierMode::Keep => {}
         }
         if self.too_many {
-            flags.push("too-many-outliers");
+            flags.push(Code::TooManyOutliers);
         }
     }
 
@@ -764,15 +765,15 @@ struct Verdict {
 
 impl Verdict {
     /// The qualifier as reported (`~` for an in-range IC50 with h held) and the call's flags.
-    fn apply(&self, hill_held: bool, flags: &mut Vec<&'static str>) -> Qualifier {
+    fn apply(&self, hill_held: bool, flags: &mut Vec<Code>) -> Qualifier {
         match self.call {
-            Call::Inactive => flags.push("no-inhibition"),
-            Call::Partial => flags.push("partial-inhibition"),
+            Call::Inactive => flags.push(Code::NoInhibition),
+            Call::Partial => flags.push(Code::PartialInhibition),
             _ => {}
         }
         match self.qualifier {
-            Qualifier::Greater => flags.push("ic50-above-range"),
-            Qualifier::Less => flags.push("ic50-below-range"),
+            Qualifier::Greater => flags.push(Code::Ic50AboveRange),
+            Qualifier::Less => flags.push(Code::Ic50BelowRange),
             _ => {}
         }
         if hill_held && self.qualifier == Qualifier::Equal { Qualifier::About } else { self.qualifier }
@@ -978,16 +979,16 @@ fn fixed_param(value: f64, flag: &str) -> Param {
 
 /// Flags every model shares. R² says nothing about a flat curve (there is
 /// no variance to explain), so `poor-fit` is not raised with `no-inhibition`.
-fn common_flags(fit: &Fit, levels: usize, t: &Thresholds, curve: &Curve, flags: &mut Vec<&'static str>) {
-    let flat = flags.contains(&"no-inhibition");
+fn common_flags(fit: &Fit, levels: usize, t: &Thresholds, curve: &Curve, flags: &mut Vec<Code>) {
+    let flat = flags.contains(&Code::NoInhibition);
     if !flat && (fit.r2 < t.min_r2 || fit.r2.is_nan()) {
-        flags.push("poor-fit");
+        flags.push(Code::PoorFit);
     }
     if levels < t.min_concentrations {
-        flags.push("too-few-points");
+        flags.push(Code::TooFewPoints);
     }
     if !fit.converged() {
-        flags.push("not-converged");
+        flags.push(Code::NotConverged);
     }
     flags.extend(curve.read_flags.iter().copied());
 }
@@ -1072,7 +1073,7 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
     let mut flags = Vec::new();
     let qualifier = verdict.apply(false, &mut flags);
     if qualifier == Qualifier::Equal && k < et / 10.0 {
-        flags.push("tight-binding-titration");
+        flags.push(Code::TightBindingTitration);
     }
     pass.flags(&mut flags);
     common_flags(fit, levels, t, curve, &mut flags);
@@ -1178,7 +1179,7 @@ pub struct PlateQc {
     /// Z′ (Zhang, Chung & Oldenburg 1999); null without two wells of each kind.
     pub z_prime: f64,
     /// `plate-z-prime-low` when Z′ is below the limit.
-    pub flags: Vec<&'static str>,
+    pub flags: Vec<Code>,
 }
 
 impl PlateQc {
@@ -1194,7 +1195,7 @@ impl PlateQc {
             inhibited_mean: inhibited.mean(),
             inhibited_sd: inhibited.sd(),
             z_prime: z,
-            flags: if z < min_z_prime { vec!["plate-z-prime-low"] } else { Vec::new() },
+            flags: if z < min_z_prime { vec![Code::PlateZPrimeLow] } else { Vec::new() },
         }
     }
 

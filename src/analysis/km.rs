@@ -6,6 +6,7 @@
 //! Soc. 56, 658–666, 1934) 1/v = (Km/Vmax)(1/S) + 1/Vmax is computed from the
 //! fitted parameters, never by regressing reciprocals.
 
+use crate::report::Code;
 use serde::Serialize;
 
 use crate::error::{Error, Result};
@@ -214,7 +215,7 @@ pub fn analyse(series: &Series, units: &Units, options: &Options) -> Result<KmRe
     let mut warnings = design_warnings(series, km);
     if !best.converged() {
         warnings.push(Warning::new(
-            "not-converged",
+            Code::NotConverged,
             format!("the fit did not converge ({}); the estimates are not trustworthy", best.termination),
         ));
     }
@@ -371,7 +372,7 @@ fn design_warnings(series: &Series, km: f64) -> Vec<Warning> {
     let (s_min, s_max) = (levels[0].0, levels[levels.len() - 1].0);
     if s_max < km || s_min > km {
         warnings.push(Warning::new(
-            "km-not-bracketed",
+            Code::KmNotBracketed,
             format!(
                 "the substrate range {}–{} does not include the fitted Km {}; Km and Vmax are then poorly defined (common practice: about 0.2–5 × Km)",
                 crate::units::sig(s_min, 3),
@@ -382,7 +383,7 @@ fn design_warnings(series: &Series, km: f64) -> Vec<Warning> {
     }
     if levels.len() < 5 {
         warnings.push(Warning::new(
-            "few-concentrations",
+            Code::FewConcentrations,
             format!(
                 "only {} distinct substrate concentrations; 5 or more are needed to judge the fit (common practice)",
                 levels.len()
@@ -407,7 +408,7 @@ fn substrate_inhibition(levels: &[(f64, f64, usize)]) -> Option<Warning> {
         levels[..levels.len() - 1].iter().fold((0.0, f64::MIN), |acc, l| if l.1 > acc.1 { (l.0, l.1) } else { acc });
     (top.1 < 0.9 * peak).then(|| {
         Warning::new(
-            "substrate-inhibition",
+            Code::SubstrateInhibition,
             format!(
                 "the mean rate falls from {} at S = {} to {} at the highest S = {}: possible substrate inhibition, which a Michaelis–Menten fit cannot describe",
                 crate::units::sig(peak, 3),

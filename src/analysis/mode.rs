@@ -28,6 +28,7 @@
 //! no rate by more than a part in 10⁶; it is then reported as unbounded
 //! (JSON `null` with a note), never as a huge number.
 
+use crate::report::Code;
 use std::collections::HashMap;
 
 use serde::Serialize;
@@ -292,18 +293,18 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
     let alpha_interpretation = interpret_alpha(&fitted[4]);
     let plain = named.is_none() && adequacy.adequate;
     if plain && picked == 4 && fitted[4].params.alpha.as_ref().is_some_and(|a| a.low.is_none() || a.high.is_none()) {
-        warnings.push(Warning::new("alpha-not-determined", alpha_interpretation.clone()));
+        warnings.push(Warning::new(Code::AlphaNotDetermined, alpha_interpretation.clone()));
     }
     if plain && picked == 0 {
         warnings.push(Warning::new(
-            "no-inhibition-detected",
+            Code::NoInhibitionDetected,
             "the rates do not depend on the inhibitor clearly enough to prefer any inhibition model over none; \
              no Ki can be given (test higher inhibitor concentrations or check the compound)",
         ));
     }
     for f in fitted.iter().filter(|f| !f.fit.converged()) {
         warnings.push(Warning::new(
-            "not-converged",
+            Code::NotConverged,
             format!(
                 "the {} fit did not converge ({}); its numbers are not trustworthy",
                 f.mechanism.name(),
@@ -769,7 +770,7 @@ fn inadequacy_warning(a: &Adequacy) -> Warning {
         why.push(format!("the misfit exceeds the replicate scatter (lack-of-fit p = {})", sig(p, 2)));
     }
     Warning::new(
-        "no-model-adequate",
+        Code::NoModelAdequate,
         format!(
             "the best-supported model, {}, does not describe the data: {} (level {ADEQUACY_LEVEL}); the matrix may \
              show substrate inhibition, partial inhibition, aggregation or an assay artefact, so no mechanism is named",
@@ -836,7 +837,7 @@ fn design_warnings(
     let iu = units.inhibitor.clone().unwrap_or_default();
     if nonzero.len() < 3 {
         warnings.push(Warning::new(
-            "few-inhibitor-levels",
+            Code::FewInhibitorLevels,
             format!(
                 "only {} non-zero inhibitor concentration(s); 3 or more are needed to tell mechanisms apart (common practice)",
                 nonzero.len()
@@ -845,7 +846,7 @@ fn design_warnings(
     }
     if levels.first().is_none_or(|l| *l > 0.0) {
         warnings.push(Warning::new(
-            "no-uninhibited-series",
+            Code::NoUninhibitedSeries,
             "no rows at inhibitor 0: Vmax and Km of the free enzyme rest on extrapolation",
         ));
     }
@@ -858,7 +859,7 @@ fn design_warnings(
         && (*lo > km || *hi < km)
     {
         warnings.push(Warning::new(
-            "km-not-spanned",
+            Code::KmNotSpanned,
             format!(
                 "the substrate range {}–{} {} does not include the fitted Km {}; mechanisms differ mainly in how \
                  inhibition changes across Km (common practice: about 0.2–5 × Km)",
@@ -879,7 +880,7 @@ fn design_warnings(
         && (i_max < 0.5 * k || *lo > 5.0 * k)
     {
         warnings.push(Warning::new(
-            "inhibitor-range-far-from-ki",
+            Code::InhibitorRangeFarFromKi,
             format!(
                 "the inhibitor range {}–{} {iu} is far from the fitted inhibition constant {} {iu}; \
                  common practice is about 0.5–5 × Ki",
@@ -919,10 +920,10 @@ mod tests {
         let theta = vec![10.0, 100.0, 1000.0];
         let codes = |w: Vec<Warning>| w.iter().map(|w| w.code).collect::<Vec<_>>();
         let standing = codes(design_warnings(&matrix, Some((&theta, Mechanism::Competitive)), 2.0, &Units::default()));
-        assert!(standing.contains(&"km-not-spanned") && standing.contains(&"inhibitor-range-far-from-ki"));
+        assert!(standing.contains(&Code::KmNotSpanned) && standing.contains(&Code::InhibitorRangeFarFromKi));
         let rejected = codes(design_warnings(&matrix, None, 2.0, &Units::default()));
-        assert!(!rejected.contains(&"km-not-spanned") && !rejected.contains(&"inhibitor-range-far-from-ki"));
-        assert!(rejected.contains(&"few-inhibitor-levels"), "design-only warnings stay");
+        assert!(!rejected.contains(&Code::KmNotSpanned) && !rejected.contains(&Code::InhibitorRangeFarFromKi));
+        assert!(rejected.contains(&Code::FewInhibitorLevels), "design-only warnings stay");
     }
 
     #[test]

@@ -26,6 +26,7 @@
 //! every linear coordinate the minimiser sees is of order one to the reciprocal
 //! run length, whatever the instrument's counts.
 
+use crate::report::Code;
 use serde::Serialize;
 
 use crate::analysis::mode::{Criterion, PARSIMONY_WINDOW};
@@ -254,15 +255,15 @@ impl OnsetWarning {
     ];
 
     /// The stable kebab-case code.
-    pub fn code(self) -> &'static str {
+    pub fn code(self) -> Code {
         match self {
-            OnsetWarning::NotConverged => "not-converged",
-            OnsetWarning::NoOnset => "no-onset",
-            OnsetWarning::LittleCurvature => "little-curvature",
-            OnsetWarning::SubstrateDepleted => "substrate-depleted",
-            OnsetWarning::KiBeyondTested => "ki-beyond-tested",
-            OnsetWarning::InhibitorNotInExcess => "inhibitor-not-in-excess",
-            OnsetWarning::KiApparent => "ki-apparent",
+            OnsetWarning::NotConverged => Code::NotConverged,
+            OnsetWarning::NoOnset => Code::NoOnset,
+            OnsetWarning::LittleCurvature => Code::LittleCurvature,
+            OnsetWarning::SubstrateDepleted => Code::SubstrateDepleted,
+            OnsetWarning::KiBeyondTested => Code::KiBeyondTested,
+            OnsetWarning::InhibitorNotInExcess => Code::InhibitorNotInExcess,
+            OnsetWarning::KiApparent => Code::KiApparent,
         }
     }
 

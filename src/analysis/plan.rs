@@ -25,6 +25,7 @@
 //! (m, k) gives the same deviates on every candidate grid (common random
 //! numbers), so candidates in [`suggest`] differ by their design, not by luck.
 
+use crate::report::Code;
 use rand::SeedableRng;
 use rand::rngs::StdRng;
 use rand_distr::{Distribution, StandardNormal};
@@ -490,7 +491,7 @@ fn outcome(result: Result<ModeResult>, truth: Truth) -> Outcome {
     match result {
         Ok(r) => Outcome {
             call: Call::from_chosen(&r.chosen),
-            uncertain: r.warnings.iter().any(|w| w.code == "mechanism-uncertain"),
+            uncertain: r.warnings.iter().any(|w| w.code == Code::MechanismUncertain),
             width: match truth.constant() {
                 Some(Headline::Ki) => width(r.headline.ki.as_ref()),
                 Some(Headline::Kiu) => width(r.headline.kiu.as_ref()),

@@ -29,6 +29,7 @@
 //! proportion to its groups. Repeated text (targets, methods, conditions) is
 //! stored once.
 
+use crate::report::Code;
 use std::collections::HashMap;
 
 use serde::Serialize;
@@ -573,7 +574,7 @@ impl Group {
         }
         if self.failed > 0 && (self.n > 0 || self.n_censored > 0) {
             flags.push(Flag::new(
-                "rows-failed",
+                Code::RowsFailed,
                 format!(
                     "{} row(s) of this compound had no usable Ki and are left out; the first: {}",
                     self.failed,
@@ -593,7 +594,7 @@ impl Group {
         row.pki = Some(self.mean);
         row.qualifier = if self.approximate { Qualifier::About } else { Qualifier::Equal };
         if self.approximate {
-            flags.push(Flag::new("approximate-input", "at least one value was written as approximate (~)"));
+            flags.push(Flag::new(Code::ApproximateInput, "at least one value was written as approximate (~)"));
         }
         match (self.n, self.single) {
             // A single value is reported as it came, not through the round trip 10^(−log10 x).
@@ -630,7 +631,7 @@ impl Group {
             }
             if sd > SPREAD_LIMIT {
                 flags.push(Flag::new(
-                    "replicates-disagree",
+                    Code::ReplicatesDisagree,
                     format!(
                         "the repeats spread by SD {sd:.2} in pKi (more than {SPREAD_LIMIT}, about threefold; common practice)"
                     ),
@@ -650,7 +651,7 @@ impl Group {
             _ => false,
         };
         flags.push(Flag::new(
-            "censored-set-aside",
+            Code::CensoredSetAside,
             format!("{} bound(s) not averaged with the exact values; they are listed beside the mean", self.n_censored),
         ));
         let disagree: Vec<String> = [self.lower, self.upper]
@@ -661,7 +662,7 @@ impl Group {
             .collect();
         if !disagree.is_empty() {
             flags.push(Flag::new(
-                "censored-disagrees",
+                Code::CensoredDisagrees,
                 format!("the geometric mean contradicts bound(s) {}", disagree.join(", ")),
             ));
         }
@@ -669,14 +670,14 @@ impl Group {
 
     /// Every value a bound: the tightest bound, a range, or a conflict.
     fn all_censored(&self, row: &mut RankRow, flags: &mut Vec<Flag>) {
-        flags.push(Flag::new("all-censored", "every value is a bound; the tightest bound is reported"));
+        flags.push(Flag::new(Code::AllCensored, "every value is a bound; the tightest bound is reported"));
         let chosen = match (self.lower, self.upper) {
             (Some(l), Some(u)) if l.value < u.value => {
                 row.low = Some(l.value);
                 row.high = Some(u.value);
                 row.interval_method = Some("range left by the tightest lower and upper bounds".into());
                 flags.push(Flag::new(
-                    "censored-range",
+                    Code::CensoredRange,
                     format!("the bounds leave the range {:.3e} to {:.3e} M", l.value, u.value),
                 ));
                 Some(l)
@@ -686,7 +687,7 @@ impl Group {
                     "the bounds contradict each other ({} {:.3e} M and {} {:.3e} M); no value is reported",
                     l.qualifier, l.value, u.qualifier, u.value
                 );
-                flags.push(Flag::new("censored-conflict", message.clone()));
+                flags.push(Flag::new(Code::CensoredConflict, message.clone()));
                 row.error = Some(message);
                 None
             }
@@ -704,20 +705,20 @@ impl Group {
             return;
         }
         if self.mechanism_missing {
-            flags.push(Flag::new("mechanism-not-stated", "the input gives no mechanism for some values"));
+            flags.push(Flag::new(Code::MechanismNotStated, "the input gives no mechanism for some values"));
             if row.mechanism.is_empty() {
                 row.mechanism = "not stated".into();
             }
         }
         if self.method_missing {
-            flags.push(Flag::new("method-not-stated", "the input gives no method for some values"));
+            flags.push(Flag::new(Code::MethodNotStated, "the input gives no method for some values"));
             if row.method.is_empty() {
                 row.method = "not stated".into();
             }
         }
         if self.methods.len() > 1 {
             flags.push(Flag::new(
-                "methods-differ",
+                Code::MethodsDiffer,
                 "the values were obtained with different relations; check that they are comparable",
             ));
         }
@@ -726,7 +727,7 @@ impl Group {
     fn efficiency(&self, row: &mut RankRow, flags: &mut Vec<Flag>) {
         let Some(ha) = self.heavy_atoms else { return };
         if self.atoms_differ {
-            flags.push(Flag::new("heavy-atoms-differ", "the rows disagree on the heavy-atom count; no LE is given"));
+            flags.push(Flag::new(Code::HeavyAtomsDiffer, "the rows disagree on the heavy-atom count; no LE is given"));
             return;
         }
         row.heavy_atoms = Some(ha);
@@ -792,7 +793,7 @@ fn selectivity(r: &mut RankRow, versus: &str, (pv, qv): (Option<f64>, Qualifier)
         (a, b) if a == b => a,
         _ => {
             r.flags.push(Flag::new(
-                "selectivity-undetermined",
+                Code::SelectivityUndetermined,
                 format!(
                     "pKi is {qa} {pa:.2} here and {qv} {pv:.2} on {versus}: two bounds on the same side leave their difference open both ways, so ΔpKi against {versus} is unknown"
                 ),

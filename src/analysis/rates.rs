@@ -10,6 +10,7 @@
 //! rate from a window that curves underestimates the initial rate; that is
 //! flagged rather than hidden.
 
+use crate::report::Code;
 use serde::Serialize;
 
 use crate::error::{Error, Result};
@@ -158,13 +159,13 @@ fn conversion_warning(s0: Option<f64>, over_limit: bool, max: f64) -> Option<War
     let percent = format!("{:.0}%", max * 100.0);
     match s0 {
         None => Some(Warning::new(
-            "conversion-not-checked",
+            Code::ConversionNotChecked,
             format!(
                 "the substrate conversion was not checked against the {percent} limit: that needs a product signal in a concentration unit and a substrate column with a unit"
             ),
         )),
         Some(_) if over_limit => Some(Warning::new(
-            "high-conversion",
+            Code::HighConversion,
             format!(
                 "more than {percent} of the substrate is converted within the first points; the rate is likely underestimated — use more enzyme-dilute conditions or earlier readings"
             ),
@@ -223,7 +224,7 @@ fn warnings_for(window: &Window, min_points: usize, rate: &Param) -> Vec<Warning
         // The growth stopped at the smallest window itself.
         if quadratic.n == window.points {
             warnings.push(Warning::new(
-                "curved-from-start",
+                Code::CurvedFromStart,
                 format!(
                     "the first {min_points} points already curve (t² term p = {}); the rate is likely underestimated — measure earlier or more often",
                     crate::units::sig(*p, 2)
@@ -232,14 +233,14 @@ fn warnings_for(window: &Window, min_points: usize, rate: &Param) -> Vec<Warning
         }
         if quadratic.theta[2] * rate.value.signum() > 0.0 {
             warnings.push(Warning::new(
-                "accelerating",
+                Code::Accelerating,
                 "the signal accelerates (lag phase, mixing or temperature drift?); the initial slope may not be the steady-state rate",
             ));
         }
     }
     if rate.low.zip(rate.high).is_some_and(|(lo, hi)| lo <= 0.0 && hi >= 0.0) {
         warnings
-            .push(Warning::new("no-detectable-change", "the interval of the rate includes zero: no change detected"));
+            .push(Warning::new(Code::NoDetectableChange, "the interval of the rate includes zero: no change detected"));
     }
     warnings
 }

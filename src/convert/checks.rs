@@ -13,6 +13,7 @@
 //! | `approximate-input` | the IC50 was written with `~` | DESIGN §3 |
 
 use super::{Assay, Conditions, Measurement, Mechanism, Settings};
+use crate::report::Code;
 use crate::report::Warning;
 use crate::units::Qualifier;
 use crate::units::sig;
@@ -35,11 +36,11 @@ pub fn flags(m: &Measurement, c: &Conditions, settings: &Settings) -> Vec<Warnin
     tight_binding(m, c, settings, &mut out);
     match (c.mechanism, c.assay) {
         (None, Assay::Enzyme) => out.push(Warning::new(
-            "mechanism-assumed",
+            Code::MechanismAssumed,
             "mechanism not known: the competitive Ki is given (the common default); see the range over the competitive, noncompetitive and uncompetitive relations",
         )),
         (None, Assay::Binding) => out.push(Warning::new(
-            "mechanism-assumed",
+            Code::MechanismAssumed,
             "mechanism not known: competitive displacement of the labelled ligand is assumed by the binding-assay relation",
         )),
         _ => {}
@@ -48,7 +49,7 @@ pub fn flags(m: &Measurement, c: &Conditions, settings: &Settings) -> Vec<Warnin
         let off = h.abs().log2().abs();
         if off > settings.hill_tolerance || off.is_nan() {
             out.push(Warning::new(
-                "hill-far-from-one",
+                Code::HillFarFromOne,
                 format!(
                     "Hill coefficient {h} is far from 1 (|log2 h| > {}): the Cheng–Prusoff relations assume simple 1:1 inhibition and do not strictly hold (Leff & Dougall 1993)",
                     settings.hill_tolerance
@@ -59,11 +60,11 @@ pub fn flags(m: &Measurement, c: &Conditions, settings: &Settings) -> Vec<Warnin
     ratio_checks(c, &mut out);
     match m.qualifier {
         q if q.is_bound() => out.push(Warning::new(
-            "qualified-input",
+            Code::QualifiedInput,
             format!("the IC50 is a bound ({q}), so the constant is a bound too, not a number"),
         )),
         Qualifier::About => out.push(Warning::new(
-            "approximate-input",
+            Code::ApproximateInput,
             "the IC50 was written as approximate (~); the constant is no better than that",
         )),
         _ => {}
@@ -74,7 +75,7 @@ pub fn flags(m: &Measurement, c: &Conditions, settings: &Settings) -> Vec<Warnin
 fn tight_binding(m: &Measurement, c: &Conditions, settings: &Settings, out: &mut Vec<Warning>) {
     match (c.assay, c.enzyme) {
         (Assay::Enzyme, Some(et)) if m.ic50 < 10.0 * et => out.push(Warning::new(
-            "tight-binding",
+            Code::TightBinding,
             format!(
                 "IC50 ({} nM) is within tenfold of Et ({} nM): IC50 - Et/2 was used (Morrison 1969), so the constant leans on Et being the active enzyme concentration",
                 sig(m.ic50 * 1e9, 4),
@@ -83,7 +84,7 @@ fn tight_binding(m: &Measurement, c: &Conditions, settings: &Settings, out: &mut
         )),
         (Assay::Enzyme, Some(_)) => {}
         (assay, _) if m.ic50 < settings.tight_binding_screen => out.push(Warning::new(
-            "tight-binding-not-checked",
+            Code::TightBindingNotChecked,
             if assay == Assay::Enzyme {
                 format!(
                     "IC50 ({} nM) is low enough that depletion of free inhibitor could matter, but no enzyme concentration was given; pass --enzyme or an 'enzyme' column",
@@ -108,7 +109,7 @@ fn ratio_checks(c: &Conditions, out: &mut Vec<Warning>) {
                 && outside(s / km)
             {
                 out.push(Warning::new(
-                    "substrate-far-from-km",
+                    Code::SubstrateFarFromKm,
                     format!(
                         "S/Km = {:.3} is outside 0.1–10: the correction then dominates the result and inherits Km's error",
                         s / km
@@ -121,7 +122,7 @@ fn ratio_checks(c: &Conditions, out: &mut Vec<Warning>) {
                 && outside(l / kd)
             {
                 out.push(Warning::new(
-                    "ligand-far-from-kd",
+                    Code::LigandFarFromKd,
                     format!(
                         "L/Kd = {:.3} is outside 0.1–10: the correction then dominates the result and inherits Kd's error",
                         l / kd

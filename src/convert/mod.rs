@@ -21,6 +21,7 @@
 pub mod checks;
 pub mod relations;
 
+use crate::report::Code;
 use serde::Serialize;
 use statrs::distribution::{ContinuousCDF, Normal};
 
@@ -311,7 +312,7 @@ pub fn convert(m: &Measurement, c: &Conditions, settings: &Settings) -> Result<C
 /// Adds to the tight-binding flag what plain Cheng–Prusoff would have given,
 /// so the size of the correction is visible.
 fn tight_binding_effect(mut flags: Vec<Warning>, uncorrected: f64, corrected: f64) -> Vec<Warning> {
-    for f in flags.iter_mut().filter(|f| f.code == "tight-binding") {
+    for f in flags.iter_mut().filter(|f| f.code == Code::TightBinding) {
         f.message.push_str(&format!(
             "; ignoring Et would give {} nM instead of {} nM",
             crate::units::sig(uncorrected * 1e9, 4),

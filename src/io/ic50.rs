@@ -10,6 +10,7 @@
 //! column. Each curve's [`Location`] holds its input lines; a reader of
 //! another shape (a plate layout) fills it its own way.
 
+use crate::report::Code;
 use std::collections::{HashMap, HashSet};
 use std::path::PathBuf;
 
@@ -364,7 +365,7 @@ impl<'a> CurveReader<'a> {
         }
         let mut read_flags = Vec::new();
         if b.low_z {
-            read_flags.push("plate-z-prime-low");
+            read_flags.push(Code::PlateZPrimeLow);
         }
         let carried = self
             .layout
@@ -372,8 +373,8 @@ impl<'a> CurveReader<'a> {
             .iter()
             .zip(b.carried)
             .map(|(column, values)| {
-                if values.len() > 1 && !read_flags.contains(&"carried-varies") {
-                    read_flags.push("carried-varies");
+                if values.len() > 1 && !read_flags.contains(&Code::CarriedVaries) {
+                    read_flags.push(Code::CarriedVaries);
                 }
                 (column.header.clone(), values.join(";"))
             })

@@ -9,6 +9,7 @@ use crate::convert::{Assay, Conditions, Measurement, Mechanism};
 use crate::error::{Error, Result};
 use crate::io::input::{ColumnSpec, Record, Table};
 use crate::io::output::sig;
+use crate::report::Code;
 use crate::units::{ConcUnit, ConcentrationArg, Qualifier};
 
 const COMPOUND: ColumnSpec = ColumnSpec::new("compound", &["compound_id", "compound_name", "molecule", "id"]);
@@ -144,43 +145,47 @@ pub fn with_upstream_error(table: &Table, record: &Record, e: Error) -> Error {
 /// Flags of the dose-response fit (the `flags` column `kimech ic50` writes)
 /// that undermine the conversion itself: Cheng–Prusoff assumes a complete,
 /// well-defined inhibition curve (Cheng & Prusoff 1973).
-const CURVE_FLAGS_THAT_MATTER: [(&str, &str, &str); 6] = [
+const CURVE_FLAGS_THAT_MATTER: [(Code, Code, &str); 6] = [
     (
-        "partial-inhibition",
-        "partial-inhibition",
+        Code::PartialInhibition,
+        Code::PartialInhibition,
         "the dose-response curve levels off above zero activity: the Cheng–Prusoff relations assume complete inhibition, so this constant is not a Ki of a full inhibitor",
     ),
-    ("poor-fit", "ic50-poor-fit", "the dose-response fit was poor, so the IC50 behind this constant is unreliable"),
     (
-        "not-converged",
-        "ic50-not-converged",
+        Code::PoorFit,
+        Code::Ic50PoorFit,
+        "the dose-response fit was poor, so the IC50 behind this constant is unreliable",
+    ),
+    (
+        Code::NotConverged,
+        Code::Ic50NotConverged,
         "the dose-response fit did not converge, so the IC50 behind this constant is unreliable",
     ),
     (
-        "hill-fixed",
-        "ic50-hill-fixed",
+        Code::HillFixed,
+        Code::Ic50HillFixed,
         "the Hill coefficient was held at 1 in the dose-response fit, so the IC50 leans on that assumption",
     ),
     (
-        "outlier-excluded",
-        "ic50-outlier-excluded",
+        Code::OutlierExcluded,
+        Code::Ic50OutlierExcluded,
         "wells marked by the outlier rule were left out of the dose-response fit (listed in the ic50 output)",
     ),
     (
-        "too-many-outliers",
-        "ic50-too-many-outliers",
+        Code::TooManyOutliers,
+        Code::Ic50TooManyOutliers,
         "the dose-response curve had more aberrant wells than the outlier rule may remove; the IC50 is unreliable",
     ),
 ];
 
 /// The (code, message) of each flag in the row's `flags` column that
 /// undermines the conversion.
-pub fn curve_flags(table: &Table, record: &Record) -> Vec<(&'static str, &'static str)> {
+pub fn curve_flags(table: &Table, record: &Record) -> Vec<(Code, &'static str)> {
     let Some(col) = table.find(&ColumnSpec::new("flags", &[])) else { return Vec::new() };
     let upstream: Vec<&str> = table.text(record, col).split([';', ',', ' ']).filter(|f| !f.is_empty()).collect();
     CURVE_FLAGS_THAT_MATTER
         .iter()
-        .filter(|(upstream_code, _, _)| upstream.contains(upstream_code))
+        .filter(|(upstream_code, _, _)| upstream.contains(&upstream_code.as_str()))
         .map(|&(_, code, message)| (code, message))
         .collect()
 }

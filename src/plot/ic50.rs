@@ -55,7 +55,11 @@ pub fn panel(r: &Ic50Result, curve: &Curve, unit: &str, response: &str, et: Opti
     let mid = (r.upper.value + r.lower.value) / 2.0;
     let y_at_ic50 = f.as_ref().map_or(mid, |f| f(r.ic50.value));
     let hill = r.hill.as_ref().map_or(String::new(), |h| format!(" · Hill {}", sig(h.value, 2)));
-    let flags = if r.flags.is_empty() { String::new() } else { format!(" · flags: {}", r.flags.join(", ")) };
+    let flags = if r.flags.is_empty() {
+        String::new()
+    } else {
+        format!(" · flags: {}", crate::report::code::joined(&r.flags, ", "))
+    };
     // Wells the outlier rule marked are drawn apart, with their own marker.
     let is_marked = |x: f64, y: f64| {
         r.outliers.iter().any(|o| o.concentration.to_bits() == x.to_bits() && o.response.to_bits() == y.to_bits())
@@ -76,7 +80,11 @@ pub fn panel(r: &Ic50Result, curve: &Curve, unit: &str, response: &str, et: Opti
     if !marked.is_empty() {
         // Zero-concentration wells sit at the left edge, as in the dose panel.
         let points = marked.iter().map(|&(x, y)| (if x > 0.0 { x } else { lowest / 10f64.sqrt() }, y)).collect();
-        let label = if r.flags.contains(&"outlier-flagged") { "outlier (still fitted)" } else { "outlier (excluded)" };
+        let label = if r.flags.contains(&crate::report::Code::OutlierFlagged) {
+            "outlier (still fitted)"
+        } else {
+            "outlier (excluded)"
+        };
         chart.layers.push(Layer::Points { label: Some(label.into()), series: 3, points });
         chart.notes.push(format!(
             "{} well(s) marked by the outlier rule (studentized residual beyond the Bonferroni bound, Cook & Weisberg 1982).",

@@ -30,7 +30,7 @@ pub fn section(heading: &str, rows: &[KiRow], command: &str) -> Section {
 fn summary(rows: &[KiRow]) -> String {
     let errors = rows.iter().filter(|r| r.error.is_some()).count();
     let bounds = rows.iter().filter(|r| r.ki.qualifier.is_bound()).count();
-    let mut flags: Vec<(&str, usize)> = Vec::new();
+    let mut flags: Vec<(crate::report::Code, usize)> = Vec::new();
     for code in rows.iter().flat_map(|r| r.flags.iter().copied()) {
         match flags.iter_mut().find(|(c, _)| *c == code) {
             Some((_, n)) => *n += 1,

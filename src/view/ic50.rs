@@ -19,6 +19,7 @@ use crate::io::Format;
 use crate::io::ic50::CarriedColumn;
 use crate::io::output::{Cell, CsvExport, RenderedRow, new_grid, qualifier_cell, sig};
 use crate::report::Param;
+use crate::report::code::{Code, joined};
 use crate::units::{ConcUnit, Qualifier, for_people, potency};
 
 /// What the header and the table need besides a result.
@@ -256,8 +257,26 @@ pub const COLUMNS: &[Column] = &[
         .morrison(),
     Column::param("ki_app_low", ki_app, Part::Low).morrison(),
     Column::param("ki_app_high", ki_app, Part::High).morrison(),
-    Column::cell("flags", |r| text(r.flags.join(";"))).shown(Label::Fixed("flags"), |r, _| r.flags.join(", ")),
+    Column::cell("flags", |r| text(joined(&r.flags, ";"))).shown(Label::Fixed("flags"), |r, _| joined(&r.flags, ", ")),
 ];
+
+/// The command-line option that sets a flag's limit, for the legend.
+fn setting_of(code: Code) -> Option<&'static str> {
+    Some(match code {
+        Code::HillSteep => "--hill-steep",
+        Code::HillShallow => "--hill-shallow",
+        Code::PartialInhibition => "--partial-above",
+        Code::NoInhibition => "--flat-alpha, --min-inhibition",
+        Code::PoorFit => "--min-r2",
+        Code::TooFewPoints => "--min-concentrations",
+        Code::PlateZPrimeLow => "--min-z-prime",
+        Code::TooManyOutliers => "--max-outliers",
+        Code::OutlierFlagged => "--outliers",
+        Code::UpperOutsideWindow => "--upper-min, --upper-max",
+        Code::LowerOutsideWindow => "--lower-min, --lower-max",
+        _ => return None,
+    })
+}
 
 /// The CSV header of a carried column: as written, or `carried_…` when its
 /// name is one of the output's own.
@@ -323,7 +342,7 @@ pub struct StreamWriter<'a> {
     confidence: f64,
     started: bool,
     any_result: bool,
-    flags_seen: Vec<&'static str>,
+    flags_seen: Vec<Code>,
 }
 
 impl<'a> StreamWriter<'a> {
@@ -382,7 +401,7 @@ impl<'a> StreamWriter<'a> {
         for r in &ok {
             for f in &r.flags {
                 if !self.flags_seen.contains(f) {
-                    self.flags_seen.push(f);
+                    self.flags_seen.push(*f);
                 }
             }
         }
@@ -455,7 +474,11 @@ impl<'a> StreamWriter<'a> {
                 if !self.flags_seen.is_empty() {
                     text.push_str("flags:\n");
                     for f in &self.flags_seen {
-                        text.push_str(&format!("  {f}: {}\n", flag_meaning(f)));
+                        text.push_str(&format!(
+                            "  {f}: {}{}\n",
+                            f.meaning(),
+                            setting_of(*f).map_or(String::new(), |o| format!(" (set by {o})"))
+                        ));
                     }
                 }
                 text.push_str(CAUTION);
@@ -517,7 +540,7 @@ pub fn plates_grid(qc: &[PlateQc]) -> Grid {
             sig(p.inhibited_mean, 4),
             sig(p.inhibited_sd, 3),
             sig(p.z_prime, 3),
-            p.flags.join(", "),
+            joined(&p.flags, ", "),
         ]);
     }
     grid
@@ -526,49 +549,6 @@ pub fn plates_grid(qc: &[PlateQc]) -> Grid {
 /// The plates' control statistics for people.
 pub fn plates_table(qc: &[PlateQc]) -> String {
     format!("{PLATES_TITLE}\n{}\n\n", plates_grid(qc).terminal())
-}
-
-/// One line per flag for the human report.
-pub fn flag_meaning(code: &str) -> &'static str {
-    match code {
-        "ic50-above-range" => "IC50 above the highest tested concentration; reported as '>' that concentration",
-        "ic50-below-range" => "IC50 below the lowest tested concentration; reported as '<' that concentration",
-        "hill-steep" => {
-            "Hill coefficient steeper than the --hill-steep limit (aggregation, tight binding or an assay artefact?)"
-        }
-        "hill-shallow" => {
-            "Hill coefficient shallower than the --hill-shallow limit (heterogeneity, solubility or several sites?)"
-        }
-        "partial-inhibition" => {
-            "the curve levels off well above zero activity (lower asymptote above --partial-above of the full activity)"
-        }
-        "no-inhibition" => {
-            "no significant inhibition: a flat line fits as well (F test, --flat-alpha), or less than --min-inhibition at the highest concentration"
-        }
-        "poor-fit" => "R² below --min-r2: the logistic does not describe these data well",
-        "too-few-points" => "fewer distinct concentrations than --min-concentrations",
-        "not-converged" => "the fit did not converge; the estimates are not trustworthy",
-        "hill-fixed" => {
-            "no transition inside the tested range determines the slope; Hill held at 1 to place the IC50, which is therefore approximate (~) or a bound"
-        }
-        "tight-binding-titration" => "Ki,app below Et/10: the curve mostly measures the enzyme concentration",
-        "plate-z-prime-low" => "a plate of this compound has Z′ below --min-z-prime",
-        "carried-varies" => "a carried column has different values within the compound (joined with ';')",
-        "outlier-excluded" => {
-            "wells marked by the outlier rule (studentized residual beyond the Bonferroni bound, Cook & Weisberg 1982) were left out of the fit; they are listed"
-        }
-        "outlier-flagged" => "wells marked by the outlier rule are listed but still fitted (--outliers flag)",
-        "too-many-outliers" => {
-            "the outlier rule marks more wells than --max-outliers allows; the curve itself may be unreliable"
-        }
-        "upper-outside-window" => {
-            "% activity: the fitted upper asymptote fell outside --upper-min..--upper-max; it was held at 100 %"
-        }
-        "lower-outside-window" => {
-            "% activity: the fitted lower asymptote fell outside --lower-min..--lower-max; it was held at 0 %"
-        }
-        _ => "",
-    }
 }
 
 /// An interval in words, the same in the pictures and the table: "8.26–10.8",

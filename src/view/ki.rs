@@ -10,6 +10,7 @@ use crate::convert::{Conversion, MechanismSource};
 use crate::error::{Error, Result};
 use crate::io::Format;
 use crate::io::output::{Cell, CsvExport, JsonRows, qualifier_cell};
+use crate::report::Code;
 use crate::units::{ConcUnit, Qualifier, for_people, potency};
 
 /// Output columns of the CSV before the carried ones (a carried column with one
@@ -88,7 +89,7 @@ pub struct KiRow {
     /// `measured` (given in the input) or `assumed`.
     pub mechanism_source: MechanismSource,
     /// Codes of the assumption checks that fired.
-    pub flags: Vec<&'static str>,
+    pub flags: Vec<Code>,
     /// Why the row has no constant; null when it converted.
     pub error: Option<String>,
     /// Target, when the input has a target column.
@@ -236,7 +237,7 @@ fn csv_cells(r: &KiRow) -> Vec<Cell> {
         text(if r.mechanism_source == MechanismSource::Measured { "measured" } else { "assumed" }),
         Cell::Number(r.range.as_ref().map(|g| g.low)),
         Cell::Number(r.range.as_ref().map(|g| g.high)),
-        Cell::Text(r.flags.join(";")),
+        Cell::Text(crate::report::code::joined(&r.flags, ";")),
         text(&r.conditions),
         text(r.error.as_deref().unwrap_or("")),
     ];
@@ -309,7 +310,7 @@ pub fn ki_table(rows: &[KiRow]) -> KiTable {
             interval,
             format!("{} ({source})", r.mechanism),
             if r.error.is_some() { "—".into() } else { format!("[{m}]") },
-            if r.error.is_some() { "ERROR".into() } else { r.flags.join(" ") },
+            if r.error.is_some() { "ERROR".into() } else { crate::report::code::joined(&r.flags, " ") },
         ]);
     }
     let flagged = rows.iter().map(|r| r.error.is_some() || !r.flags.is_empty()).collect();

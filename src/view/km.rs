@@ -83,7 +83,7 @@ impl From<&KmResult> for CsvRow {
             r2: finite(r.r2),
             runs_p: r.runs_p.and_then(finite),
             converged: r.converged,
-            warnings: r.warnings.iter().map(|w| w.code).collect::<Vec<_>>().join(";"),
+            warnings: r.warnings.iter().map(|w| w.code.as_str()).collect::<Vec<_>>().join(";"),
             source: r.source.cell(),
         }
     }

@@ -1,6 +1,7 @@
 //! Views of `kimech mode`: results → terminal table, CSV and JSON, and the
 //! per-compound text block the HTML report shares.
 
+use crate::report::Code;
 use serde::Serialize;
 
 use super::{CAUTION, Grid, Part};
@@ -154,7 +155,7 @@ fn compound_row(
         ksi: None,
         ksi_low: None,
         ksi_high: None,
-        warnings: r.warnings.iter().map(|w| w.code).collect::<Vec<_>>().join(";"),
+        warnings: r.warnings.iter().map(|w| w.code.as_str()).collect::<Vec<_>>().join(";"),
         source: r.source.cell(),
     }
 }
@@ -220,7 +221,7 @@ pub fn headline_text(r: &ModeResult) -> String {
         .into_iter()
         .map(|(n, p)| p.as_ref().map_or(format!("{n} not given"), |p| with_interval(n, p, potency)))
         .collect();
-    let flag = if r.warnings.iter().any(|w| w.code == "mechanism-uncertain") { "; MECHANISM UNCERTAIN" } else { "" };
+    let flag = if r.warnings.iter().any(|w| w.code == Code::MechanismUncertain) { "; MECHANISM UNCERTAIN" } else { "" };
     format!("headline: {} ({basis}{flag})", consts.join("; "))
 }
 
@@ -350,7 +351,7 @@ pub fn summary_text(results: &[&ModeResult]) -> String {
     for r in results {
         count(&mut calls, &r.chosen);
         for w in &r.warnings {
-            count(&mut codes, w.code);
+            count(&mut codes, w.code.as_str());
         }
     }
     let listed = |v: &[(&str, usize)]| v.iter().map(|(c, n)| format!("{c} × {n}")).collect::<Vec<_>>().join(", ");

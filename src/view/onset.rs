@@ -74,7 +74,7 @@ const COLUMNS: &[Column] = &[
     Column { name: "substrate_correction", value: |r| text(r.substrate_correction.clone()), summary: false },
     Column {
         name: "warnings",
-        value: |r| text(r.warnings.iter().map(|w| w.code).collect::<Vec<_>>().join(";")),
+        value: |r| text(r.warnings.iter().map(|w| w.code.as_str()).collect::<Vec<_>>().join(";")),
         summary: true,
     },
 ];

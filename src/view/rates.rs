@@ -95,7 +95,7 @@ fn csv_row(r: &CarriedResult, has_curve_column: bool) -> Vec<Cell> {
     row.extend([Cell::Full(Some(res.window_start)), Cell::Full(Some(res.window_end))]);
     row.extend([Cell::Count(Some(res.points_used)), Cell::Count(Some(res.points_total))]);
     row.extend([Cell::Full(Some(res.r2)), Cell::Full(res.curvature_p)]);
-    row.push(Cell::Text(res.warnings.iter().map(|w| w.code).collect::<Vec<_>>().join(";")));
+    row.push(Cell::Text(res.warnings.iter().map(|w| w.code.as_str()).collect::<Vec<_>>().join(";")));
     row.push(Cell::Text(res.source.cell()));
     row
 }
@@ -115,7 +115,7 @@ pub fn parts(outcome: &RateTable) -> Vec<Part> {
         row.push(res.rate.se.map_or("—".into(), |s| sig(s, 2)));
         row.push(format!("{}–{}", sig(res.window_start, 4), sig(res.window_end, 4)));
         row.push(format!("{}/{}", res.points_used, res.points_total));
-        row.push(res.warnings.iter().map(|w| w.code).collect::<Vec<_>>().join(", "));
+        row.push(res.warnings.iter().map(|w| w.code.as_str()).collect::<Vec<_>>().join(", "));
         grid.rows.push(row);
     }
     let mut parts = vec![

@@ -19,6 +19,7 @@
 //! is reported but not required (a correct model fails one of the two tests
 //! in about 2 % of datasets, and the five are worse still).
 
+use crate::report::Code;
 use serde::Serialize;
 
 use super::{Adequacy, Matrix, Options, Units, adequacy_of, p_text};
@@ -378,7 +379,9 @@ pub fn diagnosis_warning(r: &ExtensionResult, five_adequate: bool, units: &Units
     } else {
         " It does not describe every feature of the data either (see its adequacy tests)."
     };
-    Warning::new(r.model, format!("{what}; named because {why}. No plain mechanism is given.{caveat}"))
+    // The diagnosis names itself: its model name is its warning code.
+    let code = Code::parse(r.model).unwrap_or(Code::PartialInhibition);
+    Warning::new(code, format!("{what}; named because {why}. No plain mechanism is given.{caveat}"))
 }
 
 /// Whether the data can rule out a residual activity of
@@ -416,7 +419,7 @@ pub fn partial_hint(extensions: &[ExtensionResult], residual_p: Option<f64>) -> 
     let p = r.p_vs_mixed?;
     if p < HINT_LEVEL && (MIN_RESIDUAL_ACTIVITY..1.0).contains(&beta) {
         return Some(Warning::new(
-            "partial-inhibition-possible",
+            Code::PartialInhibitionPossible,
             format!(
                 "partial inhibition (residual activity β = {} at saturating inhibitor) fits better than mixed \
                  (F test {}), though not at the level {DIAGNOSIS_LEVEL} needed to name it; the constants may be \
@@ -429,7 +432,7 @@ pub fn partial_hint(extensions: &[ExtensionResult], residual_p: Option<f64>) -> 
     }
     let q = residual_p.filter(|q| *q >= EXCLUSION_LEVEL)?;
     Some(Warning::new(
-        "partial-inhibition-possible",
+        Code::PartialInhibitionPossible,
         format!(
             "the data cannot rule out partial inhibition: a residual activity of {:.0} % or more at saturating \
              inhibitor is compatible with them (F test of β = {NOTABLE_RESIDUAL_ACTIVITY} against the free partial \

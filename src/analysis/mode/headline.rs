@@ -16,6 +16,7 @@
 //!   the most-weighted plausible model that has it).
 //! * `mechanism-uncertain`: see [`uncertain`].
 
+use crate::report::Code;
 use serde::Serialize;
 
 use super::ModelResult;
@@ -216,7 +217,7 @@ pub fn uncertain(models: &[ModelResult], chosen: usize) -> Option<Warning> {
         format!("mixed improves on {} more than chance would usually allow (F test p = {})", s.model, sig(p, 2))
     };
     Some(Warning::new(
-        "mechanism-uncertain",
+        Code::MechanismUncertain,
         format!(
             "the data do not single out one mechanism: {lean}, in the grey zone {}–{} where the evidence neither \
              demands nor rules out the extra constant (Akaike weights {} {}, {} {}); the headline Ki/Kiu span \

@@ -69,7 +69,7 @@ pub fn run(args: &Args) -> Result<()> {
 fn onset_stage(sections: &mut Vec<Section>) -> Result<()> {
     let path = "demo-compounds/onset-curves.csv";
     println!(
-        "\nTime-dependent inhibition — progress curves → onset, kinact, KI, kinact/KI (a covalent and a slow-binding compound)"
+        "\nStage 7 — time-dependent inhibition: progress curves → onset, kinact, KI, kinact/KI (a covalent and a slow-binding compound)"
     );
     println!("  $ kimech onset {path}\n");
     let table = Table::parse(path, ONSET_CURVES.as_bytes(), b',')?;

@@ -3,6 +3,9 @@
 
 use serde::Serialize;
 
+pub mod code;
+pub use code::Code;
+
 use crate::fit::intervals::{Bound, Interval};
 
 /// Where a result's data came from: the input as named on the command line
@@ -141,14 +144,14 @@ fn describe_missing(interval: Interval) -> Option<String> {
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
 pub struct Warning {
     /// Stable identifier, e.g. `km-not-bracketed`.
-    pub code: &'static str,
+    pub code: Code,
     /// What was seen and what it means, in one or two sentences.
     pub message: String,
 }
 
 impl Warning {
     /// A warning with its code and message.
-    pub fn new(code: &'static str, message: impl Into<String>) -> Warning {
+    pub fn new(code: Code, message: impl Into<String>) -> Warning {
         Warning { code, message: message.into() }
     }
 }
