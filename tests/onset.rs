@@ -6,7 +6,7 @@ mod common;
 
 use common::{fixture, fixture_json, kimech};
 use kimech::analysis::onset::{
-    Compound, Conditions, Curve, Onset, OnsetWarning, Options, Rates, SubstrateMechanism, Units, analyse,
+    Compound, Conditions, Curve, IntervalBasis, Onset, OnsetWarning, Options, Rates, SubstrateMechanism, Units, analyse,
 };
 use kimech::units::Qualifier;
 use predicates::prelude::*;
@@ -123,6 +123,42 @@ fn an_irreversible_call_bounds_koff_from_above() {
     assert_eq!(r.reversible, Some(true), "koff {koff}: {}", r.evidence);
     assert_eq!(r.koff_qualifier, Qualifier::Equal);
     assert!((r.koff.as_ref().unwrap().value / koff - 1.0).abs() < 0.2, "{:?}", r.koff);
+}
+
+/// Model uncertainty is part of the answer (Burnham & Anderson 2002, §4.2, as
+/// `mode` does): the reversible twin of an irreversible call whose fitted koff
+/// is small and positive keeps an Akaike weight of about 0.27 (one nearly idle
+/// parameter), so it is in the 95 % confidence set of models and the intervals
+/// span both fits; a slow binder whose return shows
+/// clearly leaves the irreversible fit no weight and keeps its own intervals.
+#[test]
+fn intervals_span_both_reversibilities_only_when_both_are_plausible() {
+    // A return too slow to show within the hour (koff 0.0003 /min, half-life 39 h).
+    let covalent = curves(&LEVELS, |i| {
+        let kobs = 0.0003 + 0.1 * i / (1.0 + i);
+        let vi = 800.0 / (1.0 + i);
+        (vi, vi * 0.0003 / kobs, kobs)
+    });
+    let r = analyse(&covalent, &units(), &Options::default()).unwrap();
+    assert_eq!(r.reversible, Some(false), "{}", r.evidence);
+    let twin = r.models.iter().find(|m| m.rates == r.rates && m.onset == r.onset && m.reversible).unwrap();
+    assert!(twin.weight > 0.05, "{}", twin.weight);
+    assert_eq!(r.interval_basis, IntervalBasis::SpanOverReversibility);
+    for p in [&r.kinact, &r.ki, &r.kinact_ki] {
+        let p = p.as_ref().unwrap();
+        assert_eq!(p.interval, "profile-span");
+        assert!(p.low.unwrap() < p.value && p.value < p.high.unwrap());
+        assert!(p.note.as_deref().unwrap_or("").contains("two-step reversible"), "{:?}", p.note);
+    }
+    let slow = curves(&LEVELS, |i| {
+        let kobs = 0.02 + 0.15 * i / (1.0 + i);
+        let vi = 800.0 / (1.0 + i);
+        (vi, vi * 0.02 / kobs, kobs)
+    });
+    let r = analyse(&slow, &units(), &Options::default()).unwrap();
+    assert_eq!(r.reversible, Some(true), "{}", r.evidence);
+    assert_eq!(r.interval_basis, IntervalBasis::ChosenModel);
+    assert_eq!(r.kinact.as_ref().unwrap().interval, "profile");
 }
 
 #[test]

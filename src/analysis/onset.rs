@@ -240,6 +240,52 @@ impl Rates {
     }
 }
 
+/// What the intervals of the constants rest on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum IntervalBasis {
+    /// The chosen fit alone.
+    ChosenModel,
+    /// The span of the chosen fit's interval and that of the same scheme with
+    /// the other reversibility, both in the 95 % confidence set of models.
+    SpanOverReversibility,
+}
+
+impl IntervalBasis {
+    /// The label used in tables and CSV.
+    pub fn name(self) -> &'static str {
+        match self {
+            IntervalBasis::ChosenModel => "chosen-model",
+            IntervalBasis::SpanOverReversibility => "span-over-reversibility",
+        }
+    }
+}
+
+/// Cumulative Akaike weight of the confidence set of models (Burnham &
+/// Anderson 2002, §4.2), as `mode` uses.
+const CONFIDENCE_SET: f64 = 0.95;
+
+/// Whether model `k` is in the confidence set of models of `set`: the models
+/// ranked by Akaike weight, taken until their weights sum to [`CONFIDENCE_SET`].
+fn plausible(k: usize, weights: &[f64], set: std::ops::Range<usize>) -> bool {
+    if !set.contains(&k) {
+        return false;
+    }
+    let mut ranked: Vec<usize> = set.collect();
+    ranked.sort_by(|&a, &b| weights[b].total_cmp(&weights[a]));
+    let mut total = 0.0;
+    for m in ranked {
+        if m == k {
+            return true;
+        }
+        total += weights[m];
+        if total >= CONFIDENCE_SET {
+            return false;
+        }
+    }
+    false
+}
+
 /// The candidate global models: five with free initial rates, then the same
 /// five with tied ones, simplest first within each.
 const CANDIDATES: [(Onset, bool, Rates); 10] = [
@@ -419,6 +465,8 @@ pub struct OnsetResult {
     pub koff_qualifier: Qualifier,
     /// Whether the answer's initial rates are tied to v0 by the scheme or free per curve.
     pub rates: Rates,
+    /// What the intervals of kinact, KI and kinact/KI rest on.
+    pub interval_basis: IntervalBasis,
     /// How KI was corrected for substrate, in words.
     pub substrate_correction: String,
     /// Per-curve fits, by increasing [I].
@@ -495,6 +543,28 @@ pub fn analyse(compound: &Compound, units: &Units, options: &Options) -> Result<
         let twin = OnsetModel::with_rates(onset.scheme(), true, rates == Rates::Tied, inhibitor.clone());
         constants.koff = koff_bound(&twin, &data, &fitted[pick + 2], &fitted[pick], units, options);
     }
+    // Reversibility uncertainty is part of the answer (as in `mode`'s
+    // headline): when the other reversibility of the chosen scheme is in the
+    // 95 % confidence set of models, the intervals span both fits.
+    let twin = if reversible { pick.wrapping_sub(2) } else { pick + 2 };
+    let mut interval_basis = IntervalBasis::ChosenModel;
+    if onset != Onset::None
+        && plausible(twin, &weights, base..base + SET)
+        && fitted[twin].converged()
+        && !negative_koff[twin]
+    {
+        let twin_model = OnsetModel::with_rates(onset.scheme(), !reversible, rates == Rates::Tied, inhibitor.clone());
+        let other = Constants::from_fit(&twin_model, &data, &fitted[twin], compound, units, options);
+        let note = format!(
+            "interval spans the {} and {} fits (Akaike weights {:.2} and {:.2}): reversibility is not settled by the data",
+            candidate_name(pick),
+            candidate_name(twin),
+            weights[pick],
+            weights[twin]
+        );
+        constants.span(&other, &note);
+        interval_basis = IntervalBasis::SpanOverReversibility;
+    }
     let curve_results = curve_results(&curves, &singles, &model, chosen, scale, units, options.confidence);
     let mut warnings = warnings(compound, &curves, &model, chosen, &constants, options);
     if rates == Rates::Free {
@@ -540,6 +610,7 @@ pub fn analyse(compound: &Compound, units: &Units, options: &Options) -> Result<
         koff: constants.koff,
         koff_qualifier,
         rates,
+        interval_basis,
         substrate_correction: constants.correction_text,
         curves: curve_results,
         replot: replot.iter().map(|r| r.summary.clone()).collect(),
@@ -1040,6 +1111,28 @@ impl Constants {
             out.koff = Some(Param::new(fit.theta[j], fit.se[j], interval, "wald", Some(units.per_time())));
         }
         out
+    }
+}
+
+impl Constants {
+    /// Widens the intervals of kinact, KI, KI,app and kinact/KI to cover those
+    /// of `other` (an open end stays open); the estimates stay this fit's.
+    fn span(&mut self, other: &Constants, note: &str) {
+        let widen = |p: &mut Option<Param>, q: &Option<Param>| {
+            if let (Some(p), Some(q)) = (p.as_mut(), q.as_ref()) {
+                p.low = p.low.zip(q.low).map(|(a, b)| a.min(b));
+                p.high = p.high.zip(q.high).map(|(a, b)| a.max(b));
+                p.interval = "profile-span";
+                p.note = Some(match &p.note {
+                    Some(n) => format!("{n}; {note}"),
+                    None => note.to_string(),
+                });
+            }
+        };
+        widen(&mut self.kinact, &other.kinact);
+        widen(&mut self.ki, &other.ki);
+        widen(&mut self.ki_app, &other.ki_app);
+        widen(&mut self.kinact_ki, &other.kinact_ki);
     }
 }
 

@@ -5,7 +5,7 @@
 use serde::Serialize;
 
 use super::CAUTION;
-use crate::analysis::onset::{OnsetResult, Rates};
+use crate::analysis::onset::{IntervalBasis, OnsetResult, Rates};
 use crate::error::{Error, Result};
 use crate::io::output::{json_bytes, new_grid, qualifier_cell, sig};
 use crate::io::{Format, neutralise_formula};
@@ -76,6 +76,7 @@ const COLUMNS: &[Column] = &[
     Column { name: "koff_unit", value: |r| unit(&r.koff), summary: false },
     Column { name: "curves", value: |r| Cell::Count(r.curves.len()), summary: true },
     Column { name: "rates", value: |r| text(r.rates.name()), summary: false },
+    Column { name: "interval_basis", value: |r| text(r.interval_basis.name()), summary: false },
     Column { name: "n", value: |r| Cell::Count(r.n), summary: false },
     Column { name: "evidence", value: |r| text(r.evidence.clone()), summary: false },
     Column { name: "substrate_correction", value: |r| text(r.substrate_correction.clone()), summary: false },
@@ -207,7 +208,13 @@ fn compound_block(r: &OnsetResult) -> String {
         for row in rows {
             grid.add_row(row);
         }
-        out.push_str(&format!("{grid}\nsubstrate correction: {}\n", r.substrate_correction));
+        out.push_str(&format!("{grid}\n"));
+        if r.interval_basis == IntervalBasis::SpanOverReversibility
+            && let Some(note) = r.kinact_ki.as_ref().and_then(|p| p.note.as_deref())
+        {
+            out.push_str(&format!("intervals: {note}\n"));
+        }
+        out.push_str(&format!("substrate correction: {}\n", r.substrate_correction));
     }
     let mut curves = new_grid(["[I]", "kobs (own fit)", "vi", "vs", "points"].map(String::from).to_vec());
     for c in &r.curves {
