@@ -223,7 +223,8 @@ fn substrate_correction_matches_hand_worked_factors() {
 /// scipy.optimize.least_squares, with free initial rates (one vi per curve)
 /// and with vi tied to v0 by the scheme (Morrison & Walsh 1988): the answer
 /// (tied two-step, as the tie is not rejected) agrees to 1e-6 in kinact, KI,
-/// every vi and P0 and the SSE; the other three fits in their SSE.
+/// every vi and P0 and the SSE; the other three fits in their SSE; with
+/// `--initial-rates free` the free two-step fit in every estimate.
 #[test]
 fn global_fit_matches_scipy() {
     let reference = fixture_json("reference/onset_scipy.json");
@@ -252,6 +253,24 @@ fn global_fit_matches_scipy() {
         assert_eq!(models[k]["rates"], rates);
         assert_eq!(models[k]["reversible"], false);
         close(models[k]["sse"].as_f64().unwrap(), reference[name]["sse"].as_f64().unwrap(), name);
+    }
+    // `--initial-rates free`: the answer is the free two-step fit, whose
+    // estimates agree with scipy's free fit too, and no tie warning is given.
+    let out = kimech(&std::env::temp_dir())
+        .args(["onset", fixture("onset/two_step.csv").to_str().unwrap(), "--format", "json", "--initial-rates", "free"])
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let json: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let r = &json["results"][0];
+    assert_eq!(r["rates"], "free");
+    assert!(!r["warnings"].as_array().unwrap().iter().any(|w| w["code"] == "rates-not-tied"));
+    let free = &reference["two_step"];
+    close(r["kinact"]["value"].as_f64().unwrap(), free["kinact"].as_f64().unwrap(), "free kinact");
+    close(r["ki_app"]["value"].as_f64().unwrap(), free["ki"].as_f64().unwrap(), "free KI");
+    for (k, c) in r["curves"].as_array().unwrap().iter().enumerate() {
+        close(c["global"]["vi"].as_f64().unwrap(), free["vi"][k].as_f64().unwrap(), "free vi");
+        close(c["global"]["p0"].as_f64().unwrap(), free["p0"][k].as_f64().unwrap(), "free P0");
     }
 }
 

@@ -19,7 +19,9 @@
 //! was kept. The in-suite test runs a few datasets per class in seconds; the
 //! full measurement is `cargo test --release --test onset_simulation -- --ignored --nocapture`.
 
-use kimech::analysis::onset::{Compound, Conditions, Curve, Onset, OnsetResult, Options, Rates, Units, analyse};
+use kimech::analysis::onset::{
+    Compound, Conditions, Curve, Onset, OnsetResult, Options, Rates, RatesPolicy, Units, analyse,
+};
 use rand::SeedableRng;
 use rand::rngs::StdRng;
 use rand_distr::{Distribution, Normal};
@@ -192,11 +194,15 @@ fn score(class: Class, r: &OnsetResult, tally: &mut Tally) {
 }
 
 fn run(class: Class, datasets: usize, seed: u64) -> Tally {
+    run_with(class, datasets, seed, &Options::default())
+}
+
+fn run_with(class: Class, datasets: usize, seed: u64, options: &Options) -> Tally {
     let mut rng = StdRng::seed_from_u64(seed);
     let mut tally = Tally::default();
     for _ in 0..datasets {
         let compound = simulate(class, &mut rng, 1.0);
-        let r = analyse(&compound, &units(), &Options::default()).unwrap();
+        let r = analyse(&compound, &units(), options).unwrap();
         score(class, &r, &mut tally);
     }
     tally
@@ -298,5 +304,25 @@ fn probe() {
                 r.kinact_ki.as_ref().map(|p| (p.value, p.low, p.high))
             );
         }
+    }
+}
+
+/// The covalent classes with the initial rates forced free (`--initial-rates
+/// free`), the estimator before the tie: where its kinact/KI intervals missed.
+#[test]
+#[ignore = "measurement run: about a minute of CPU in release"]
+fn free_rates_measurement() {
+    let options = Options { initial_rates: RatesPolicy::Free, ..Options::default() };
+    for (k, class) in Class::ALL.iter().enumerate().take(2) {
+        let t = run_with(*class, 200, SEED + k as u64, &options);
+        println!(
+            "{class:?} (free rates): named {:.1} %, kinact/KI within 20 % {:.1} %, interval covers {:.1} % (among the {} named: {:.1} %)",
+            percent(t.named, t.n),
+            percent(t.ratio_within, t.n),
+            percent(t.ratio_covered, t.n),
+            t.named,
+            percent(t.ratio_covered_named, t.named)
+        );
+        println!("  named {:?}", t.names);
     }
 }

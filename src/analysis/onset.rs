@@ -161,6 +161,8 @@ pub struct Options {
     pub confidence: f64,
     /// For the substrate correction of KI.
     pub substrate_mechanism: SubstrateMechanism,
+    /// Whether the initial rates are tested, always tied, or always free.
+    pub initial_rates: RatesPolicy,
     /// Smallest kobs·(run length) at the highest [I] that shows the onset
     /// clearly: 1 means the exponential is 63 % complete (common practice).
     pub min_onset: f64,
@@ -180,6 +182,7 @@ impl Default for Options {
             alpha_level: 0.05,
             confidence: 0.95,
             substrate_mechanism: SubstrateMechanism::Competitive,
+            initial_rates: RatesPolicy::Test,
             min_onset: 1.0,
             max_depletion: 0.1,
             min_excess: 10.0,
@@ -284,6 +287,18 @@ fn plausible(k: usize, weights: &[f64], set: std::ops::Range<usize>) -> bool {
         }
     }
     false
+}
+
+/// Which initial rates the answer uses.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum RatesPolicy {
+    /// Tied unless the tie is rejected (the default).
+    #[default]
+    Test,
+    /// Tied, whatever the data say.
+    Tied,
+    /// Free per curve (e.g. a known mixing dead time).
+    Free,
 }
 
 /// The candidate global models: five with free initial rates, then the same
@@ -567,7 +582,7 @@ pub fn analyse(compound: &Compound, units: &Units, options: &Options) -> Result<
     }
     let curve_results = curve_results(&curves, &singles, &model, chosen, scale, units, options.confidence);
     let mut warnings = warnings(compound, &curves, &model, chosen, &constants, options);
-    if rates == Rates::Free {
+    if rates == Rates::Free && options.initial_rates == RatesPolicy::Test {
         warnings.push(OnsetWarning::RatesNotTied.with(format!(
             "the initial rates do not follow the scheme's vi = v0/(1 + [I]/KI,app) (two-step) or vi = v0 \
              (one-step) ({tie_text}): a mixing dead time, a fast first phase or a drifting signal; each curve \
@@ -631,6 +646,11 @@ pub fn analyse(compound: &Compound, units: &Units, options: &Options) -> Result<
 /// rates and the comparison in words.
 fn tie_test(fits: &[Fit], aiccs: &[Option<f64>], options: &Options) -> (Rates, String) {
     let (free, tied) = (GENERAL, SET + GENERAL);
+    match options.initial_rates {
+        RatesPolicy::Tied => return (Rates::Tied, "tied to the scheme (as asked)".into()),
+        RatesPolicy::Free => return (Rates::Free, "free per curve (as asked)".into()),
+        RatesPolicy::Test => {}
+    }
     if !fits[tied].converged() {
         return (Rates::Free, "free (the tied fit did not converge)".into());
     }

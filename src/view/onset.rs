@@ -238,7 +238,7 @@ fn rates_text(rates: Rates) -> &'static str {
         Rates::Tied => {
             "tied to v0 by the scheme (vi = v0/(1 + [I]/KI,app) two-step, vi = v0 one-step; Morrison & Walsh 1988)"
         }
-        Rates::Free => "free per curve (the tie to the scheme was rejected; see warnings)",
+        Rates::Free => "free per curve (the tie to the scheme rejected — see warnings — or --initial-rates free)",
     }
 }
 
