@@ -57,6 +57,24 @@ fn saturating_kobs_is_two_step_with_half_kinact_at_ki() {
     assert!((r.kinact_ki.as_ref().unwrap().value / (kinact / ki) - 1.0).abs() < 0.03);
 }
 
+/// The F-test path with tied rates (Bates & Watts 1988, §3.10): onset is
+/// tested as none against two-step irreversible (kinact → 0 is the
+/// rapid-reversible lines), then one-step against two-step, then the return.
+#[test]
+fn f_test_path_names_the_same_classes_with_tied_rates() {
+    let options = Options { criterion: kimech::analysis::mode::Criterion::FTest, ..Options::default() };
+    let covalent = curves(&LEVELS, |i| (800.0 / (1.0 + i), 0.0, 0.1 * i / (1.0 + i)));
+    let r = analyse(&covalent, &units(), &options).unwrap();
+    assert_eq!((r.onset, r.reversible, r.rates), (Onset::TwoStep, Some(false), Rates::Tied), "{}", r.evidence);
+    assert!(r.evidence.contains("two-step vs none") && r.evidence.contains("F test of the tie"), "{}", r.evidence);
+    let straight = curves(&LEVELS, |i| {
+        let v = 800.0 / (1.0 + i);
+        (v, v, 0.0)
+    });
+    let r = analyse(&straight, &units(), &options).unwrap();
+    assert_eq!(r.onset, Onset::None, "{}", r.evidence);
+}
+
 /// Copeland (2013), ch. 9: at [I] ≪ KI, kobs ≈ (kinact/KI)·[I]; the line is
 /// chosen, only kinact/KI is reported, and the user is told why.
 #[test]
