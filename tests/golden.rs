@@ -34,6 +34,8 @@ fn chain() -> Vec<(String, Vec<String>)> {
         add(&format!("rank.{format}"), &format!("rank ki.csv ki-second.csv --versus VRD3 --format {format}"));
         add(&format!("onset.{format}"), &format!("onset onset-curves.csv --format {format}"));
     }
+    // The human table of `onset` too (its CSV header and JSON shape are pinned above).
+    add("onset.txt", "onset onset-curves.csv --format table");
     steps
 }
 

@@ -14,10 +14,14 @@
 //! not a target, has koff × run = 0.3: it shows how often a compound whose
 //! reversibility lies beyond the run is called irreversible.
 //!
-//! The in-suite test runs a few datasets per class in seconds; the full
-//! measurement is `cargo test --release --test onset_simulation -- --ignored --nocapture`.
+//! The global fits tie each curve's initial rate to v0 by the scheme unless
+//! the data reject the tie (`Rates`); the measurement prints how often the tie
+//! was kept. The in-suite test runs a few datasets per class in seconds; the
+//! full measurement is `cargo test --release --test onset_simulation -- --ignored --nocapture`.
 
-use kimech::analysis::onset::{Compound, Conditions, Curve, Onset, OnsetResult, Options, Units, analyse};
+use kimech::analysis::onset::{
+    Compound, Conditions, Curve, Onset, OnsetResult, Options, Rates, RatesPolicy, Units, analyse,
+};
 use rand::SeedableRng;
 use rand::rngs::StdRng;
 use rand_distr::{Distribution, Normal};
@@ -142,6 +146,10 @@ struct Tally {
     names: std::collections::BTreeMap<String, usize>,
     /// [two-step fits, kinact covered, KI covered] among those named reversible.
     reversible_coverage: [usize; 3],
+    /// Datasets whose answer has tied initial rates.
+    tied: usize,
+    /// Among the datasets whose class was named: the kinact/KI interval covers the truth.
+    ratio_covered_named: usize,
 }
 
 fn covers(p: &Option<kimech::report::Param>, truth: f64) -> bool {
@@ -150,16 +158,19 @@ fn covers(p: &Option<kimech::report::Param>, truth: f64) -> bool {
 
 fn score(class: Class, r: &OnsetResult, tally: &mut Tally) {
     tally.n += 1;
+    tally.tied += usize::from(r.rates == Rates::Tied);
     let name = match r.reversible {
         None => r.onset.name().to_string(),
         Some(rev) => format!("{} {}", r.onset.name(), if rev { "reversible" } else { "irreversible" }),
     };
     *tally.names.entry(name).or_insert(0) += 1;
     let (onset, reversible) = class.expected();
-    if r.onset == onset && r.reversible == reversible {
-        tally.named += 1;
-    }
+    let named = r.onset == onset && r.reversible == reversible;
+    tally.named += usize::from(named);
     let (kinact, ki, ratio) = class.constants();
+    if let Some(ratio) = ratio {
+        tally.ratio_covered_named += usize::from(named && covers(&r.kinact_ki, ratio));
+    }
     if let Some(ratio) = ratio {
         tally.ratio_covered += usize::from(covers(&r.kinact_ki, ratio));
     }
@@ -183,11 +194,15 @@ fn score(class: Class, r: &OnsetResult, tally: &mut Tally) {
 }
 
 fn run(class: Class, datasets: usize, seed: u64) -> Tally {
+    run_with(class, datasets, seed, &Options::default())
+}
+
+fn run_with(class: Class, datasets: usize, seed: u64, options: &Options) -> Tally {
     let mut rng = StdRng::seed_from_u64(seed);
     let mut tally = Tally::default();
     for _ in 0..datasets {
         let compound = simulate(class, &mut rng, 1.0);
-        let r = analyse(&compound, &units(), &Options::default()).unwrap();
+        let r = analyse(&compound, &units(), options).unwrap();
         score(class, &r, &mut tally);
     }
     tally
@@ -202,14 +217,13 @@ fn each_class_is_named_on_a_few_datasets() {
     for (k, class) in Class::ALL.iter().enumerate() {
         let t = run(*class, 6, SEED + k as u64);
         assert!(t.named >= 5, "{class:?}: named {} of {}", t.named, t.n);
-        // A visible koff shares the low-[I] slope of kobs with kinact/KI, so a
-        // slow binder's kinact/KI is less precise (README): its interval must
-        // cover the truth; the covalent classes must also be within 20 %.
+        // With the initial rates tied to the scheme kinact/KI is within 20 %
+        // of the truth for every class with an onset, slow binders included
+        // (README), and its interval covers the truth.
         if class.constants().2.is_some() {
             assert!(t.ratio_covered >= 5, "{class:?}: kinact/KI interval covers in {} of {}", t.ratio_covered, t.n);
-        }
-        if matches!(class, Class::TwoStepCovalent | Class::OneStepCovalent) {
             assert!(t.ratio_within >= 5, "{class:?}: kinact/KI within 20 % in {} of {}", t.ratio_within, t.n);
+            assert!(t.tied >= 5, "{class:?}: initial rates tied in {} of {}", t.tied, t.n);
         }
     }
 }
@@ -239,7 +253,7 @@ fn scale_free_over_thirteen_decades() {
 }
 
 #[test]
-#[ignore = "measurement run: about four minutes in release"]
+#[ignore = "measurement run: about four minutes of CPU in release"]
 fn full_measurement() {
     let datasets = 200;
     let classes = Class::ALL.iter().chain(&[Class::SlowBindingBeyondRun]);
@@ -253,7 +267,13 @@ fn full_measurement() {
             percent(t.ki_covered, t.intervals),
             t.intervals
         );
-        println!("  kinact/KI interval covers {:.1} %", percent(t.ratio_covered, t.n));
+        println!(
+            "  kinact/KI interval covers {:.1} % (among the {} named: {:.1} %); initial rates tied in {:.1} %",
+            percent(t.ratio_covered, t.n),
+            t.named,
+            percent(t.ratio_covered_named, t.named),
+            percent(t.tied, t.n)
+        );
         let [n, kinact, ki] = t.reversible_coverage;
         println!(
             "  named {:?}; among the {n} named reversible, coverage kinact {:.1} % KI {:.1} %",
@@ -284,5 +304,25 @@ fn probe() {
                 r.kinact_ki.as_ref().map(|p| (p.value, p.low, p.high))
             );
         }
+    }
+}
+
+/// The covalent classes with the initial rates forced free (`--initial-rates
+/// free`), the estimator before the tie: where its kinact/KI intervals missed.
+#[test]
+#[ignore = "measurement run: about a minute of CPU in release"]
+fn free_rates_measurement() {
+    let options = Options { initial_rates: RatesPolicy::Free, ..Options::default() };
+    for (k, class) in Class::ALL.iter().enumerate().take(2) {
+        let t = run_with(*class, 200, SEED + k as u64, &options);
+        println!(
+            "{class:?} (free rates): named {:.1} %, kinact/KI within 20 % {:.1} %, interval covers {:.1} % (among the {} named: {:.1} %)",
+            percent(t.named, t.n),
+            percent(t.ratio_within, t.n),
+            percent(t.ratio_covered, t.n),
+            t.named,
+            percent(t.ratio_covered_named, t.named)
+        );
+        println!("  named {:?}", t.names);
     }
 }

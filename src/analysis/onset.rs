@@ -3,10 +3,14 @@
 //!
 //! Every progress curve follows P(t) = vs·t + (vi − vs)(1 − e^(−kobs·t))/kobs + P0
 //! (Morrison & Walsh, Adv. Enzymol. 61, 201–301, 1988), vs = 0 when the
-//! inhibitor is irreversible. Five global fits of all curves of a compound are
-//! compared ([`crate::models::onset`]): no onset (straight lines), the one-step
-//! and two-step schemes for kobs against [I], each irreversible or reversible.
-//! The choice is made by AICc with the parsimony window that `mode` uses
+//! inhibitor is irreversible. Global fits of all curves of a compound
+//! ([`crate::models::onset`]): no onset (straight lines), the one-step and
+//! two-step schemes for kobs against [I], each irreversible or reversible; each
+//! with the initial rates tied to one v0 by the scheme (vi = v0/(1 + [I]/KI,app)
+//! two-step, vi = v0 one-step; Morrison & Walsh 1988; Copeland 2013, ch. 9) and
+//! with a free vi per curve. The tie is tested on the two-step reversible pair
+//! and kept unless rejected (then the free fits are used, with a warning).
+//! Within the chosen set the choice is made by AICc with the parsimony window that `mode` uses
 //! (Burnham & Anderson, *Model Selection and Multimodel Inference*, 2002), or
 //! by forward extra-sum-of-squares F tests (Bates & Watts 1988, §3.10). The
 //! chosen global fit is the answer; each curve is also fitted on its own and
@@ -14,7 +18,8 @@
 //! of Enzyme Inhibitors in Drug Discovery*, 2nd ed., 2013, ch. 9).
 //!
 //! Intervals of kinact, KI and kinact/KI are by profile likelihood
-//! ([`crate::fit::intervals::profile`]). KI from the fit is the apparent value
+//! ([`crate::fit::intervals::profile`]); an irreversible call bounds koff from
+//! above by the profile of koff in the reversible form. KI from the fit is the apparent value
 //! at the assay's substrate; the substrate correction follows the
 //! Cheng–Prusoff forms (Cheng & Prusoff, Biochem. Pharmacol. 22, 3099–3108,
 //! 1973; for covalent inhibitors Copeland 2013, §9.3): competitive KI =
@@ -31,12 +36,13 @@ use serde::Serialize;
 
 use crate::analysis::mode::{Criterion, PARSIMONY_WINDOW};
 use crate::error::{Error, Result};
-use crate::fit::intervals::{Interval, profile, wald};
+use crate::fit::intervals::{Bound, Interval, profile, wald};
 use crate::fit::stats::{aicc, akaike_weights, extra_sum_of_squares};
 use crate::fit::{Data, Fit, FitSettings, Model, fit, fit_from};
 use crate::models::Polynomial;
 use crate::models::onset::{CurveModel, OnsetModel, Reading, ReplotModel, Scheme};
 use crate::report::{Param, Warning};
+use crate::units::Qualifier;
 
 /// Minimiser settings of the global fits: tolerances of 1e-12 leave the
 /// estimates good to far more digits than the data carry, and a budget of 100
@@ -156,6 +162,8 @@ pub struct Options {
     pub confidence: f64,
     /// For the substrate correction of KI.
     pub substrate_mechanism: SubstrateMechanism,
+    /// Whether the initial rates are tested, always tied, or always free.
+    pub initial_rates: RatesPolicy,
     /// Smallest kobs·(run length) at the highest [I] that shows the onset
     /// clearly: 1 means the exponential is 63 % complete (common practice).
     pub min_onset: f64,
@@ -175,6 +183,7 @@ impl Default for Options {
             alpha_level: 0.05,
             confidence: 0.95,
             substrate_mechanism: SubstrateMechanism::Competitive,
+            initial_rates: RatesPolicy::Test,
             min_onset: 1.0,
             max_depletion: 0.1,
             min_excess: 10.0,
@@ -214,14 +223,106 @@ impl Onset {
     }
 }
 
-/// The five candidate global models, simplest first.
-const CANDIDATES: [(Onset, bool); 5] = [
-    (Onset::None, false),
-    (Onset::OneStep, false),
-    (Onset::TwoStep, false),
-    (Onset::OneStep, true),
-    (Onset::TwoStep, true),
+/// How the initial rates vi of the curves enter the global fit.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Rates {
+    /// Each curve has its own vi.
+    Free,
+    /// vi = v0/(1 + [I]/KI,app) (two-step; rapid reversible with its own KI)
+    /// or vi = v0 (one-step): one v0 for all curves (Morrison & Walsh 1988).
+    Tied,
+}
+
+impl Rates {
+    /// The label used in tables and JSON.
+    pub fn name(self) -> &'static str {
+        match self {
+            Rates::Free => "free",
+            Rates::Tied => "tied",
+        }
+    }
+}
+
+/// What the intervals of the constants rest on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum IntervalBasis {
+    /// The chosen fit alone.
+    ChosenModel,
+    /// The span of the chosen fit's interval and that of the same scheme with
+    /// the other reversibility, both in the 95 % confidence set of models.
+    SpanOverReversibility,
+}
+
+impl IntervalBasis {
+    /// The label used in tables and CSV.
+    pub fn name(self) -> &'static str {
+        match self {
+            IntervalBasis::ChosenModel => "chosen-model",
+            IntervalBasis::SpanOverReversibility => "span-over-reversibility",
+        }
+    }
+}
+
+/// Cumulative Akaike weight of the confidence set of models (Burnham &
+/// Anderson 2002, §4.2), as `mode` uses.
+const CONFIDENCE_SET: f64 = 0.95;
+
+/// Whether model `k` is in the confidence set of models of `set`: the models
+/// ranked by Akaike weight, taken until their weights sum to [`CONFIDENCE_SET`].
+fn plausible(k: usize, weights: &[f64], set: std::ops::Range<usize>) -> bool {
+    if !set.contains(&k) {
+        return false;
+    }
+    let mut ranked: Vec<usize> = set.collect();
+    ranked.sort_by(|&a, &b| weights[b].total_cmp(&weights[a]));
+    let mut total = 0.0;
+    for m in ranked {
+        if m == k {
+            return true;
+        }
+        total += weights[m];
+        if total >= CONFIDENCE_SET {
+            return false;
+        }
+    }
+    false
+}
+
+/// Which initial rates the answer uses.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum RatesPolicy {
+    /// Tied unless the tie is rejected (the default).
+    #[default]
+    Test,
+    /// Tied, whatever the data say.
+    Tied,
+    /// Free per curve (e.g. a known mixing dead time).
+    Free,
+}
+
+/// The candidate global models: five with free initial rates, then the same
+/// five with tied ones, simplest first within each.
+const CANDIDATES: [(Onset, bool, Rates); 10] = [
+    (Onset::None, false, Rates::Free),
+    (Onset::OneStep, false, Rates::Free),
+    (Onset::TwoStep, false, Rates::Free),
+    (Onset::OneStep, true, Rates::Free),
+    (Onset::TwoStep, true, Rates::Free),
+    (Onset::None, false, Rates::Tied),
+    (Onset::OneStep, false, Rates::Tied),
+    (Onset::TwoStep, false, Rates::Tied),
+    (Onset::OneStep, true, Rates::Tied),
+    (Onset::TwoStep, true, Rates::Tied),
 ];
+
+/// Models per set of rates; the set of `Rates::Tied` starts here.
+const SET: usize = 5;
+
+/// Position of the most general model (two-step reversible) within a set:
+/// the tie of the rates is tested there.
+const GENERAL: usize = 4;
 
 /// The warnings `onset` can give; each code has a row in the README.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -240,11 +341,13 @@ pub enum OnsetWarning {
     InhibitorNotInExcess,
     /// No substrate correction was applied.
     KiApparent,
+    /// The initial rates do not follow the scheme; each curve kept its own vi.
+    RatesNotTied,
 }
 
 impl OnsetWarning {
     /// Every code, for the README check.
-    pub const ALL: [OnsetWarning; 7] = [
+    pub const ALL: [OnsetWarning; 8] = [
         OnsetWarning::NotConverged,
         OnsetWarning::NoOnset,
         OnsetWarning::LittleCurvature,
@@ -252,6 +355,7 @@ impl OnsetWarning {
         OnsetWarning::KiBeyondTested,
         OnsetWarning::InhibitorNotInExcess,
         OnsetWarning::KiApparent,
+        OnsetWarning::RatesNotTied,
     ];
 
     /// The stable kebab-case code.
@@ -264,6 +368,7 @@ impl OnsetWarning {
             OnsetWarning::KiBeyondTested => Code::KiBeyondTested,
             OnsetWarning::InhibitorNotInExcess => Code::InhibitorNotInExcess,
             OnsetWarning::KiApparent => Code::KiApparent,
+            OnsetWarning::RatesNotTied => Code::RatesNotTied,
         }
     }
 
@@ -336,13 +441,15 @@ pub struct ModelSummary {
     pub onset: Onset,
     /// Whether vs and koff were free.
     pub reversible: bool,
+    /// Initial rates free per curve or tied to v0 by the scheme.
+    pub rates: Rates,
     /// Weighted SSE in the signal's unit squared.
     pub sse: f64,
     /// Residual degrees of freedom.
     pub df: usize,
     /// AICc.
     pub aicc: Option<f64>,
-    /// Akaike weight among the five.
+    /// Akaike weight among the five models of its set of rates.
     pub weight: f64,
     /// Whether the minimiser stopped at a trustworthy minimum.
     pub converged: bool,
@@ -365,15 +472,24 @@ pub struct OnsetResult {
     pub ki_app: Option<Param>,
     /// kinact/KI, corrected for substrate when S and Km are given; null without onset.
     pub kinact_ki: Option<Param>,
-    /// Rate constant of the return from the final complex (reversible only).
+    /// Rate constant of the return from the final complex: the estimate when
+    /// reversible; when irreversible, an upper bound (`koff_qualifier` "<"): the
+    /// upper end of koff's profile interval in the reversible form of the
+    /// chosen scheme. Null without onset.
     pub koff: Option<Param>,
+    /// "=" for an estimate, "<" for the upper bound of an irreversible call.
+    pub koff_qualifier: Qualifier,
+    /// Whether the answer's initial rates are tied to v0 by the scheme or free per curve.
+    pub rates: Rates,
+    /// What the intervals of kinact, KI and kinact/KI rest on.
+    pub interval_basis: IntervalBasis,
     /// How KI was corrected for substrate, in words.
     pub substrate_correction: String,
     /// Per-curve fits, by increasing [I].
     pub curves: Vec<CurveResult>,
     /// kobs against [I] by both schemes.
     pub replot: Vec<ReplotFit>,
-    /// The five global fits.
+    /// The ten global fits (five schemes, free and tied initial rates).
     pub models: Vec<ModelSummary>,
     /// The criterion used.
     pub criterion: Criterion,
@@ -405,22 +521,75 @@ pub fn analyse(compound: &Compound, units: &Units, options: &Options) -> Result<
     let data = global_data(&curves, scale);
     let singles: Vec<Single> = curves.iter().map(|c| fit_single(c, scale, &options.settings)).collect();
     let replot = replot_fits(&singles, &inhibitor, &options.settings);
-    let fitted: Vec<Fit> = CANDIDATES
+    let mut fitted: Vec<Fit> = Vec::with_capacity(CANDIDATES.len());
+    for (k, &(onset, rev, rates)) in CANDIDATES.iter().enumerate() {
+        // A tied fit also starts from the shared constants of its free twin.
+        let twin = (rates == Rates::Tied).then(|| &fitted[k - SET]);
+        let f = global_fit(onset, rev, rates, &inhibitor, &singles, &replot, twin, &data, &options.settings);
+        fitted.push(f);
+    }
+    // koff is a rate constant: a reversible fit that reaches its minimum at
+    // koff < 0 (product disappearing at steady state) has its constrained
+    // optimum on the bound koff = 0, which is the irreversible model; it is not
+    // a candidate.
+    let negative_koff: Vec<bool> = CANDIDATES
         .iter()
-        .map(|&(onset, rev)| global_fit(onset, rev, &inhibitor, &singles, &replot, &data, &options.settings))
+        .zip(&fitted)
+        .map(|(&(onset, rev, rates), f)| {
+            let m = OnsetModel::with_rates(onset.scheme(), rev, rates == Rates::Tied, inhibitor.clone());
+            m.koff_index().is_some_and(|j| f.theta[j] < 0.0)
+        })
         .collect();
     let aiccs: Vec<Option<f64>> = fitted.iter().map(|f| aicc(f.n, f.n_free, f.sse)).collect();
-    let weights = akaike_weights(&aiccs);
+    let (rates, tie_text) = tie_test(&fitted, &aiccs, options);
+    let base = if rates == Rates::Tied { SET } else { 0 };
+    let set = base..base + SET;
+    let mut weights = akaike_weights(&aiccs[..SET]);
+    weights.extend(akaike_weights(&aiccs[SET..]));
     let (pick, evidence) = match options.criterion {
-        Criterion::Aicc => choose_by_aicc(&fitted, &aiccs, &weights),
-        Criterion::FTest => choose_by_f(&fitted, options.alpha_level),
+        Criterion::Aicc => choose_by_aicc(&fitted, &aiccs, &weights, &negative_koff, set),
+        Criterion::FTest => choose_by_f(&fitted, &negative_koff, base, rates, options.alpha_level),
     };
-    let (onset, reversible) = CANDIDATES[pick];
-    let model = OnsetModel::new(onset.scheme(), reversible, inhibitor.clone());
+    let evidence = format!("{evidence}; initial rates {tie_text}");
+    let (onset, reversible, _) = CANDIDATES[pick];
+    let model = OnsetModel::with_rates(onset.scheme(), reversible, rates == Rates::Tied, inhibitor.clone());
     let chosen = &fitted[pick];
-    let constants = Constants::from_fit(&model, &data, chosen, compound, units, options);
+    let mut constants = Constants::from_fit(&model, &data, chosen, compound, units, options);
+    if onset != Onset::None && !reversible {
+        let twin = OnsetModel::with_rates(onset.scheme(), true, rates == Rates::Tied, inhibitor.clone());
+        constants.koff = koff_bound(&twin, &data, &fitted[pick + 2], &fitted[pick], units, options);
+    }
+    // Reversibility uncertainty is part of the answer (as in `mode`'s
+    // headline): when the other reversibility of the chosen scheme is in the
+    // 95 % confidence set of models, the intervals span both fits.
+    let twin = if reversible { pick.wrapping_sub(2) } else { pick + 2 };
+    let mut interval_basis = IntervalBasis::ChosenModel;
+    if onset != Onset::None
+        && plausible(twin, &weights, base..base + SET)
+        && fitted[twin].converged()
+        && !negative_koff[twin]
+    {
+        let twin_model = OnsetModel::with_rates(onset.scheme(), !reversible, rates == Rates::Tied, inhibitor.clone());
+        let other = Constants::from_fit(&twin_model, &data, &fitted[twin], compound, units, options);
+        let note = format!(
+            "interval spans the {} and {} fits (Akaike weights {:.2} and {:.2}): reversibility is not settled by the data",
+            candidate_name(pick),
+            candidate_name(twin),
+            weights[pick],
+            weights[twin]
+        );
+        constants.span(&other, &note);
+        interval_basis = IntervalBasis::SpanOverReversibility;
+    }
     let curve_results = curve_results(&curves, &singles, &model, chosen, scale, units, options.confidence);
     let mut warnings = warnings(compound, &curves, &model, chosen, &constants, options);
+    if rates == Rates::Free && options.initial_rates == RatesPolicy::Test {
+        warnings.push(OnsetWarning::RatesNotTied.with(format!(
+            "the initial rates do not follow the scheme's vi = v0/(1 + [I]/KI,app) (two-step) or vi = v0 \
+             (one-step) ({tie_text}): a mixing dead time, a fast first phase or a drifting signal; each curve \
+             keeps its own vi, which costs precision in kinact and KI"
+        )));
+    }
     if !chosen.converged() {
         warnings.insert(
             0,
@@ -434,9 +603,10 @@ pub fn analyse(compound: &Compound, units: &Units, options: &Options) -> Result<
         .iter()
         .zip(&fitted)
         .zip(aiccs.iter().zip(&weights))
-        .map(|((&(onset, reversible), f), (a, w))| ModelSummary {
+        .map(|((&(onset, reversible, rates), f), (a, w))| ModelSummary {
             onset,
             reversible,
+            rates,
             sse: f.sse * scale * scale,
             df: f.df,
             aicc: *a,
@@ -444,6 +614,7 @@ pub fn analyse(compound: &Compound, units: &Units, options: &Options) -> Result<
             converged: f.converged(),
         })
         .collect();
+    let koff_qualifier = if onset != Onset::None && !reversible { Qualifier::Less } else { Qualifier::Equal };
     Ok(OnsetResult {
         compound: compound.label.clone(),
         onset,
@@ -453,6 +624,9 @@ pub fn analyse(compound: &Compound, units: &Units, options: &Options) -> Result<
         ki_app: constants.ki_app,
         kinact_ki: constants.kinact_ki,
         koff: constants.koff,
+        koff_qualifier,
+        rates,
+        interval_basis,
         substrate_correction: constants.correction_text,
         curves: curve_results,
         replot: replot.iter().map(|r| r.summary.clone()).collect(),
@@ -463,6 +637,43 @@ pub fn analyse(compound: &Compound, units: &Units, options: &Options) -> Result<
         confidence: options.confidence,
         warnings,
     })
+}
+
+/// Whether the initial rates are tied to v0 by the scheme: the tied and free
+/// forms of the most general model (two-step reversible) compared by the
+/// chosen criterion. Tied rates are kept unless rejected: by AICc, unless the
+/// free form's AICc is lower by more than the parsimony window; by F test,
+/// unless the extra-sum-of-squares test of the tie is significant. Returns the
+/// rates and the comparison in words.
+fn tie_test(fits: &[Fit], aiccs: &[Option<f64>], options: &Options) -> (Rates, String) {
+    let (free, tied) = (GENERAL, SET + GENERAL);
+    match options.initial_rates {
+        RatesPolicy::Tied => return (Rates::Tied, "tied to the scheme (as asked)".into()),
+        RatesPolicy::Free => return (Rates::Free, "free per curve (as asked)".into()),
+        RatesPolicy::Test => {}
+    }
+    if !fits[tied].converged() {
+        return (Rates::Free, "free (the tied fit did not converge)".into());
+    }
+    if !fits[free].converged() {
+        return (Rates::Tied, "tied to the scheme (the free fit did not converge)".into());
+    }
+    match options.criterion {
+        Criterion::Aicc => match (aiccs[free], aiccs[tied]) {
+            (Some(f), Some(t)) if t - f > PARSIMONY_WINDOW => {
+                (Rates::Free, format!("free: the tie is rejected, AICc of free rates lower by {:.1}", t - f))
+            }
+            (Some(f), Some(t)) => (Rates::Tied, format!("tied to the scheme (AICc free − tied = {:.1})", f - t)),
+            _ => (Rates::Tied, "tied to the scheme (AICc not computable)".into()),
+        },
+        Criterion::FTest => match extra_sum_of_squares(fits[tied].sse, fits[tied].df, fits[free].sse, fits[free].df) {
+            Some((_, p)) if p < options.alpha_level => {
+                (Rates::Free, format!("free: the tie is rejected, F test p = {}", short(p)))
+            }
+            Some((_, p)) => (Rates::Tied, format!("tied to the scheme (F test of the tie p = {})", short(p))),
+            None => (Rates::Tied, "tied to the scheme (F test not computable)".into()),
+        },
+    }
 }
 
 /// Rejects compounds that cannot support the fits: a located message per problem.
@@ -599,19 +810,30 @@ fn replot_fits(singles: &[Single], inhibitor: &[f64], settings: &FitSettings) ->
     out
 }
 
-/// Fits one candidate from starts built out of the single-curve fits and the replot.
+/// Fits one candidate from starts built out of the single-curve fits and the
+/// replot (and, for tied rates, the shared constants of the free twin).
+#[allow(clippy::too_many_arguments)]
 fn global_fit(
     onset: Onset,
     reversible: bool,
+    rates: Rates,
     inhibitor: &[f64],
     singles: &[Single],
     replot: &[Replot],
+    twin: Option<&Fit>,
     data: &Data<Reading>,
     settings: &FitSettings,
 ) -> Fit {
-    let model = OnsetModel::new(onset.scheme(), reversible, inhibitor.to_vec());
+    let model = OnsetModel::with_rates(onset.scheme(), reversible, rates == Rates::Tied, inhibitor.to_vec());
     let mut starts: Vec<Vec<f64>> = Vec::new();
-    for shared in shared_starts(onset, inhibitor, replot, singles) {
+    let mut shared_sets = shared_starts(onset, rates, inhibitor, replot, singles);
+    if let Some(f) = twin.filter(|f| f.sse.is_finite()) {
+        let n = model.shared();
+        if onset != Onset::None {
+            shared_sets.insert(0, f.theta[..n].to_vec());
+        }
+    }
+    for shared in shared_sets {
         let start = full_start(&model, &shared, singles);
         // A replot with koff gives its own koff start as well.
         if let (Some(j), Some(&koff)) = (model.koff_index(), shared.get(model.koff_index().unwrap_or(usize::MAX))) {
@@ -625,14 +847,24 @@ fn global_fit(
     fit(&model, data, &vec![None; model.len()], settings)
 }
 
-/// Starting values of the scheme's constants (and koff = 0 when reversible).
-fn shared_starts(onset: Onset, inhibitor: &[f64], replot: &[Replot], singles: &[Single]) -> Vec<Vec<f64>> {
+/// Starting values of the scheme's constants (and koff = 0 when reversible;
+/// for tied rates without onset, the rapid KI over the tested range).
+fn shared_starts(
+    onset: Onset,
+    rates: Rates,
+    inhibitor: &[f64],
+    replot: &[Replot],
+    singles: &[Single],
+) -> Vec<Vec<f64>> {
     let from_replot = replot.iter().filter(|r| r.summary.scheme == onset).map(|r| r.theta.clone());
     let positive: Vec<f64> = inhibitor.iter().cloned().filter(|i| *i > 0.0).collect();
     let (i_min, i_max) = positive.iter().fold((f64::INFINITY, 0.0f64), |(a, b), &i| (a.min(i), b.max(i)));
     let span = singles.iter().map(|s| s.data.x.last().unwrap_or(&1.0) - s.data.x[0]).fold(0.0, f64::max).max(1e-300);
     let mut out: Vec<Vec<f64>> = from_replot.collect();
     match onset {
+        Onset::None if rates == Rates::Tied => {
+            return [i_min, (i_min * i_max).sqrt(), i_max * 3.0, i_max * 100.0].iter().map(|&k| vec![k]).collect();
+        }
         Onset::None => return vec![Vec::new()],
         Onset::OneStep => {
             for k in [0.3, 3.0] {
@@ -649,7 +881,9 @@ fn shared_starts(onset: Onset, inhibitor: &[f64], replot: &[Replot], singles: &[
 }
 
 /// A full parameter vector: shared constants, koff from the curves' own
-/// fits (vs/vi·kobs, their median), then each curve's vi and P0 from its own fit.
+/// fits (vs/vi·kobs, their median), then v0 (tied: the uninhibited curve's
+/// slope, or the largest vi) or each curve's vi, and each curve's P0 from its
+/// own fit.
 fn full_start(model: &OnsetModel, shared: &[f64], singles: &[Single]) -> Vec<f64> {
     let mut theta = vec![0.0; model.len()];
     let n = shared.len().min(model.shared() - usize::from(model.reversible()));
@@ -665,6 +899,7 @@ fn full_start(model: &OnsetModel, shared: &[f64], singles: &[Single]) -> Vec<f64
         koff.sort_by(f64::total_cmp);
         theta[j] = koff.get(koff.len() / 2).copied().unwrap_or(0.0);
     }
+    let mut rates = Vec::with_capacity(singles.len());
     for (slots, s) in model.layout().iter().zip(singles) {
         let own = if model.scheme() == Scheme::None {
             None
@@ -673,33 +908,43 @@ fn full_start(model: &OnsetModel, shared: &[f64], singles: &[Single]) -> Vec<f64
         } else {
             s.irreversible.as_ref()
         };
-        match own {
-            Some(f) => {
-                theta[slots.vi] = f.theta[CurveModel::VI];
-                theta[slots.p0] = f.theta[CurveModel::P0];
-            }
-            None => {
-                theta[slots.vi] = s.line.theta[1];
-                theta[slots.p0] = s.line.theta[0];
-            }
+        let (vi, p0) = match own {
+            Some(f) => (f.theta[CurveModel::VI], f.theta[CurveModel::P0]),
+            None => (s.line.theta[1], s.line.theta[0]),
+        };
+        rates.push(vi);
+        theta[slots.p0] = p0;
+        if !model.tied() {
+            theta[slots.vi] = vi;
         }
+    }
+    if let Some(j) = model.v0_index() {
+        let uninhibited = model.inhibitor().iter().position(|i| *i <= 0.0);
+        theta[j] = match uninhibited {
+            Some(c) => rates[c],
+            None => rates.iter().cloned().fold(f64::NEG_INFINITY, f64::max),
+        };
     }
     theta
 }
 
-/// Lowest AICc; among models within the parsimony window of it, the one with
-/// fewest parameters (as `mode` chooses).
-fn choose_by_aicc(fits: &[Fit], aiccs: &[Option<f64>], weights: &[f64]) -> (usize, String) {
-    let usable = |k: usize| aiccs[k].is_some() && fits[k].converged();
-    let best = (0..fits.len())
-        .filter(|&k| usable(k))
-        .min_by(|&a, &b| aiccs[a].unwrap_or(0.0).total_cmp(&aiccs[b].unwrap_or(0.0)));
+/// Lowest AICc among the models of `set`; among those within the parsimony
+/// window of it, the one with fewest parameters (as `mode` chooses).
+fn choose_by_aicc(
+    fits: &[Fit],
+    aiccs: &[Option<f64>],
+    weights: &[f64],
+    negative_koff: &[bool],
+    set: std::ops::Range<usize>,
+) -> (usize, String) {
+    let usable = |k: &usize| aiccs[*k].is_some() && fits[*k].converged() && !negative_koff[*k];
+    let best = set.clone().filter(usable).min_by(|&a, &b| aiccs[a].unwrap_or(0.0).total_cmp(&aiccs[b].unwrap_or(0.0)));
     let Some(best) = best else {
-        return (0, "no model could be compared (too few readings or no fit converged)".into());
+        return (set.start, "no model could be compared (too few readings or no fit converged)".into());
     };
     let best_aicc = aiccs[best].unwrap_or(f64::INFINITY);
-    let pick = (0..fits.len())
-        .filter(|&k| usable(k) && aiccs[k].is_some_and(|a| a - best_aicc <= PARSIMONY_WINDOW))
+    let pick = set
+        .filter(|k| usable(k) && aiccs[*k].is_some_and(|a| a - best_aicc <= PARSIMONY_WINDOW))
         .min_by(|&a, &b| {
             fits[a].n_free.cmp(&fits[b].n_free).then(aiccs[a].unwrap_or(0.0).total_cmp(&aiccs[b].unwrap_or(0.0)))
         })
@@ -716,33 +961,95 @@ fn choose_by_aicc(fits: &[Fit], aiccs: &[Option<f64>], weights: &[f64]) -> (usiz
     (pick, text)
 }
 
-/// Forward F tests: none → one-step → two-step, then irreversible → reversible.
-fn choose_by_f(fits: &[Fit], level: f64) -> (usize, String) {
-    let p = |a: usize, b: usize| extra_sum_of_squares(fits[a].sse, fits[a].df, fits[b].sse, fits[b].df).map(|t| t.1);
+/// Forward F tests within one set of rates: is there an onset, then
+/// one-step → two-step, then irreversible → reversible. With free rates the
+/// onset test is none against one-step (one-step with kinact/KI → 0 is the
+/// straight lines); with tied rates it is none against two-step irreversible
+/// (two-step with kinact → 0 is the rapid-reversible lines vi = v0/(1 + [I]/KI)),
+/// and one-step is two-step's limit KI → ∞ at fixed kinact/KI.
+fn choose_by_f(fits: &[Fit], negative_koff: &[bool], base: usize, rates: Rates, level: f64) -> (usize, String) {
+    let p = |a: usize, b: usize| {
+        let (a, b) = (base + a, base + b);
+        extra_sum_of_squares(fits[a].sse, fits[a].df, fits[b].sse, fits[b].df).map(|t| t.1)
+    };
     let text = |v: Option<f64>| v.map_or("not computable".to_string(), |v| format!("p = {}", short(v)));
     let significant = |v: Option<f64>| v.is_some_and(|v| v < level);
     let mut steps = Vec::new();
-    let p1 = p(0, 1);
-    steps.push(format!("one-step vs none: {}", text(p1)));
+    let (p1, against) = match rates {
+        Rates::Free => (p(0, 1), "one-step"),
+        Rates::Tied => (p(0, 2), "two-step"),
+    };
+    steps.push(format!("{against} vs none: {}", text(p1)));
     if !significant(p1) {
-        return (0, format!("none ({}; level {level})", steps.join("; ")));
+        return (base, format!("{} ({}; level {level})", candidate_name(base), steps.join("; ")));
     }
     let p2 = p(1, 2);
     steps.push(format!("two-step vs one-step: {}", text(p2)));
     let irreversible = if significant(p2) { 2 } else { 1 };
     let reversible = irreversible + 2;
     let p3 = p(irreversible, reversible);
+    if negative_koff[base + reversible] {
+        steps.push("reversible vs irreversible: koff at its bound 0".into());
+        let pick = base + irreversible;
+        return (pick, format!("{} ({}; level {level})", candidate_name(pick), steps.join("; ")));
+    }
     steps.push(format!("reversible vs irreversible: {}", text(p3)));
-    let pick = if significant(p3) { reversible } else { irreversible };
+    let pick = base + if significant(p3) { reversible } else { irreversible };
     (pick, format!("{} ({}; level {level})", candidate_name(pick), steps.join("; ")))
 }
 
 fn candidate_name(k: usize) -> String {
-    let (onset, reversible) = CANDIDATES[k];
+    let (onset, reversible, _) = CANDIDATES[k];
     match onset {
         Onset::None => "no onset".to_string(),
         _ => format!("{} {}", onset.name(), if reversible { "reversible" } else { "irreversible" }),
     }
+}
+
+/// The upper bound on koff when the call is irreversible: the upper end of
+/// koff's profile interval in the reversible form of the chosen scheme, at
+/// the chosen confidence (Bates & Watts 1988, §6.1). When the reversible fit
+/// has koff < 0, the profile starts from the constrained optimum koff = 0
+/// (the irreversible fit `irreversible`, with the reversible model's degrees
+/// of freedom). `None` when the profile has no finite upper end.
+fn koff_bound(
+    model: &OnsetModel,
+    data: &Data<Reading>,
+    fit: &Fit,
+    irreversible: &Fit,
+    units: &Units,
+    options: &Options,
+) -> Option<Param> {
+    let j = model.koff_index()?;
+    let mut start = fit.clone();
+    if fit.theta[j] < 0.0 {
+        // The irreversible parameters with koff = 0 inserted at its place.
+        let mut theta = irreversible.theta.clone();
+        theta.insert(j, 0.0);
+        if theta.len() != fit.theta.len() {
+            return None;
+        }
+        start.theta = theta;
+        start.sse = irreversible.sse;
+    }
+    let interval = profile(model, data, &start, j, options.confidence, &options.settings);
+    let high = interval.high.value()?;
+    let mut p = Param::new(
+        high,
+        None,
+        Interval { low: Bound::Unbounded, high: Bound::At(high) },
+        "profile-upper",
+        Some(units.per_time()),
+    );
+    p.low = None;
+    p.note = Some(format!(
+        "no return from the final complex seen within the run: koff below {} {} (upper end of its {:.0} % profile \
+         interval in the reversible fit)",
+        short(high),
+        units.per_time(),
+        options.confidence * 100.0
+    ));
+    Some(p)
 }
 
 /// kinact, KI and kinact/KI of the chosen fit, with profile intervals.
@@ -808,8 +1115,7 @@ impl Constants {
                 let ki_app = profiled(model, fit, 1, ki_unit.clone());
                 out.ki = Some(correct(ki_app.clone(), ki_unit, false));
                 out.ki_app = Some(ki_app);
-                let ratio_model =
-                    OnsetModel::new(Scheme::TwoStepByRatio, model.reversible(), model.inhibitor().to_vec());
+                let ratio_model = model.in_scheme(Scheme::TwoStepByRatio);
                 let mut start = fit.theta.clone();
                 start[0] = fit.theta[0] / fit.theta[1];
                 let ratio_fit =
@@ -829,14 +1135,30 @@ impl Constants {
     }
 }
 
+impl Constants {
+    /// Widens the intervals of kinact, KI, KI,app and kinact/KI to cover those
+    /// of `other` (an open end stays open); the estimates stay this fit's.
+    fn span(&mut self, other: &Constants, note: &str) {
+        let widen = |p: &mut Option<Param>, q: &Option<Param>| {
+            if let (Some(p), Some(q)) = (p.as_mut(), q.as_ref()) {
+                p.low = p.low.zip(q.low).map(|(a, b)| a.min(b));
+                p.high = p.high.zip(q.high).map(|(a, b)| a.max(b));
+                p.interval = "profile-span";
+                p.note = Some(match &p.note {
+                    Some(n) => format!("{n}; {note}"),
+                    None => note.to_string(),
+                });
+            }
+        };
+        widen(&mut self.kinact, &other.kinact);
+        widen(&mut self.ki, &other.ki);
+        widen(&mut self.ki_app, &other.ki_app);
+        widen(&mut self.kinact_ki, &other.kinact_ki);
+    }
+}
+
 fn fixed_param(value: f64, unit: String) -> Param {
-    Param::new(
-        value,
-        None,
-        Interval { low: crate::fit::intervals::Bound::At(value), high: crate::fit::intervals::Bound::At(value) },
-        "fixed",
-        Some(unit),
-    )
+    Param::new(value, None, Interval { low: Bound::At(value), high: Bound::At(value) }, "fixed", Some(unit))
 }
 
 /// Per-curve kobs, vi, vs from each curve's own fit (irreversible or
@@ -858,7 +1180,7 @@ fn curve_results(
         .map(|(k, (c, s))| {
             let slots = model.layout()[k];
             let kobs = model.kobs(&global.theta, k);
-            let vi = global.theta[slots.vi] * scale;
+            let vi = model.vi(&global.theta, k) * scale;
             let koff = model.koff_index().map_or(0.0, |j| global.theta[j]);
             let global_curve = GlobalCurve {
                 kobs,

@@ -3,7 +3,7 @@
 //! [`crate::analysis::onset`], writes with [`crate::view::onset`].
 
 use super::{OutputArgs, finish, parse_flag_concentration};
-use crate::analysis::onset::{Compound, OnsetResult, Options, SubstrateMechanism, analyse};
+use crate::analysis::onset::{Compound, OnsetResult, Options, RatesPolicy, SubstrateMechanism, analyse};
 use crate::error::{Error, Result};
 use crate::io::onset::{ReadOptions, TimeUnit, read};
 use crate::io::{Table, write_output};
@@ -34,6 +34,11 @@ pub struct Args {
     /// How the first binding step relates to the substrate, for KI = KI,app/(…).
     #[arg(long, value_enum, default_value_t = MechanismArg::Competitive)]
     pub mechanism_vs_substrate: MechanismArg,
+    /// Initial rates of the global fits: tested (tied to v0 by the scheme
+    /// unless the data reject it), always tied, or free per curve (e.g. a known
+    /// mixing dead time).
+    #[arg(long, value_enum, default_value_t = RatesArg::Test)]
+    pub initial_rates: RatesArg,
     /// Model choice and confidence level.
     #[command(flatten)]
     pub choice: super::ModelChoiceArgs,
@@ -43,6 +48,27 @@ pub struct Args {
     /// Pictures (one SVG per compound) and the HTML report.
     #[command(flatten)]
     pub pictures: super::PictureArgs,
+}
+
+/// `--initial-rates` values.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum RatesArg {
+    /// Tied unless the tie is rejected by the criterion.
+    Test,
+    /// Always tied to v0 by the scheme.
+    Tied,
+    /// Always free per curve.
+    Free,
+}
+
+impl From<RatesArg> for RatesPolicy {
+    fn from(r: RatesArg) -> Self {
+        match r {
+            RatesArg::Test => RatesPolicy::Test,
+            RatesArg::Tied => RatesPolicy::Tied,
+            RatesArg::Free => RatesPolicy::Free,
+        }
+    }
 }
 
 /// `--mechanism-vs-substrate` values.
@@ -114,6 +140,7 @@ pub fn process(table: &Table, args: &Args) -> Result<Outcome> {
         alpha_level: args.choice.alpha_level,
         confidence: args.choice.confidence,
         substrate_mechanism: args.mechanism_vs_substrate.into(),
+        initial_rates: args.initial_rates.into(),
         ..Options::default()
     };
     let mut outcome = Outcome { pairs: Vec::new(), failures: Vec::new() };
@@ -142,6 +169,7 @@ pub fn default_args(file: &str) -> Args {
         km: None,
         enzyme: None,
         mechanism_vs_substrate: MechanismArg::Competitive,
+        initial_rates: RatesArg::Test,
         choice: super::ModelChoiceArgs::default(),
         output: OutputArgs { format: crate::io::Format::Table, output: None },
         pictures: super::PictureArgs::default(),

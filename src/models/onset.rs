@@ -19,8 +19,14 @@
 //! koff/kobs), so the reversible global model has one parameter more than the
 //! irreversible one (koff; koff = 0 is vs = 0), not one per curve.
 //! [`OnsetModel`] fits every curve of a compound at once with shared kinetic
-//! constants and per-curve vi and P0; [`CurveModel`] fits one curve with a
-//! free vs; [`ReplotModel`] fits kobs against [I].
+//! constants and per-curve P0, and either per-curve vi (*free* initial rates)
+//! or vi tied to the uninhibited rate v0 by the scheme (*tied*, Morrison &
+//! Walsh 1988; Copeland 2013, ch. 9): vi = v0/(1 + [I]/KI) for the two-step
+//! scheme (the rapid first complex E·I already holds enzyme at time zero) and
+//! vi = v0 for the one-step scheme (no complex forms before the onset); with
+//! no onset, the rapid-reversible vi = v0/(1 + [I]/KI) with KI its own
+//! constant. [`CurveModel`] fits one curve with a free vs; [`ReplotModel`]
+//! fits kobs against [I].
 
 use crate::fit::{Data, Model, Scale};
 
@@ -104,12 +110,17 @@ pub struct Reading {
 
 /// All curves of one compound with shared kinetic constants.
 ///
-/// Parameter vector: the scheme's constants, then koff when reversible, then
-/// per curve vi and P0. An uninhibited curve is a straight line vi·t + P0.
+/// Parameter vector: the scheme's constants (with no onset and tied rates,
+/// the rapid KI), then koff when reversible, then v0 when tied, then per curve
+/// vi (free rates only) and P0. An uninhibited curve is a straight line
+/// vi·t + P0.
 #[derive(Debug, Clone)]
 pub struct OnsetModel {
     scheme: Scheme,
     reversible: bool,
+    tied: bool,
+    /// Index of the KI that divides vi (tied two-step, tied none).
+    ki_slot: Option<usize>,
     inhibitor: Vec<f64>,
     names: Vec<&'static str>,
     scales: Vec<Scale>,
@@ -120,31 +131,89 @@ pub struct OnsetModel {
 /// Where one curve's own parameters sit in the vector.
 #[derive(Debug, Clone, Copy)]
 pub struct CurveSlots {
-    /// Index of vi.
+    /// Index of vi (free rates), or of the shared v0 (tied rates).
     pub vi: usize,
     /// Index of P0.
     pub p0: usize,
 }
 
 impl OnsetModel {
-    /// A model for curves at the given inhibitor concentrations.
+    /// A model for curves at the given inhibitor concentrations, each curve
+    /// with its own vi (free initial rates).
     pub fn new(scheme: Scheme, reversible: bool, inhibitor: Vec<f64>) -> OnsetModel {
+        OnsetModel::with_rates(scheme, reversible, false, inhibitor)
+    }
+
+    /// A model whose initial rates are free per curve (`tied` false) or tied
+    /// to v0 by the scheme (`tied` true).
+    pub fn with_rates(scheme: Scheme, reversible: bool, tied: bool, inhibitor: Vec<f64>) -> OnsetModel {
         let reversible = reversible && scheme != Scheme::None;
         let mut names: Vec<&'static str> = scheme.shared_names().to_vec();
         let mut scales = vec![Scale::Log; names.len()];
+        let ki_slot = match scheme {
+            Scheme::TwoStep | Scheme::TwoStepByRatio if tied => Some(1),
+            Scheme::None if tied => {
+                names.push("ki");
+                scales.push(Scale::Log);
+                Some(0)
+            }
+            _ => None,
+        };
         if reversible {
             names.push("koff");
             scales.push(Scale::Linear);
         }
-        let mut layout = Vec::with_capacity(inhibitor.len());
-        for &i in &inhibitor {
-            let vi = names.len();
-            names.extend(["vi", "p0"]);
-            scales.extend([Scale::Linear, Scale::Linear]);
-            let _ = i;
-            layout.push(CurveSlots { vi, p0: vi + 1 });
+        let v0 = names.len();
+        if tied {
+            names.push("v0");
+            scales.push(Scale::Linear);
         }
-        OnsetModel { scheme, reversible, inhibitor, names, scales, layout, starts: Vec::new() }
+        let mut layout = Vec::with_capacity(inhibitor.len());
+        for _ in &inhibitor {
+            let vi = if tied {
+                v0
+            } else {
+                names.push("vi");
+                scales.push(Scale::Linear);
+                names.len() - 1
+            };
+            names.push("p0");
+            scales.push(Scale::Linear);
+            layout.push(CurveSlots { vi, p0: names.len() - 1 });
+        }
+        OnsetModel { scheme, reversible, tied, ki_slot, inhibitor, names, scales, layout, starts: Vec::new() }
+    }
+
+    /// The same model in another scheme (same reversibility, rates and curves).
+    pub fn in_scheme(&self, scheme: Scheme) -> OnsetModel {
+        OnsetModel::with_rates(scheme, self.reversible, self.tied, self.inhibitor.clone())
+    }
+
+    /// Whether vi is tied to v0 by the scheme.
+    pub fn tied(&self) -> bool {
+        self.tied
+    }
+
+    /// Index of v0, when tied.
+    pub fn v0_index(&self) -> Option<usize> {
+        self.tied.then(|| self.layout.first().map_or(self.shared(), |s| s.vi))
+    }
+
+    /// The fraction vi/v0 of curve `c` under tied rates, and its derivative in KI.
+    fn tie(&self, theta: &[f64], c: usize) -> (f64, f64) {
+        let i = self.inhibitor[c];
+        match self.ki_slot {
+            Some(j) if self.tied && i > 0.0 => {
+                let ki = theta[j];
+                (ki / (ki + i), i / ((ki + i) * (ki + i)))
+            }
+            _ => (1.0, 0.0),
+        }
+    }
+
+    /// The initial rate of curve `c` at parameters `theta`.
+    pub fn vi(&self, theta: &[f64], c: usize) -> f64 {
+        theta[self.layout[c].vi] * self.tie(theta, c).0
     }
 
     /// The same model with the starting points the engine should try.
@@ -168,9 +237,12 @@ impl OnsetModel {
         self.reversible
     }
 
-    /// Number of shared kinetic parameters (scheme constants and koff).
+    /// Number of shared kinetic parameters (scheme constants, the rapid KI
+    /// of tied rates without onset, and koff; not v0).
     pub fn shared(&self) -> usize {
-        self.scheme.shared_names().len() + usize::from(self.reversible)
+        self.scheme.shared_names().len()
+            + usize::from(self.scheme == Scheme::None && self.tied)
+            + usize::from(self.reversible)
     }
 
     /// Index of koff, when reversible.
@@ -223,7 +295,7 @@ impl Model for OnsetModel {
 
     fn value(&self, theta: &[f64], x: &Reading) -> f64 {
         let slots = self.layout[x.curve];
-        let (vi, p0) = (theta[slots.vi], theta[slots.p0]);
+        let (vi, p0) = (self.vi(theta, x.curve), theta[slots.p0]);
         let k = self.kobs(theta, x.curve);
         if self.is_line(x.curve) || k == 0.0 {
             return vi * x.time + p0;
@@ -241,23 +313,29 @@ impl Model for OnsetModel {
         let koff = self.koff_index().map_or(0.0, |j| theta[j]);
         let k =
             if self.is_line(x.curve) { 0.0 } else { koff + self.scheme.rate(theta, self.inhibitor[x.curve], &mut dk) };
-        if k == 0.0 {
-            grad[slots.vi] = x.time;
-            return;
-        }
-        let vi = theta[slots.vi];
+        // P = vi·h + P0 with vi = v0·d (d = 1 for free rates), h the shape.
+        let (d, dd) = self.tie(theta, x.curve);
+        let vi = theta[slots.vi] * d;
         let t = x.time;
-        let r = koff / k;
-        let (g, dg) = onset_term(k, t);
-        grad[slots.vi] = r * t + (1.0 - r) * g;
-        // P = vi·(r·t + (1 − r)·g(k)) + P0 with r = koff/k.
-        let d_k = vi * (-koff / (k * k) * (t - g) + (1.0 - r) * dg);
-        let n = self.scheme.shared_names().len();
-        for (j, d) in dk.iter().take(n).enumerate() {
-            grad[j] = d_k * d;
-        }
-        if let Some(j) = self.koff_index() {
-            grad[j] = vi * (t - g) / k + d_k;
+        let h = if k == 0.0 {
+            t
+        } else {
+            let r = koff / k;
+            let (g, dg) = onset_term(k, t);
+            // h = r·t + (1 − r)·g(k) with r = koff/k.
+            let d_k = vi * (-koff / (k * k) * (t - g) + (1.0 - r) * dg);
+            let n = self.scheme.shared_names().len();
+            for (j, dj) in dk.iter().take(n).enumerate() {
+                grad[j] = d_k * dj;
+            }
+            if let Some(j) = self.koff_index() {
+                grad[j] = vi * (t - g) / k + d_k;
+            }
+            r * t + (1.0 - r) * g
+        };
+        grad[slots.vi] = d * h;
+        if let Some(j) = self.ki_slot.filter(|_| self.tied) {
+            grad[j] += theta[slots.vi] * dd * h;
         }
     }
 
@@ -471,8 +549,8 @@ mod tests {
         let points: Vec<Reading> =
             (0..4).flat_map(|c| (0..8).map(move |k| Reading { curve: c, time: k as f64 * 4.0 })).collect();
         for scheme in [Scheme::None, Scheme::OneStep, Scheme::TwoStep, Scheme::TwoStepByRatio] {
-            for reversible in [false, true] {
-                let m = OnsetModel::new(scheme, reversible, inhibitor.clone());
+            for (reversible, tied) in [(false, false), (true, false), (false, true), (true, true)] {
+                let m = OnsetModel::with_rates(scheme, reversible, tied, inhibitor.clone());
                 let mut theta: Vec<f64> = vec![0.0; m.len()];
                 for (j, name) in m.names().iter().enumerate() {
                     theta[j] = match *name {
@@ -481,6 +559,7 @@ mod tests {
                         "ki" => 3.0,
                         "koff" => 0.004,
                         "vi" => 1.5 + j as f64 * 0.1,
+                        "v0" => 2.5,
                         _ => 5.0,
                     };
                 }
@@ -495,6 +574,31 @@ mod tests {
         check_gradient(&ReplotModel { scheme: Scheme::OneStep, reversible: true }, &[0.02, 0.001], &i);
         check_gradient(&ReplotModel { scheme: Scheme::TwoStep, reversible: false }, &[0.1, 3.0], &i);
         check_gradient(&ReplotModel { scheme: Scheme::TwoStep, reversible: true }, &[0.1, 3.0, 0.002], &i);
+    }
+
+    /// Tied rates: vi = v0·KI/(KI + [I]) for two-step (and no onset), v0 for
+    /// one-step (Morrison & Walsh 1988); the tied curve equals the free one
+    /// with those vi.
+    #[test]
+    fn tied_rates_follow_the_scheme() {
+        let inhibitor = vec![0.0, 1.0, 4.0];
+        let tied = OnsetModel::with_rates(Scheme::TwoStep, true, true, inhibitor.clone());
+        assert_eq!(tied.names(), &["kinact", "ki", "koff", "v0", "p0", "p0", "p0"]);
+        let theta = [0.2, 2.0, 0.01, 3.0, 1.0, 1.1, 1.2];
+        assert_relative_eq!(tied.vi(&theta, 0), 3.0);
+        assert_relative_eq!(tied.vi(&theta, 1), 2.0, max_relative = 1e-15);
+        assert_relative_eq!(tied.vi(&theta, 2), 1.0, max_relative = 1e-15);
+        let free = OnsetModel::new(Scheme::TwoStep, true, inhibitor.clone());
+        let free_theta = [0.2, 2.0, 0.01, 3.0, 1.0, 2.0, 1.1, 1.0, 1.2];
+        for c in 0..3 {
+            let x = Reading { curve: c, time: 7.0 };
+            assert_relative_eq!(tied.value(&theta, &x), free.value(&free_theta, &x), max_relative = 1e-14);
+        }
+        let one = OnsetModel::with_rates(Scheme::OneStep, false, true, inhibitor.clone());
+        assert_relative_eq!(one.vi(&[0.02, 3.0, 1.0, 1.0, 1.0], 2), 3.0);
+        let none = OnsetModel::with_rates(Scheme::None, false, true, inhibitor);
+        assert_eq!(none.names(), &["ki", "v0", "p0", "p0", "p0"]);
+        assert_relative_eq!(none.vi(&[4.0, 3.0, 1.0, 1.0, 1.0], 2), 1.5);
     }
 
     #[test]

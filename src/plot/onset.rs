@@ -24,7 +24,8 @@ pub fn curves_panel(compound: &Compound, r: &OnsetResult) -> XyChart {
     let x = Axis::linear(format!("time{time_unit}")).from_zero();
     let y = Axis::linear("signal".to_string());
     let mut chart = XyChart::new(format!("Progress curves — {}", name(r)), x, y);
-    chart.subtitle = Some(format!("onset {}; lines: the chosen global fit", r.onset.name()));
+    chart.subtitle =
+        Some(format!("onset {}; lines: the chosen global fit (initial rates {})", r.onset.name(), r.rates.name()));
     chart.flagged = !r.warnings.is_empty();
     let mut curves: Vec<_> = compound.curves.iter().collect();
     curves.sort_by(|a, b| a.inhibitor.total_cmp(&b.inhibitor));

@@ -149,6 +149,8 @@ codes! {
     SubstrateDepleted = "substrate-depleted", "the uninhibited curve used more than 10 % of the substrate", "common practice";
     /// Inhibitor not in excess over enzyme.
     InhibitorNotInExcess = "inhibitor-not-in-excess", "the lowest [I] is below 10 × Et, so bound inhibitor depletes the free inhibitor", "common practice";
+    /// Initial rates not tied to the scheme.
+    RatesNotTied = "rates-not-tied", "the curves' initial rates do not follow the scheme's relation to v0 and [I] (mixing dead time, a fast first phase?): each curve keeps its own", "AICc / extra-sum-of-squares F test";
     /// KI is apparent.
     KiApparent = "ki-apparent", "no S and Km given: KI is KI,app, not a constant of the inhibitor", "—";
     // rank

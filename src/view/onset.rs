@@ -5,9 +5,9 @@
 use serde::Serialize;
 
 use super::CAUTION;
-use crate::analysis::onset::OnsetResult;
+use crate::analysis::onset::{IntervalBasis, OnsetResult, Rates};
 use crate::error::{Error, Result};
-use crate::io::output::{json_bytes, new_grid, sig};
+use crate::io::output::{json_bytes, new_grid, qualifier_cell, sig};
 use crate::io::{Format, neutralise_formula};
 use crate::report::Param;
 
@@ -67,8 +67,16 @@ const COLUMNS: &[Column] = &[
     Column { name: "kinact_ki_low", value: |r| low(&r.kinact_ki), summary: false },
     Column { name: "kinact_ki_high", value: |r| high(&r.kinact_ki), summary: false },
     Column { name: "kinact_ki_unit", value: |r| unit(&r.kinact_ki), summary: false },
+    Column {
+        name: "koff_qualifier",
+        value: |r| text(if r.koff.is_some() { qualifier_cell(r.koff_qualifier) } else { String::new() }),
+        summary: false,
+    },
     Column { name: "koff", value: |r| value(&r.koff), summary: false },
+    Column { name: "koff_unit", value: |r| unit(&r.koff), summary: false },
     Column { name: "curves", value: |r| Cell::Count(r.curves.len()), summary: true },
+    Column { name: "rates", value: |r| text(r.rates.name()), summary: false },
+    Column { name: "interval_basis", value: |r| text(r.interval_basis.name()), summary: false },
     Column { name: "n", value: |r| Cell::Count(r.n), summary: false },
     Column { name: "evidence", value: |r| text(r.evidence.clone()), summary: false },
     Column { name: "substrate_correction", value: |r| text(r.substrate_correction.clone()), summary: false },
@@ -156,7 +164,21 @@ pub fn constant_table(r: &OnsetResult) -> (Vec<String>, Vec<Vec<String>>) {
     let header = ["constant", "estimate", &format!("{level} low"), &format!("{level} high"), "unit", "interval"];
     let params: [(&str, &Option<Param>); 5] =
         [("kinact", &r.kinact), ("KI", &r.ki), ("KI,app", &r.ki_app), ("kinact/KI", &r.kinact_ki), ("koff", &r.koff)];
-    let rows = params.iter().filter_map(|(label, p)| p.as_ref().map(|p| param_row(label, p))).collect();
+    let mut rows: Vec<Vec<String>> =
+        params.iter().filter_map(|(label, p)| p.as_ref().map(|p| param_row(label, p))).collect();
+    // An irreversible call reports koff as an upper bound, not an estimate.
+    if let (Some(p), true) = (&r.koff, r.koff_qualifier.is_bound())
+        && let Some(row) = rows.last_mut()
+    {
+        *row = vec![
+            "koff".into(),
+            format!("{} {}", r.koff_qualifier.symbol(), sig(p.value, 4)),
+            "—".into(),
+            "—".into(),
+            p.unit.clone().unwrap_or_default(),
+            "profile upper end".into(),
+        ];
+    }
     (header.map(String::from).to_vec(), rows)
 }
 
@@ -169,15 +191,30 @@ fn compound_block(r: &OnsetResult) -> String {
         } else {
             ", irreversible within the run (covalent, or a return from the final complex too slow to show)"
         });
+        if let (Some(p), true) = (&r.koff, r.koff_qualifier.is_bound()) {
+            out.push_str(&format!(
+                " — no return seen within the run: koff {} {} {}",
+                r.koff_qualifier.symbol(),
+                sig(p.value, 3),
+                p.unit.as_deref().unwrap_or("")
+            ));
+        }
     }
     out.push_str(&format!("; chosen by {}: {}\n", criterion_name(r), r.evidence));
+    out.push_str(&format!("initial rates: {}\n", rates_text(r.rates)));
     let (header, rows) = constant_table(r);
     if !rows.is_empty() {
         let mut grid = new_grid(header);
         for row in rows {
             grid.add_row(row);
         }
-        out.push_str(&format!("{grid}\nsubstrate correction: {}\n", r.substrate_correction));
+        out.push_str(&format!("{grid}\n"));
+        if r.interval_basis == IntervalBasis::SpanOverReversibility
+            && let Some(note) = r.kinact_ki.as_ref().and_then(|p| p.note.as_deref())
+        {
+            out.push_str(&format!("intervals: {note}\n"));
+        }
+        out.push_str(&format!("substrate correction: {}\n", r.substrate_correction));
     }
     let mut curves = new_grid(["[I]", "kobs (own fit)", "vi", "vs", "points"].map(String::from).to_vec());
     for c in &r.curves {
@@ -194,6 +231,15 @@ fn compound_block(r: &OnsetResult) -> String {
         out.push_str(&format!("warning [{}]: {}\n", w.code, w.message));
     }
     out
+}
+
+fn rates_text(rates: Rates) -> &'static str {
+    match rates {
+        Rates::Tied => {
+            "tied to v0 by the scheme (vi = v0/(1 + [I]/KI,app) two-step, vi = v0 one-step; Morrison & Walsh 1988)"
+        }
+        Rates::Free => "free per curve (the tie to the scheme rejected — see warnings — or --initial-rates free)",
+    }
 }
 
 fn criterion_name(r: &OnsetResult) -> &'static str {

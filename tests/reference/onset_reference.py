@@ -12,6 +12,10 @@
    vi and P0; the uninhibited curve is the straight line vi*t + P0. Also the
    one-step scheme kobs = (kinact/KI)*I. Writes the estimates and the SSE of
    both to fixtures/reference/onset_scipy.json.
+3. The same two schemes with the initial rates tied to one v0 by the scheme
+   (Morrison & Walsh 1988): vi = v0*KI/(KI + I) for two-step, vi = v0 for
+   one-step; shared kinact, KI (logarithms) and v0, per-curve P0. Written as
+   "two_step_tied" and "one_step_tied".
 Run from the repository root: python3 tests/reference/onset_reference.py
 """
 import json
@@ -46,11 +50,15 @@ def simulate():
     return rows
 
 
-def residuals(theta, rows, scheme):
+def residuals(theta, rows, scheme, tied=False):
     n_shared = 2 if scheme == "two-step" else 1
     out = []
     for c, i in enumerate(INHIBITOR):
-        vi, p0 = theta[n_shared + 2 * c], theta[n_shared + 2 * c + 1]
+        if tied:
+            v0, p0 = theta[n_shared], theta[n_shared + 1 + c]
+            vi = v0 * np.exp(theta[1]) / (np.exp(theta[1]) + i) if scheme == "two-step" else v0
+        else:
+            vi, p0 = theta[n_shared + 2 * c], theta[n_shared + 2 * c + 1]
         t = np.array([r[1] for r in rows if r[0] == i])
         y = np.array([r[2] for r in rows if r[0] == i])
         if i == 0:
@@ -66,22 +74,35 @@ def residuals(theta, rows, scheme):
     return np.concatenate(out)
 
 
-def fit(rows, scheme):
+def fit(rows, scheme, tied=False):
     if scheme == "two-step":
         shared = [np.log(0.1), np.log(1.0)]
     else:
         shared = [np.log(0.03)]
-    start = shared + sum(([V0 / 2, P0] for _ in INHIBITOR), [])
+    if tied:
+        start = shared + [V0 / 2] + [P0 for _ in INHIBITOR]
+    else:
+        start = shared + sum(([V0 / 2, P0] for _ in INHIBITOR), [])
     res = optimize.least_squares(
-        residuals, start, args=(rows, scheme), method="lm", xtol=1e-15, ftol=1e-15, gtol=1e-15, max_nfev=100000
+        residuals, start, args=(rows, scheme, tied), method="lm", xtol=1e-15, ftol=1e-15, gtol=1e-15, max_nfev=100000
     )
     sse = float(res.fun @ res.fun)
     n_shared = len(shared)
-    out = {
-        "sse": sse,
-        "vi": [float(v) for v in res.x[n_shared::2]],
-        "p0": [float(v) for v in res.x[n_shared + 1 :: 2]],
-    }
+    if tied:
+        v0 = float(res.x[n_shared])
+        ki = float(np.exp(res.x[1])) if scheme == "two-step" else None
+        out = {
+            "sse": sse,
+            "v0": v0,
+            "vi": [v0 * ki / (ki + i) if ki else v0 for i in INHIBITOR],
+            "p0": [float(v) for v in res.x[n_shared + 1 :]],
+        }
+    else:
+        out = {
+            "sse": sse,
+            "vi": [float(v) for v in res.x[n_shared::2]],
+            "p0": [float(v) for v in res.x[n_shared + 1 :: 2]],
+        }
     if scheme == "two-step":
         out["kinact"] = float(np.exp(res.x[0]))
         out["ki"] = float(np.exp(res.x[1]))
@@ -107,6 +128,8 @@ def main():
         "inhibitor": INHIBITOR,
         "two_step": fit(rows, "two-step"),
         "one_step": fit(rows, "one-step"),
+        "two_step_tied": fit(rows, "two-step", tied=True),
+        "one_step_tied": fit(rows, "one-step", tied=True),
     }
     out = ROOT / "fixtures" / "reference" / "onset_scipy.json"
     out.write_text(json.dumps(result, indent=2) + "\n")
