@@ -20,7 +20,11 @@ use crate::error::{Error, Result};
 pub struct RowStream {
     table: Table,
     reader: csv::Reader<Box<dyn Read + Send>>,
-    record: csv::StringRecord,
+    /// The raw record, reused: fields are checked for UTF-8 and trimmed as
+    /// they are copied into the caller's [`Record`], with no allocation per row.
+    record: csv::ByteRecord,
+    /// Where each trimmed field of `record` lies in it.
+    fields: Vec<(usize, usize)>,
     rows: u64,
     lines: LineLog,
     /// The line the record in `record` starts on.
@@ -50,16 +54,17 @@ impl RowStream {
             Box::new(UnifiedLineEndings::new(BufReader::with_capacity(1 << 16, input), lines.clone()));
         let reader = csv::ReaderBuilder::new()
             .delimiter(delimiter)
-            .trim(csv::Trim::All)
+            .trim(csv::Trim::None)
             .has_headers(false)
             .flexible(true)
             .from_reader(input);
         let table = Table { source: source.to_string(), columns: Vec::new(), header_line: 1, rows: Vec::new() };
-        let mut stream = RowStream { table, reader, record: csv::StringRecord::new(), rows: 0, lines, line: 1 };
+        let mut stream =
+            RowStream { table, reader, record: csv::ByteRecord::new(), fields: Vec::new(), rows: 0, lines, line: 1 };
         if !stream.next_content()? {
             return Err(Error::Empty { path: source.to_string() });
         }
-        stream.table.columns = stream.record.iter().map(Column::parse).collect();
+        stream.table.columns = (0..stream.fields.len()).map(|k| Column::parse(stream.field(k))).collect();
         stream.table.header_line = stream.line;
         if stream.table.columns.iter().all(|c| c.key.is_empty()) {
             return Err(Error::Empty { path: source.to_string() });
@@ -71,12 +76,19 @@ impl RowStream {
     /// Reads the next record that is neither blank nor a comment; false at the end.
     fn next_content(&mut self) -> Result<bool> {
         loop {
-            match self.reader.read_record(&mut self.record) {
+            match self.reader.read_byte_record(&mut self.record) {
                 Ok(false) => return Ok(false),
                 Ok(true) => {
                     self.line = self.lines.line_at(self.record.position().map_or(0, |p| p.byte()));
-                    let r = &self.record;
-                    if r.iter().all(str::is_empty) || r.get(0).is_some_and(|c| c.starts_with('#')) {
+                    if !self.trim_fields() {
+                        return Err(Error::Csv {
+                            path: self.table.source.clone(),
+                            line: self.line,
+                            message: "the text is not valid UTF-8; save the file as UTF-8".into(),
+                        });
+                    }
+                    let blank = self.fields.iter().all(|(a, b)| a == b);
+                    if blank || self.field(0).starts_with('#') {
                         continue;
                     }
                     return Ok(true);
@@ -87,6 +99,31 @@ impl RowStream {
                 }
             }
         }
+    }
+
+    /// Checks every field of the record for UTF-8 and records where it lies
+    /// once trimmed (Unicode whitespace, as `str::trim`); false when a field
+    /// is not UTF-8.
+    fn trim_fields(&mut self) -> bool {
+        self.fields.clear();
+        let bytes = self.record.as_slice();
+        let mut start = 0;
+        for k in 0..self.record.len() {
+            let end = start + self.record[k].len();
+            let Ok(text) = std::str::from_utf8(&bytes[start..end]) else { return false };
+            let trimmed = text.trim_start();
+            let from = end - trimmed.len();
+            self.fields.push((from, from + trimmed.trim_end().len()));
+            start = end;
+        }
+        true
+    }
+
+    /// Field `k` of the current record, trimmed ("" past the end).
+    fn field(&self, k: usize) -> &str {
+        let Some(&(a, b)) = self.fields.get(k) else { return "" };
+        // Checked in `trim_fields`; trimming keeps character boundaries.
+        std::str::from_utf8(&self.record.as_slice()[a..b]).unwrap_or("")
     }
 
     /// The header (and file name) as a table without rows, for the cell accessors.
@@ -103,20 +140,20 @@ impl RowStream {
         self.rows += 1;
         row.line = self.line;
         let width = self.table.columns.len();
-        if self.record.len() != width {
+        if self.fields.len() != width {
             return Err(Error::Csv {
                 path: self.table.source.clone(),
                 line: row.line,
                 message: format!(
                     "this row has {} fields but the header has {width}; every row needs one cell per header column (quote cells that contain the delimiter)",
-                    self.record.len()
+                    self.fields.len()
                 ),
             });
         }
         row.cells.resize_with(width, String::new);
-        for (cell, field) in row.cells.iter_mut().zip(self.record.iter()) {
+        for (k, cell) in row.cells.iter_mut().enumerate() {
             cell.clear();
-            cell.push_str(field);
+            cell.push_str(self.field(k));
         }
         Ok(true)
     }
