@@ -23,7 +23,9 @@ pub struct RowStream {
     /// The raw record, reused: fields are checked for UTF-8 and trimmed as
     /// they are copied into the caller's [`Record`], with no allocation per row.
     record: csv::ByteRecord,
-    /// Where each trimmed field of `record` lies in it.
+    /// The text of `record` (checked once for UTF-8).
+    text: String,
+    /// Where each trimmed field lies in `text`.
     fields: Vec<(usize, usize)>,
     rows: u64,
     lines: LineLog,
@@ -59,8 +61,16 @@ impl RowStream {
             .flexible(true)
             .from_reader(input);
         let table = Table { source: source.to_string(), columns: Vec::new(), header_line: 1, rows: Vec::new() };
-        let mut stream =
-            RowStream { table, reader, record: csv::ByteRecord::new(), fields: Vec::new(), rows: 0, lines, line: 1 };
+        let mut stream = RowStream {
+            table,
+            reader,
+            record: csv::ByteRecord::new(),
+            text: String::new(),
+            fields: Vec::new(),
+            rows: 0,
+            lines,
+            line: 1,
+        };
         if !stream.next_content()? {
             return Err(Error::Empty { path: source.to_string() });
         }
@@ -101,19 +111,22 @@ impl RowStream {
         }
     }
 
-    /// Checks every field of the record for UTF-8 and records where it lies
-    /// once trimmed (Unicode whitespace, as `str::trim`); false when a field
-    /// is not UTF-8.
+    /// Checks the record for UTF-8, keeps its text, and records where each
+    /// field lies in it once trimmed (Unicode whitespace, as `str::trim`);
+    /// false when a field is not UTF-8.
     fn trim_fields(&mut self) -> bool {
         self.fields.clear();
-        let bytes = self.record.as_slice();
+        self.text.clear();
+        let Ok(text) = std::str::from_utf8(self.record.as_slice()) else { return false };
+        self.text.push_str(text);
         let mut start = 0;
         for k in 0..self.record.len() {
             let end = start + self.record[k].len();
-            let Ok(text) = std::str::from_utf8(&bytes[start..end]) else { return false };
-            let trimmed = text.trim_start();
-            let from = end - trimmed.len();
-            self.fields.push((from, from + trimmed.trim_end().len()));
+            // The record's text is valid; each field is if it starts and ends on a character.
+            let Some(field) = self.text.get(start..end) else { return false };
+            let trimmed = trim(field);
+            let from = start + (trimmed.as_ptr() as usize - field.as_ptr() as usize);
+            self.fields.push((from, from + trimmed.len()));
             start = end;
         }
         true
@@ -121,9 +134,7 @@ impl RowStream {
 
     /// Field `k` of the current record, trimmed ("" past the end).
     fn field(&self, k: usize) -> &str {
-        let Some(&(a, b)) = self.fields.get(k) else { return "" };
-        // Checked in `trim_fields`; trimming keeps character boundaries.
-        std::str::from_utf8(&self.record.as_slice()[a..b]).unwrap_or("")
+        self.fields.get(k).and_then(|&(a, b)| self.text.get(a..b)).unwrap_or("")
     }
 
     /// The header (and file name) as a table without rows, for the cell accessors.
@@ -161,6 +172,21 @@ impl RowStream {
     /// Bytes consumed so far (for progress).
     pub fn bytes_read(&self) -> u64 {
         self.reader.position().byte()
+    }
+}
+
+/// `text` without leading and trailing whitespace, as `str::trim` (ASCII
+/// whitespace is stripped byte by byte; the Unicode rules run only where a
+/// non-ASCII character is met at either end).
+fn trim(text: &str) -> &str {
+    let space = |b: &u8| matches!(b, b'\t' | b'\n' | 0x0b | 0x0c | b'\r' | b' ');
+    let bytes = text.as_bytes();
+    let start = bytes.iter().position(|b| !space(b)).unwrap_or(bytes.len());
+    let end = bytes.iter().rposition(|b| !space(b)).map_or(start, |e| e + 1);
+    let inner = &text[start..end.max(start)];
+    match (inner.as_bytes().first(), inner.as_bytes().last()) {
+        (Some(a), Some(b)) if !a.is_ascii() || !b.is_ascii() => inner.trim(),
+        _ => inner,
     }
 }
 
@@ -237,6 +263,23 @@ impl Drop for OutputSink {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn trims_as_str_trim_does() {
+        for text in ["", " ", "a", " a ", "\t12.5\x0b", "\u{a0}x\u{2003}", " é ", "\u{85}", "a b", " \u{a0} "] {
+            assert_eq!(trim(text), text.trim(), "{text:?}");
+        }
+    }
+
+    #[test]
+    fn a_field_that_is_not_utf8_is_a_located_error() {
+        for bytes in [&b"x,y\n1,\xff\n"[..], b"x,y\n\xc3,\xa9\n", b"x,y\n# \xff\n1,2\n"] {
+            let mut s = RowStream::new("t.csv", Box::new(std::io::Cursor::new(bytes.to_vec())), b',').unwrap();
+            let mut row = Record { line: 0, cells: Vec::new() };
+            let e = s.next_into(&mut row).unwrap_err().to_string();
+            assert!(e.contains("line 2") && e.contains("UTF-8"), "{e}");
+        }
+    }
 
     #[test]
     fn streams_rows_with_line_numbers_and_reuses_the_record() {
