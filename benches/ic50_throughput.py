@@ -99,7 +99,8 @@ def run_kimech(kimech, data, out, threads=None):
     wall = re.search(r"Elapsed \(wall clock\) time.*: (?:(\d+):)?(\d+):([\d.]+)", p.stderr)
     h, m, s = (float(g) if g else 0.0 for g in wall.groups())
     rss = int(re.search(r"Maximum resident set size \(kbytes\): (\d+)", p.stderr).group(1))
-    return 3600 * h + 60 * m + s, rss / 1024.0
+    cpu = sum(float(re.search(rf"{k} time \(seconds\): ([\d.]+)", p.stderr).group(1)) for k in ("User", "System"))
+    return 3600 * h + 60 * m + s, rss / 1024.0, cpu
 
 
 PHASES = {
@@ -177,9 +178,10 @@ def main():
     y = generate(data, a.n, rng)
     print(f"generated {a.n} curves x 10 points ({data.stat().st_size / 1e6:.0f} MB) in {time.perf_counter() - t0:.1f} s")
 
-    wall, rss = run_kimech(a.kimech, data, out)
+    wall, rss, cpu = run_kimech(a.kimech, data, out)
     cores = os.cpu_count()
-    print(f"kimech, {cores} threads: {a.n} curves in {wall:.2f} s = {a.n / wall:,.0f} curves/s, peak RSS {rss:.0f} MB")
+    print(f"kimech, {cores} threads: {a.n} curves in {wall:.2f} s = {a.n / wall:,.0f} curves/s, peak RSS {rss:.0f} MB "
+          f"(CPU time {cpu:.2f} s, the steadier figure on a loaded machine)")
 
     single_n = min(a.single_n, a.n)
     single_data = work / "single.csv"
@@ -188,9 +190,9 @@ def main():
             if i > single_n * 10:
                 break
             dst.write(line)
-    wall1, _ = run_kimech(a.kimech, single_data, work / "single-out.csv", threads=1)
+    wall1, _, cpu1 = run_kimech(a.kimech, single_data, work / "single-out.csv", threads=1)
     per_core = single_n / wall1
-    print(f"kimech, 1 thread: {single_n} curves in {wall1:.2f} s = {per_core:,.0f} curves/s")
+    print(f"kimech, 1 thread: {single_n} curves in {wall1:.2f} s = {per_core:,.0f} curves/s (CPU time {cpu1:.2f} s)")
 
     count = min(a.scipy_n, a.n)
     ref, secs = scipy_fits(y, count)
