@@ -413,30 +413,6 @@ pub fn sig(value: f64, digits: usize) -> String {
 
 #[cfg(test)]
 mod tests {
-
-    /// The fast path gives the very double `str::parse` gives, on every
-    /// shape of plain decimal it takes, and declines everything else.
-    #[test]
-    fn plain_decimals_parse_as_the_standard_library_parses_them() {
-        use rand::{Rng, SeedableRng};
-        let mut rng = rand::rngs::StdRng::seed_from_u64(7);
-        for _ in 0..300_000 {
-            let digits = rng.random_range(1..=15);
-            let mut text: String = (0..digits).map(|_| char::from(b'0' + rng.random_range(0..10u8))).collect();
-            if rng.random_bool(0.7) {
-                text.insert(rng.random_range(0..=text.len()), '.');
-            }
-            if rng.random_bool(0.3) {
-                text.insert(0, '-');
-            }
-            let fast = plain_decimal(&text).unwrap();
-            assert_eq!(fast.to_bits(), text.parse::<f64>().unwrap().to_bits(), "{text}");
-        }
-        for declined in ["", "-", ".", "1e3", "1.2.3", " 1", "+1", "1234567890123456", "> 1", "5 nM", "nan", "--1"] {
-            assert_eq!(plain_decimal(declined), None, "{declined}");
-        }
-        assert_eq!(plain_decimal("-0").map(f64::to_bits), Some((-0.0f64).to_bits()));
-    }
     use super::*;
     use approx::assert_relative_eq;
 
@@ -503,5 +479,29 @@ mod tests {
         assert_relative_eq!(ConcUnit::Nanomolar.to_molar(150.0), 1.5e-7, max_relative = 1e-15);
         assert_relative_eq!(ConcUnit::Micromolar.from_molar(1.5e-7), 0.15, max_relative = 1e-15);
         assert_relative_eq!(p_value(1e-9), 9.0, max_relative = 1e-15);
+    }
+
+    /// The fast path gives the very double `str::parse` gives, on every
+    /// shape of plain decimal it takes, and declines everything else.
+    #[test]
+    fn plain_decimals_parse_as_the_standard_library_parses_them() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand::rngs::StdRng::seed_from_u64(7);
+        for _ in 0..300_000 {
+            let digits = rng.random_range(1..=15);
+            let mut text: String = (0..digits).map(|_| char::from(b'0' + rng.random_range(0..10u8))).collect();
+            if rng.random_bool(0.7) {
+                text.insert(rng.random_range(0..=text.len()), '.');
+            }
+            if rng.random_bool(0.3) {
+                text.insert(0, '-');
+            }
+            let fast = plain_decimal(&text).unwrap();
+            assert_eq!(fast.to_bits(), text.parse::<f64>().unwrap().to_bits(), "{text}");
+        }
+        for declined in ["", "-", ".", "1e3", "1.2.3", " 1", "+1", "1234567890123456", "> 1", "5 nM", "nan", "--1"] {
+            assert_eq!(plain_decimal(declined), None, "{declined}");
+        }
+        assert_eq!(plain_decimal("-0").map(f64::to_bits), Some((-0.0f64).to_bits()));
     }
 }
