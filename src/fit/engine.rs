@@ -1,7 +1,7 @@
 //! Levenberg–Marquardt from several starts, and the covariance at the optimum.
 
 use levenberg_marquardt::{LeastSquaresProblem, LevenbergMarquardt, TerminationReason};
-use nalgebra::{DMatrix, DVector, Dyn, Owned};
+use nalgebra::{DMatrix, DVector, Dyn, Matrix4, Owned};
 
 use super::{Data, Model};
 
@@ -411,6 +411,9 @@ fn covariance<M: Model>(
     if df == 0 || free.is_empty() || !sse.is_finite() {
         return None;
     }
+    if free.len() == 4 {
+        return covariance4(model, data, theta, free, sse, df);
+    }
     let mut grad = vec![0.0; theta.len()];
     let mut jac = DMatrix::zeros(data.len(), free.len());
     for (i, (x, w)) in data.x.iter().zip(&data.weights).enumerate() {
@@ -423,6 +426,48 @@ fn covariance<M: Model>(
     let inverse = invert_information(information)?;
     let s2 = sse / df as f64;
     let cov = inverse * s2;
+    cov.iter().all(|v| v.is_finite()).then_some(cov)
+}
+
+/// [`covariance`] for four free parameters (the dose-response logistic, a
+/// million times per screening run) on stack matrices: the same operations
+/// in the same order — JᵀWJ summed over the wells in order as nalgebra's
+/// product does, the same scaling, Cholesky factor and inverse (nalgebra's
+/// generic code, here at a fixed size) — so the same digits, without the
+/// half-dozen heap matrices.
+fn covariance4<M: Model>(
+    model: &M,
+    data: &Data<M::Point>,
+    theta: &[f64],
+    free: &[usize],
+    sse: f64,
+    df: usize,
+) -> Option<DMatrix<f64>> {
+    let mut grad = [0.0; 8];
+    let grad = grad.get_mut(..theta.len())?;
+    let mut information = Matrix4::<f64>::zeros();
+    for (i, (x, w)) in data.x.iter().zip(&data.weights).enumerate() {
+        model.gradient(theta, x, grad);
+        let row: [f64; 4] = std::array::from_fn(|k| w.sqrt() * grad[free[k]]);
+        for a in 0..4 {
+            for b in 0..4 {
+                let term = row[a] * row[b];
+                information[(a, b)] = if i == 0 { term } else { term + information[(a, b)] };
+            }
+        }
+    }
+    let d: [f64; 4] = std::array::from_fn(|k| information[(k, k)].sqrt());
+    if d.iter().any(|v| !(v.is_finite() && *v > 0.0)) {
+        return None;
+    }
+    let scaled = Matrix4::from_fn(|i, j| information[(i, j)] / (d[i] * d[j]));
+    let inverse = scaled.cholesky()?.inverse();
+    let condition = inverse.diagonal().iter().cloned().fold(0.0, f64::max);
+    if !(condition.is_finite() && condition < 1e14) {
+        return None;
+    }
+    let s2 = sse / df as f64;
+    let cov = DMatrix::from_fn(4, 4, |i, j| inverse[(i, j)] / (d[i] * d[j]) * s2);
     cov.iter().all(|v| v.is_finite()).then_some(cov)
 }
 

@@ -335,9 +335,10 @@ impl<'a> CurveReader<'a> {
             compound,
             first: line,
             last: line,
-            x: Vec::new(),
-            y: Vec::new(),
-            lines: Vec::new(),
+            // A dose-response curve has a dozen wells or so; room for 16 saves regrowing.
+            x: Vec::with_capacity(16),
+            y: Vec::with_capacity(16),
+            lines: Vec::with_capacity(16),
             carried: vec![Vec::new(); self.layout.carried.len()],
             low_z: false,
             error: None,

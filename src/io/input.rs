@@ -252,12 +252,12 @@ impl Table {
         default: Option<ConcUnit>,
         flag: &str,
     ) -> Result<Concentration> {
-        let expected = format!("expected a concentration such as '150 nM' or '> 10 uM' (units: {ACCEPTED_UNITS})");
+        let expected = || format!("expected a concentration such as '150 nM' or '> 10 uM' (units: {ACCEPTED_UNITS})");
         let written = parse_written(self.text(row, col)).map_err(|p| match p {
             CellProblem::UnknownUnit(_) => {
                 self.cell_error(row, col, p.describe(), format!("use one of {ACCEPTED_UNITS}"))
             }
-            _ => self.cell_error(row, col, p.describe(), expected.clone()),
+            _ => self.cell_error(row, col, p.describe(), expected()),
         })?;
         let unit = match written.unit {
             Some(u) => u,

@@ -40,6 +40,13 @@ impl<R: Read> UnifiedLineEndings<R> {
 
     /// Rewrites `buf` in place, returning how many bytes remain.
     fn unify(&mut self, buf: &mut [u8]) -> usize {
+        if !self.after_cr && memchr::memchr(b'\r', buf).is_none() {
+            // Nothing to rewrite (the usual case, LF files): only log the line ends.
+            let ends = memchr::memchr_iter(b'\n', buf).map(|i| self.offset + i as u64).collect();
+            self.offset += buf.len() as u64;
+            self.log.push(ends);
+            return buf.len();
+        }
         let mut kept = 0;
         let mut ends = Vec::new();
         for i in 0..buf.len() {

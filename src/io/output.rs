@@ -100,8 +100,148 @@ pub fn qualifier_cell(q: crate::units::Qualifier) -> String {
 pub fn export_number(v: Option<f64>) -> String {
     v.filter(|x| x.is_finite()).map_or(String::new(), |x| {
         let rounded: f64 = format!("{x:.9e}").parse().unwrap_or(x);
-        format!("{rounded}")
+        let mut out = Vec::new();
+        write_shortest(rounded, &mut out);
+        String::from_utf8(out).unwrap_or_default()
     })
+}
+
+/// Appends the shortest decimal text that reads back as `x` (finite), laid
+/// out as the standard library's `{}` lays it out — plain digits, never an
+/// exponent (`0.0000001`, `100000000000000000000`, `-0`) — so that every
+/// export prints the same text as before. The digits come from `ryu`
+/// (Adams, PLDI 2018), a tenth of the work of the standard formatter; both
+/// give the shortest round-trip digits, the closest to the value when
+/// several are as short (a test compares them on a million values).
+pub fn write_shortest(x: f64, out: &mut Vec<u8>) {
+    let mut buffer = ryu::Buffer::new();
+    let text = buffer.format_finite(x).as_bytes();
+    if may_tie(x) && tie_in(x, text) {
+        // At an exact tie between two shortest candidates ryu rounds to even
+        // and the standard library rounds up: print those values its way.
+        out.extend_from_slice(format!("{x}").as_bytes());
+        return;
+    }
+    if !text.contains(&b'e') {
+        // `123.45`, `0.00012` as they are; `100.0` without its `.0`.
+        out.extend_from_slice(text.strip_suffix(b".0").unwrap_or(text));
+        return;
+    }
+    let (digits, n, point) = significant(text);
+    if text[0] == b'-' {
+        out.push(b'-');
+    }
+    let digits = &digits[..n];
+    // The value is 0.d₁d₂…dₙ × 10^point.
+    if point <= 0 {
+        out.extend_from_slice(b"0.");
+        out.resize(out.len() + (-point) as usize, b'0');
+        out.extend_from_slice(digits);
+    } else if (point as usize) < n {
+        out.extend_from_slice(&digits[..point as usize]);
+        out.push(b'.');
+        out.extend_from_slice(&digits[point as usize..]);
+    } else {
+        out.extend_from_slice(digits);
+        out.resize(out.len() + point as usize - n, b'0');
+    }
+}
+
+/// The significant digits of ryu's text (`d.ddd`, `0.000ddd`, `ddd00.0`,
+/// `d.ddde±k`, with or without a sign), how many, and the place of the
+/// decimal point: the value is 0.d₁…dₙ × 10^point (no digits for zero).
+fn significant(text: &[u8]) -> ([u8; 32], usize, i32) {
+    let text = text.strip_prefix(b"-").unwrap_or(text);
+    let (mantissa, exponent) = match text.iter().position(|&b| b == b'e') {
+        Some(e) => (&text[..e], parse_exponent(&text[e + 1..])),
+        None => (text, 0),
+    };
+    let mut digits = [0u8; 32];
+    let (mut n, mut point, mut seen_point) = (0usize, 0i32, false);
+    for &b in mantissa {
+        if b == b'.' {
+            seen_point = true;
+        } else if n == 0 && b == b'0' {
+            // A leading zero moves the point, it is not a digit.
+            if seen_point {
+                point -= 1;
+            }
+        } else if n < digits.len() {
+            digits[n] = b;
+            n += 1;
+            if !seen_point {
+                point += 1;
+            }
+        }
+    }
+    while n > 0 && digits[n - 1] == b'0' {
+        n -= 1;
+    }
+    (digits, n, point + exponent)
+}
+
+/// A cheap test that rules out most values as exact ties: a tie is a
+/// decimal of at most 18 significant digits, so x = m·2^(−k) with m odd
+/// needs 5^k < 10^18, k ≤ 25.
+fn may_tie(x: f64) -> bool {
+    let bits = x.to_bits();
+    let (exponent, fraction) = (((bits >> 52) & 0x7ff) as i32, bits & ((1 << 52) - 1));
+    let (m, e) = match exponent {
+        0 => (fraction, -1074),
+        _ => (fraction | (1 << 52), exponent - 1075),
+    };
+    m != 0 && -(e + m.trailing_zeros() as i32) <= 25
+}
+
+/// Whether ryu's `text` for `x` rounded an exact tie to even: its last
+/// digit is even and x is exactly half-way to the next number of as many
+/// digits. Ties need 16 or more significant digits.
+fn tie_in(x: f64, text: &[u8]) -> bool {
+    let (digits, n, point) = significant(text);
+    n >= 15 && digits[n - 1] % 2 == 0 && is_tie(x.abs(), &digits[..n], point)
+}
+
+/// Whether `x` (finite, ≥ 0) is exactly 0.d₁…dₙ5 × 10^point: half-way
+/// between the digits `d` and the next number of as many digits. Integer
+/// arithmetic on x = m·2^e; values too large or too small to be such a tie
+/// (the decimal would need more than 18 digits, or 5^k to divide m) say no.
+fn is_tie(x: f64, d: &[u8], point: i32) -> bool {
+    if d.len() > 17 {
+        return false;
+    }
+    // t = d₁…dₙ5, and the tie is t × 10^q.
+    let t = d.iter().fold(0u128, |t, &b| 10 * t + u128::from(b - b'0')) * 10 + 5;
+    let q = point - d.len() as i32 - 1;
+    let bits = x.to_bits();
+    let (exponent, fraction) = ((bits >> 52) as i32, bits & ((1 << 52) - 1));
+    let (m, e) = match exponent {
+        0 => (u128::from(fraction), -1074),
+        _ => (u128::from(fraction | (1 << 52)), exponent - 1075),
+    };
+    // m·2^e = t·10^q  ⇔  m·5^(−q)·2^(e−q) = t (q < 0)  or  m·2^(e−q) = t·5^q (q ≥ 0).
+    let pow5 = |k: i32| (k <= 27).then(|| 5u128.pow(k as u32));
+    let shifted = |v: u128, by: i32| -> Option<u128> {
+        if by >= 0 {
+            (by < 64 && v.leading_zeros() as i32 > by).then(|| v << by)
+        } else {
+            (-by < 128 && v.trailing_zeros() as i32 >= -by).then(|| v >> -by)
+        }
+    };
+    let (left, right) = if q < 0 {
+        let Some(f) = pow5(-q) else { return false };
+        (shifted(m * f, e - q), Some(t))
+    } else {
+        (shifted(m, e - q), pow5(q).and_then(|f| t.checked_mul(f)))
+    };
+    matches!((left, right), (Some(a), Some(b)) if a == b)
+}
+
+fn parse_exponent(text: &[u8]) -> i32 {
+    let (sign, digits) = match text.split_first() {
+        Some((b'-', rest)) => (-1, rest),
+        _ => (1, text),
+    };
+    sign * digits.iter().fold(0i32, |e, &d| 10 * e + i32::from(d - b'0'))
 }
 
 /// One cell of an exported row: text goes through the formula guard, numbers never do.
@@ -122,55 +262,141 @@ pub enum Cell {
 impl Cell {
     /// The cell as written.
     pub fn render(&self) -> String {
+        let mut out = Vec::new();
+        self.write_to(&mut out);
+        String::from_utf8(out).unwrap_or_default()
+    }
+
+    /// Appends the cell as written (before CSV quoting) to `out`.
+    pub fn write_to(&self, out: &mut Vec<u8>) {
         match self {
-            Cell::Text(t) => neutralise_formula(t),
-            Cell::Number(v) => export_number(*v),
-            Cell::Full(v) => v.filter(|x| x.is_finite()).map_or(String::new(), |x| format!("{x}")),
-            Cell::Count(n) => n.map_or(String::new(), |n| n.to_string()),
+            Cell::Text(t) => {
+                if needs_guard(t) {
+                    out.push(b'\'');
+                }
+                out.extend_from_slice(t.as_bytes());
+            }
+            Cell::Number(v) => out.extend_from_slice(export_number(*v).as_bytes()),
+            Cell::Full(v) => {
+                if let Some(x) = v.filter(|x| x.is_finite()) {
+                    write_shortest(x, out);
+                }
+            }
+            Cell::Count(n) => {
+                if let Some(n) = n {
+                    out.extend_from_slice(itoa::Buffer::new().format(*n).as_bytes());
+                }
+            }
         }
     }
 }
 
-/// A row whose cells are already rendered (guard applied), so that a parallel
-/// pipeline can format its numbers on the worker threads and leave only the
-/// writing to [`CsvExport::rendered`]. Only [`Cell`]s make one.
+/// Whether [`neutralise_formula`] puts an apostrophe before `text`.
+fn needs_guard(text: &str) -> bool {
+    matches!(text.as_bytes().first(), Some(b'=' | b'+' | b'-' | b'@' | b'\t' | b'\r')) && !is_plain_number(text)
+}
+
+/// Appends one CSV record to `out` as the `csv` crate's writer with its
+/// defaults writes it (RFC 4180): fields joined by commas, a field quoted
+/// (inner quotes doubled) when it holds a comma, a quote, CR or LF, a
+/// record of one empty field written as `""`, and a `\n` at the end.
+fn encode_record<'f>(fields: impl IntoIterator<Item = &'f [u8]>, out: &mut Vec<u8>) {
+    let start = out.len();
+    let mut count = 0;
+    for field in fields {
+        if count > 0 {
+            out.push(b',');
+        }
+        count += 1;
+        encode_field(field, out);
+    }
+    if count == 1 && out.len() == start {
+        out.extend_from_slice(b"\"\"");
+    }
+    out.push(b'\n');
+}
+
+fn encode_field(field: &[u8], out: &mut Vec<u8>) {
+    if !field.iter().any(|&b| matches!(b, b',' | b'"' | b'\r' | b'\n')) {
+        out.extend_from_slice(field);
+        return;
+    }
+    out.push(b'"');
+    for &b in field {
+        if b == b'"' {
+            out.push(b'"');
+        }
+        out.push(b);
+    }
+    out.push(b'"');
+}
+
+/// A row whose cells are already rendered and CSV-encoded (guard applied,
+/// line ending included), so that a parallel pipeline can format its
+/// numbers on the worker threads and leave only the copying to
+/// [`CsvExport::rendered`]. Only [`Cell`]s make one.
 #[derive(Debug, Clone, Default, PartialEq)]
-pub struct RenderedRow(Vec<String>);
+pub struct RenderedRow(Vec<u8>);
 
 impl RenderedRow {
     /// Renders `cells`.
     pub fn new(cells: &[Cell]) -> RenderedRow {
-        RenderedRow(cells.iter().map(Cell::render).collect())
+        let mut row = Vec::with_capacity(64 + 24 * cells.len());
+        let mut cell = Vec::with_capacity(64);
+        let mut count = 0;
+        for c in cells {
+            if count > 0 {
+                row.push(b',');
+            }
+            count += 1;
+            cell.clear();
+            match c {
+                // Digits, sign, point: never quoted.
+                Cell::Number(_) | Cell::Full(_) | Cell::Count(_) => c.write_to(&mut row),
+                Cell::Text(_) => {
+                    c.write_to(&mut cell);
+                    encode_field(&cell, &mut row);
+                }
+            }
+        }
+        if count == 1 && cell.is_empty() {
+            row.extend_from_slice(b"\"\"");
+        }
+        row.push(b'\n');
+        RenderedRow(row)
     }
 }
 
 /// The one CSV writer of the exports: a guarded header row, then rows of [`Cell`]s.
 pub struct CsvExport<W: Write> {
-    writer: csv::Writer<W>,
+    out: W,
 }
 
 impl<W: Write> CsvExport<W> {
     /// Starts the file with its header (each name through the formula guard).
-    pub fn new(out: W, header: &[String]) -> Result<CsvExport<W>> {
-        let mut writer = csv::Writer::from_writer(out);
+    pub fn new(mut out: W, header: &[String]) -> Result<CsvExport<W>> {
         let guarded: Vec<String> = header.iter().map(|h| neutralise_formula(h)).collect();
-        writer.write_record(&guarded).map_err(|e| Error::Serialise(e.to_string()))?;
-        Ok(CsvExport { writer })
+        let mut buffer = Vec::new();
+        encode_record(guarded.iter().map(|h| h.as_bytes()), &mut buffer);
+        out.write_all(&buffer).map_err(serialise_io)?;
+        Ok(CsvExport { out })
     }
 
     /// Writes one row.
     pub fn row(&mut self, cells: &[Cell]) -> Result<()> {
-        self.writer.write_record(cells.iter().map(Cell::render)).map_err(|e| Error::Serialise(e.to_string()))
+        let row = RenderedRow::new(cells);
+        self.rendered(&row)
     }
 
     /// Writes one row rendered elsewhere.
     pub fn rendered(&mut self, row: &RenderedRow) -> Result<()> {
-        self.writer.write_record(&row.0).map_err(|e| Error::Serialise(e.to_string()))
+        self.out.write_all(&row.0).map_err(serialise_io)
     }
 
     /// Flushes and returns the destination.
-    pub fn finish(self) -> Result<W> {
-        self.writer.into_inner().map_err(|e| Error::Serialise(e.to_string()))
+    pub fn finish(mut self) -> Result<W> {
+        self.out.flush().map_err(serialise_io)?;
+        Ok(self.out)
     }
 }
 
@@ -291,6 +517,81 @@ mod tests {
         export.rendered(&row).unwrap();
         let bytes = export.finish().unwrap();
         assert_eq!(String::from_utf8(bytes).unwrap(), "'=SUM(A1),x,y\n'=1+2,-1.5,\"a,b\"\n");
+    }
+
+    /// The fast formatter prints exactly what `{}` prints: edge cases, then a
+    /// million random bit patterns (every magnitude) and a million values of
+    /// the sizes a fit reports.
+    #[test]
+    fn shortest_text_is_the_standard_librarys() {
+        use rand::{Rng, SeedableRng};
+        let check = |x: f64| {
+            if !x.is_finite() {
+                return;
+            }
+            let mut out = Vec::new();
+            write_shortest(x, &mut out);
+            assert_eq!(String::from_utf8(out).unwrap(), format!("{x}"), "{x:e}");
+        };
+        for x in [
+            0.0,
+            -0.0,
+            1.0,
+            -1.0,
+            0.1,
+            0.5,
+            10.0,
+            100.0,
+            1e15,
+            1e16,
+            1e17,
+            1e21,
+            1e22,
+            1e23,
+            1e-5,
+            1e-6,
+            1e-7,
+            123456.789,
+            5e-324,
+            f64::MIN_POSITIVE,
+            f64::MAX,
+            f64::MIN,
+            f64::EPSILON,
+            9007199254740993.0,
+            0.30000000000000004,
+            80.65622605300506,
+            -0.5230419964063273,
+        ] {
+            check(x);
+        }
+        let mut rng = rand::rngs::StdRng::seed_from_u64(20261202);
+        for _ in 0..1_000_000 {
+            check(f64::from_bits(rng.random()));
+            let magnitude = 10f64.powi(rng.random_range(-12..12));
+            check(rng.random_range(-1.0..1.0) * magnitude);
+            // Where exact ties between two shortest candidates live: a full
+            // mantissa and a small binary exponent (about 1e15 to 1e20).
+            let m = rng.random_range((1u64 << 52)..(1u64 << 53)) as f64;
+            check(m * 2f64.powi(rng.random_range(-3..12)));
+        }
+    }
+
+    #[test]
+    fn records_are_encoded_as_the_csv_crate_encodes_them() {
+        let fields: Vec<&[u8]> = vec![b"a", b"", b"b,c", b"say \"hi\"", b"two\nlines", b"cr\r", b" pad "];
+        let mut ours = Vec::new();
+        encode_record(fields.iter().copied(), &mut ours);
+        let mut theirs = csv::Writer::from_writer(Vec::new());
+        theirs.write_record(&fields).unwrap();
+        assert_eq!(ours, theirs.into_inner().unwrap());
+        for one in [&b""[..], b"x"] {
+            let mut ours = Vec::new();
+            encode_record([one], &mut ours);
+            let mut theirs = csv::Writer::from_writer(Vec::new());
+            theirs.write_record([one]).unwrap();
+            assert_eq!(ours, theirs.into_inner().unwrap());
+            assert_eq!(RenderedRow::new(&[Cell::Text(String::from_utf8(one.to_vec()).unwrap())]).0, ours);
+        }
     }
 
     #[test]

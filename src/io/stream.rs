@@ -20,7 +20,13 @@ use crate::error::{Error, Result};
 pub struct RowStream {
     table: Table,
     reader: csv::Reader<Box<dyn Read + Send>>,
-    record: csv::StringRecord,
+    /// The raw record, reused: fields are checked for UTF-8 and trimmed as
+    /// they are copied into the caller's [`Record`], with no allocation per row.
+    record: csv::ByteRecord,
+    /// The text of `record` (checked once for UTF-8).
+    text: String,
+    /// Where each trimmed field lies in `text`.
+    fields: Vec<(usize, usize)>,
     rows: u64,
     lines: LineLog,
     /// The line the record in `record` starts on.
@@ -50,16 +56,25 @@ impl RowStream {
             Box::new(UnifiedLineEndings::new(BufReader::with_capacity(1 << 16, input), lines.clone()));
         let reader = csv::ReaderBuilder::new()
             .delimiter(delimiter)
-            .trim(csv::Trim::All)
+            .trim(csv::Trim::None)
             .has_headers(false)
             .flexible(true)
             .from_reader(input);
         let table = Table { source: source.to_string(), columns: Vec::new(), header_line: 1, rows: Vec::new() };
-        let mut stream = RowStream { table, reader, record: csv::StringRecord::new(), rows: 0, lines, line: 1 };
+        let mut stream = RowStream {
+            table,
+            reader,
+            record: csv::ByteRecord::new(),
+            text: String::new(),
+            fields: Vec::new(),
+            rows: 0,
+            lines,
+            line: 1,
+        };
         if !stream.next_content()? {
             return Err(Error::Empty { path: source.to_string() });
         }
-        stream.table.columns = stream.record.iter().map(Column::parse).collect();
+        stream.table.columns = (0..stream.fields.len()).map(|k| Column::parse(stream.field(k))).collect();
         stream.table.header_line = stream.line;
         if stream.table.columns.iter().all(|c| c.key.is_empty()) {
             return Err(Error::Empty { path: source.to_string() });
@@ -71,12 +86,19 @@ impl RowStream {
     /// Reads the next record that is neither blank nor a comment; false at the end.
     fn next_content(&mut self) -> Result<bool> {
         loop {
-            match self.reader.read_record(&mut self.record) {
+            match self.reader.read_byte_record(&mut self.record) {
                 Ok(false) => return Ok(false),
                 Ok(true) => {
                     self.line = self.lines.line_at(self.record.position().map_or(0, |p| p.byte()));
-                    let r = &self.record;
-                    if r.iter().all(str::is_empty) || r.get(0).is_some_and(|c| c.starts_with('#')) {
+                    if !self.trim_fields() {
+                        return Err(Error::Csv {
+                            path: self.table.source.clone(),
+                            line: self.line,
+                            message: "the text is not valid UTF-8; save the file as UTF-8".into(),
+                        });
+                    }
+                    let blank = self.fields.iter().all(|(a, b)| a == b);
+                    if blank || self.field(0).starts_with('#') {
                         continue;
                     }
                     return Ok(true);
@@ -87,6 +109,32 @@ impl RowStream {
                 }
             }
         }
+    }
+
+    /// Checks the record for UTF-8, keeps its text, and records where each
+    /// field lies in it once trimmed (Unicode whitespace, as `str::trim`);
+    /// false when a field is not UTF-8.
+    fn trim_fields(&mut self) -> bool {
+        self.fields.clear();
+        self.text.clear();
+        let Ok(text) = std::str::from_utf8(self.record.as_slice()) else { return false };
+        self.text.push_str(text);
+        let mut start = 0;
+        for k in 0..self.record.len() {
+            let end = start + self.record[k].len();
+            // The record's text is valid; each field is if it starts and ends on a character.
+            let Some(field) = self.text.get(start..end) else { return false };
+            let trimmed = trim(field);
+            let from = start + (trimmed.as_ptr() as usize - field.as_ptr() as usize);
+            self.fields.push((from, from + trimmed.len()));
+            start = end;
+        }
+        true
+    }
+
+    /// Field `k` of the current record, trimmed ("" past the end).
+    fn field(&self, k: usize) -> &str {
+        self.fields.get(k).and_then(|&(a, b)| self.text.get(a..b)).unwrap_or("")
     }
 
     /// The header (and file name) as a table without rows, for the cell accessors.
@@ -103,20 +151,20 @@ impl RowStream {
         self.rows += 1;
         row.line = self.line;
         let width = self.table.columns.len();
-        if self.record.len() != width {
+        if self.fields.len() != width {
             return Err(Error::Csv {
                 path: self.table.source.clone(),
                 line: row.line,
                 message: format!(
                     "this row has {} fields but the header has {width}; every row needs one cell per header column (quote cells that contain the delimiter)",
-                    self.record.len()
+                    self.fields.len()
                 ),
             });
         }
         row.cells.resize_with(width, String::new);
-        for (cell, field) in row.cells.iter_mut().zip(self.record.iter()) {
+        for (k, cell) in row.cells.iter_mut().enumerate() {
             cell.clear();
-            cell.push_str(field);
+            cell.push_str(self.field(k));
         }
         Ok(true)
     }
@@ -124,6 +172,21 @@ impl RowStream {
     /// Bytes consumed so far (for progress).
     pub fn bytes_read(&self) -> u64 {
         self.reader.position().byte()
+    }
+}
+
+/// `text` without leading and trailing whitespace, as `str::trim` (ASCII
+/// whitespace is stripped byte by byte; the Unicode rules run only where a
+/// non-ASCII character is met at either end).
+fn trim(text: &str) -> &str {
+    let space = |b: &u8| matches!(b, b'\t' | b'\n' | 0x0b | 0x0c | b'\r' | b' ');
+    let bytes = text.as_bytes();
+    let start = bytes.iter().position(|b| !space(b)).unwrap_or(bytes.len());
+    let end = bytes.iter().rposition(|b| !space(b)).map_or(start, |e| e + 1);
+    let inner = &text[start..end.max(start)];
+    match (inner.as_bytes().first(), inner.as_bytes().last()) {
+        (Some(a), Some(b)) if !a.is_ascii() || !b.is_ascii() => inner.trim(),
+        _ => inner,
     }
 }
 
@@ -200,6 +263,23 @@ impl Drop for OutputSink {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn trims_as_str_trim_does() {
+        for text in ["", " ", "a", " a ", "\t12.5\x0b", "\u{a0}x\u{2003}", " é ", "\u{85}", "a b", " \u{a0} "] {
+            assert_eq!(trim(text), text.trim(), "{text:?}");
+        }
+    }
+
+    #[test]
+    fn a_field_that_is_not_utf8_is_a_located_error() {
+        for bytes in [&b"x,y\n1,\xff\n"[..], b"x,y\n\xc3,\xa9\n", b"x,y\n# \xff\n1,2\n"] {
+            let mut s = RowStream::new("t.csv", Box::new(std::io::Cursor::new(bytes.to_vec())), b',').unwrap();
+            let mut row = Record { line: 0, cells: Vec::new() };
+            let e = s.next_into(&mut row).unwrap_err().to_string();
+            assert!(e.contains("line 2") && e.contains("UTF-8"), "{e}");
+        }
+    }
 
     #[test]
     fn streams_rows_with_line_numbers_and_reuses_the_record() {

@@ -86,17 +86,18 @@ impl Wells<'_> {
     /// not separable.
     fn project(&self, s: &[f64]) -> Option<Linear> {
         let n = self.y.len();
+        let (w, y, s) = (&self.w[..n], &self.y[..n], &s[..n]);
         let (mut sw, mut yw) = (0.0, 0.0);
         for i in 0..n {
-            sw += self.w[i] * s[i];
-            yw += self.w[i] * self.y[i];
+            sw += w[i] * s[i];
+            yw += w[i] * y[i];
         }
         let (s_mean, y_mean) = (sw / self.weight_sum, yw / self.weight_sum);
         let (mut sss, mut ssy) = (0.0, 0.0);
         for i in 0..n {
             let ds = s[i] - s_mean;
-            sss += self.w[i] * ds * ds;
-            ssy += self.w[i] * ds * (self.y[i] - y_mean);
+            sss += w[i] * ds * ds;
+            ssy += w[i] * ds * (y[i] - y_mean);
         }
         // s lies in [0, 1], so this bound does not depend on the response scale.
         if !(sss > 1e-20 * self.weight_sum) {
@@ -106,8 +107,8 @@ impl Wells<'_> {
         let lower = y_mean - span * s_mean;
         let mut sse = 0.0;
         for i in 0..n {
-            let r = self.y[i] - lower - span * s[i];
-            sse += self.w[i] * r * r;
+            let r = y[i] - lower - span * s[i];
+            sse += w[i] * r * r;
         }
         sse.is_finite().then_some(Linear { lower, upper: lower + span, sse })
     }
@@ -121,44 +122,45 @@ impl Wells<'_> {
     /// (Kaufman's Jacobian P⊥·∂f/∂α, weighted).
     fn normal_equations(&self, a: f64, h: f64, s: &[f64], lin: &Linear) -> (Matrix2<f64>, Vector2<f64>) {
         let n = self.y.len();
+        let (w, y, s, ln_x, positive) = (&self.w[..n], &self.y[..n], &s[..n], &self.ln_x[..n], &self.positive[..n]);
         let span = lin.upper - lin.lower;
         let mut da = [0.0; MAX_POINTS];
         let mut dh = [0.0; MAX_POINTS];
+        let (da, dh) = (&mut da[..n], &mut dh[..n]);
         let (mut s_sum, mut a_sum, mut h_sum) = (0.0, 0.0, 0.0);
         for i in 0..n {
-            let bend = if self.positive[i] { span * s[i] * (1.0 - s[i]) } else { 0.0 };
+            let bend = if positive[i] { span * s[i] * (1.0 - s[i]) } else { 0.0 };
             da[i] = bend * h;
-            dh[i] = if self.positive[i] { -bend * (self.ln_x[i] - a) } else { 0.0 };
-            s_sum += self.w[i] * s[i];
-            a_sum += self.w[i] * da[i];
-            h_sum += self.w[i] * dh[i];
+            dh[i] = if positive[i] { -bend * (ln_x[i] - a) } else { 0.0 };
+            s_sum += w[i] * s[i];
+            a_sum += w[i] * da[i];
+            h_sum += w[i] * dh[i];
         }
         let s_mean = s_sum / self.weight_sum;
         let (a_mean, h_mean) = (a_sum / self.weight_sum, h_sum / self.weight_sum);
         let (mut sss, mut sa, mut sh) = (0.0, 0.0, 0.0);
         for i in 0..n {
             let ds = s[i] - s_mean;
-            sss += self.w[i] * ds * ds;
-            sa += self.w[i] * ds * (da[i] - a_mean);
-            sh += self.w[i] * ds * (dh[i] - h_mean);
+            sss += w[i] * ds * ds;
+            sa += w[i] * ds * (da[i] - a_mean);
+            sh += w[i] * ds * (dh[i] - h_mean);
         }
         let (ba, bh) = (sa / sss, sh / sss);
-        let mut m = Matrix2::zeros();
-        let mut g = Vector2::zeros();
+        // Accumulated in scalars, in the same order as the matrix entries were.
+        let (mut m00, mut m01, mut m11, mut g0, mut g1) = (0.0, 0.0, 0.0, 0.0, 0.0);
         for i in 0..n {
             let ds = s[i] - s_mean;
             let ja = da[i] - a_mean - ba * ds;
             let jh = dh[i] - h_mean - bh * ds;
-            let r = self.y[i] - lin.lower - (lin.upper - lin.lower) * s[i];
-            let w = self.w[i];
-            m[(0, 0)] += w * ja * ja;
-            m[(0, 1)] += w * ja * jh;
-            m[(1, 1)] += w * jh * jh;
-            g[0] += w * ja * r;
-            g[1] += w * jh * r;
+            let r = y[i] - lin.lower - (lin.upper - lin.lower) * s[i];
+            let w = w[i];
+            m00 += w * ja * ja;
+            m01 += w * ja * jh;
+            m11 += w * jh * jh;
+            g0 += w * ja * r;
+            g1 += w * jh * r;
         }
-        m[(1, 0)] = m[(0, 1)];
-        (m, g)
+        (Matrix2::new(m00, m01, m01, m11), Vector2::new(g0, g1))
     }
 }
 
@@ -189,15 +191,51 @@ fn best_start(wells: &Wells, data: &Data<Dose>, s: &mut [f64]) -> Option<(f64, f
     {
         consider(first[0].ln(), first[1].abs(), s);
     }
-    const GRID: usize = 6;
-    for k in 0..GRID {
+    // The grid's fractions cost one `exp` per well and slope, not one per
+    // well and grid point: along the grid, ln IC50 moves by a fixed step δ,
+    // so exp(h·(ln x − a)) is multiplied by exp(−h·δ) from one point to the
+    // next. (The few ulps this drifts by can only matter for starts whose
+    // SSEs tie to rounding; the points and their order are as before.)
+    let step = (hi - lo) / (GRID - 1) as f64;
+    let mut sse = [[f64::INFINITY; SLOPES.len()]; GRID];
+    for (j, &h) in SLOPES.iter().enumerate() {
+        if !(h * (hi - lo) < 600.0) {
+            // Far too wide a range for the recurrence to stay finite: directly.
+            for (k, row) in sse.iter_mut().enumerate() {
+                row[j] = wells.projected_sse(lo + (hi - lo) * k as f64 / (GRID - 1) as f64, h, s);
+            }
+            continue;
+        }
+        let mut e = [0.0; MAX_POINTS];
+        let e = &mut e[..s.len()];
+        for ((ei, &lx), &pos) in e.iter_mut().zip(wells.ln_x).zip(wells.positive) {
+            *ei = if pos { (h * (lx - lo)).exp() } else { 0.0 };
+        }
+        let ratio = (-h * step).exp();
+        for row in sse.iter_mut() {
+            for ((si, ei), &pos) in s.iter_mut().zip(e.iter_mut()).zip(wells.positive) {
+                *si = if pos { 1.0 / (1.0 + *ei) } else { 1.0 };
+                *ei *= ratio;
+            }
+            row[j] = wells.project(s).map_or(f64::INFINITY, |l| l.sse);
+        }
+    }
+    for (k, row) in sse.iter().enumerate() {
         let a = lo + (hi - lo) * k as f64 / (GRID - 1) as f64;
-        for h in [0.6, 1.2, 2.5] {
-            consider(a, h, s);
+        for (j, &h) in SLOPES.iter().enumerate() {
+            let v = row[j];
+            if v.is_finite() && best.is_none_or(|(_, _, b)| v < b) {
+                best = Some((a, h, v));
+            }
         }
     }
     best.map(|(a, h, _)| (a, h))
 }
+
+/// Points of the start grid along ln IC50 (over the tested range).
+const GRID: usize = 6;
+/// Slopes of the start grid (positive: the projected problem is symmetric in h).
+const SLOPES: [f64; 3] = [0.6, 1.2, 2.5];
 
 /// Levenberg–Marquardt on (ln IC50, h) from `start`; `None` unless it
 /// converges to an interior point.
