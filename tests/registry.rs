@@ -267,4 +267,13 @@ fn every_csv_row_names_its_source_file_and_lines_whatever_the_line_endings() {
     let (header, rows) = csv_cells(&out.stdout);
     let source = header.iter().position(|h| h == "source").expect("a source column");
     assert!(rows.iter().all(|r| r[source].contains("fixtures/mode/all.csv:")), "{:?}", rows[0][source]);
+
+    // ic50: each compound's wells.
+    let plate = "compound,conc (nM),response\nA,1,98\nA,10,90\nA,100,52\nA,1000,11\nA,10000,3\nB,1,99\nB,10,97\nB,100,80\nB,1000,30\nB,10000,8\n";
+    std::fs::write(dir.path().join("plate.csv"), plate).unwrap();
+    let out = common::kimech(dir.path()).args(["ic50", "plate.csv", "--format", "csv"]).output().unwrap();
+    let (header, rows) = csv_cells(&out.stdout);
+    let source = header.iter().position(|h| h == "source").expect("a source column");
+    let sources: Vec<&str> = rows.iter().map(|r| r[source].as_str()).collect();
+    assert_eq!(sources, ["plate.csv:2-6", "plate.csv:7-11"]);
 }

@@ -133,6 +133,8 @@ impl Curve {
 /// leaves `lines` empty, and an excluded well is then listed without a line.
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
 pub struct Location {
+    /// The input, as named on the command line (shared by every curve of a file).
+    pub file: std::sync::Arc<str>,
     /// The curve's place in the input, for messages: `lines 5-16`.
     pub span: String,
     /// The input line of each well, in the order of `x` and `y` (empty when unknown).
@@ -142,7 +144,12 @@ pub struct Location {
 impl Location {
     /// A curve that was not read from an input (a test, a simulation): `span` names it.
     pub fn described(span: &str) -> Location {
-        Location { span: span.to_string(), lines: Vec::new() }
+        Location { file: std::sync::Arc::from(span), span: span.to_string(), lines: Vec::new() }
+    }
+
+    /// The file and the wells' lines, as every output row names them.
+    pub fn origin(&self) -> crate::report::Origin {
+        crate::report::Origin::new(&self.file, self.lines.iter().copied())
     }
 }
 
@@ -303,6 +310,8 @@ pub struct Outlier {
 pub struct Ic50Result {
     /// Compound identifier.
     pub compound: String,
+    /// Where the wells came from (`file:2-21`): the input and the wells' lines.
+    pub source: crate::report::Origin,
     /// Number of rows fitted.
     pub n: usize,
     /// Whether the minimiser stopped at a trustworthy minimum.
@@ -490,6 +499,7 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     };
     Ok(Ic50Result {
         compound: curve.compound.clone(),
+        source: curve.location.origin(),
         n: fit.n,
         converged: fit.converged(),
         call: verdict.call,
@@ -1097,6 +1107,7 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
     lower.note = Some("zero by the Morrison model (complete inhibition at saturating inhibitor)".into());
     Ok(Ic50Result {
         compound: curve.compound.clone(),
+        source: curve.location.origin(),
         n: fit.n,
         converged: fit.converged(),
         call: verdict.call,

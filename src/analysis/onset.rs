@@ -87,7 +87,7 @@ pub struct Compound {
     /// Compound label, or `None` when the input had no compound column.
     pub label: Option<String>,
     /// Where its rows came from.
-    pub origin: String,
+    pub origin: crate::report::Origin,
     /// The progress curves (an uninhibited one, [I] = 0, is welcome).
     pub curves: Vec<Curve>,
     /// Substrate, Km, enzyme.
@@ -460,6 +460,8 @@ pub struct ModelSummary {
 pub struct OnsetResult {
     /// Compound label.
     pub compound: Option<String>,
+    /// Where the rows came from (`file:2-218`): the input and the lines.
+    pub source: crate::report::Origin,
     /// The chosen scheme.
     pub onset: Onset,
     /// Whether the inhibition is reversible (vs > 0); null without onset.
@@ -617,6 +619,7 @@ pub fn analyse(compound: &Compound, units: &Units, options: &Options) -> Result<
     let koff_qualifier = if onset != Onset::None && !reversible { Qualifier::Less } else { Qualifier::Equal };
     Ok(OnsetResult {
         compound: compound.label.clone(),
+        source: compound.origin.clone(),
         onset,
         reversible: (onset != Onset::None).then_some(reversible),
         kinact: constants.kinact,

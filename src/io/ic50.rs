@@ -219,6 +219,8 @@ pub struct CurveReader<'a> {
     done: bool,
     seen: HashSet<String>,
     unused_controls: usize,
+    /// The input's name, shared by every curve's location.
+    file: std::sync::Arc<str>,
 }
 
 /// A compound block being read.
@@ -238,6 +240,7 @@ impl<'a> CurveReader<'a> {
     /// Opens `input`; with `plates` (from [`read_controls`]) responses become % activity.
     pub fn new(input: &Input, options: ReadOptions, plates: Option<&'a Plates>) -> Result<CurveReader<'a>> {
         let stream = input.open()?;
+        let stream_name = stream.table().source.clone();
         let layout = Layout::new(stream.table(), &options)?;
         Ok(CurveReader {
             stream,
@@ -250,6 +253,7 @@ impl<'a> CurveReader<'a> {
             done: false,
             seen: HashSet::new(),
             unused_controls: 0,
+            file: std::sync::Arc::from(stream_name.as_str()),
         })
     }
 
@@ -382,7 +386,7 @@ impl<'a> CurveReader<'a> {
             .collect();
         Ok(Curve {
             compound: b.compound,
-            location: Location { span: line_span(b.first, b.last), lines: b.lines },
+            location: Location { file: self.file.clone(), span: line_span(b.first, b.last), lines: b.lines },
             x: b.x,
             y: b.y,
             carried: Carried(carried),

@@ -202,7 +202,7 @@ fn read_compound(
     }
     same_on_every_row(table, rows, &[cols.substrate, cols.km, cols.enzyme])?;
     let conditions = conditions(table, cols, rows[0], inhibitor_unit, options)?;
-    let origin = lines(rows.first().map_or(0, |r| r.line), rows.last().map_or(0, |r| r.line));
+    let origin = crate::io::input::rows_source(table, rows);
     Ok(Compound { label, origin, curves, conditions })
 }
 

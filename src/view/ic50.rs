@@ -258,6 +258,7 @@ pub const COLUMNS: &[Column] = &[
     Column::param("ki_app_low", ki_app, Part::Low).morrison(),
     Column::param("ki_app_high", ki_app, Part::High).morrison(),
     Column::cell("flags", |r| text(joined(&r.flags, ";"))).shown(Label::Fixed("flags"), |r, _| joined(&r.flags, ", ")),
+    Column::cell("source", |r| text(r.source.cell())),
 ];
 
 /// The command-line option that sets a flag's limit, for the legend.

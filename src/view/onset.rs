@@ -85,6 +85,7 @@ const COLUMNS: &[Column] = &[
         value: |r| text(r.warnings.iter().map(|w| w.code.as_str()).collect::<Vec<_>>().join(";")),
         summary: true,
     },
+    Column { name: "source", value: |r| text(r.source.cell()), summary: false },
 ];
 
 /// `{"results": [...]}`.
