@@ -312,6 +312,8 @@ pub struct Ic50Result {
     pub compound: String,
     /// Where the wells came from (`file:2-21`): the input and the wells' lines.
     pub source: crate::report::Origin,
+    /// Confidence level of every interval of this result.
+    pub confidence: f64,
     /// Number of rows fitted.
     pub n: usize,
     /// Whether the minimiser stopped at a trustworthy minimum.
@@ -500,6 +502,7 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     Ok(Ic50Result {
         compound: curve.compound.clone(),
         source: curve.location.origin(),
+        confidence: options.confidence,
         n: fit.n,
         converged: fit.converged(),
         call: verdict.call,
@@ -1108,6 +1111,7 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
     Ok(Ic50Result {
         compound: curve.compound.clone(),
         source: curve.location.origin(),
+        confidence: options.confidence,
         n: fit.n,
         converged: fit.converged(),
         call: verdict.call,

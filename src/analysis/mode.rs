@@ -131,7 +131,7 @@ impl Default for Options {
             weighting: Weighting::None,
             criterion: Criterion::Aicc,
             alpha_level: 0.05,
-            confidence: 0.95,
+            confidence: crate::report::DEFAULT_CONFIDENCE,
             settings: FitSettings::default(),
         }
     }

@@ -181,7 +181,7 @@ impl Default for Options {
         Options {
             criterion: Criterion::Aicc,
             alpha_level: 0.05,
-            confidence: 0.95,
+            confidence: crate::report::DEFAULT_CONFIDENCE,
             substrate_mechanism: SubstrateMechanism::Competitive,
             initial_rates: RatesPolicy::Test,
             min_onset: 1.0,

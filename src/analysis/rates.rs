@@ -58,6 +58,8 @@ pub struct RateResult {
     pub curve: Option<String>,
     /// Where the rows came from (`file:2-8`): the file as named on the command line and the lines.
     pub source: crate::report::Origin,
+    /// Confidence level of the rate's interval.
+    pub confidence: f64,
     /// Slope of the initial straight line, with a Wald interval (t quantile).
     pub rate: Param,
     /// Signal of that line at the first time point.
@@ -106,6 +108,7 @@ pub fn analyse(curve: &Curve, options: &Options) -> Result<RateResult> {
     Ok(RateResult {
         curve: curve.label.clone(),
         source: curve.origin.clone(),
+        confidence: options.confidence,
         intercept: line.theta[0] + line.theta[1] * time[0],
         rate,
         window_start: time[0],

@@ -36,7 +36,7 @@ pub struct Args {
     #[arg(long, value_name = "CONC", value_parser = parse_flag_concentration)]
     pub enzyme: Option<ConcentrationArg>,
     /// Confidence level of the intervals.
-    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
+    #[arg(long, default_value_t = crate::report::DEFAULT_CONFIDENCE, value_parser = parse_fraction)]
     pub confidence: f64,
     /// IC50 interval: wald (on ln IC50, fast) or profile (likelihood, several refits per curve).
     #[arg(long, value_enum, default_value_t = IntervalArg::Wald)]
@@ -148,7 +148,7 @@ impl Args {
             fix_upper: None,
             normalise: false,
             enzyme: None,
-            confidence: 0.95,
+            confidence: crate::report::DEFAULT_CONFIDENCE,
             intervals: IntervalArg::Wald,
             hill_steep: defaults.hill_steep,
             hill_shallow: defaults.hill_shallow,

@@ -65,7 +65,7 @@ pub struct Args {
     #[arg(long, default_value_t = 0.5, value_name = "NUMBER")]
     pub hill_tolerance: f64,
     /// Confidence level of the Ki interval (the IC50 interval is taken to be at this level).
-    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
+    #[arg(long, default_value_t = crate::report::DEFAULT_CONFIDENCE, value_parser = parse_fraction)]
     pub confidence: f64,
     /// Output format and destination.
     #[command(flatten)]
@@ -203,6 +203,7 @@ fn convert_row(
     let mut row = KiRow {
         source: table.source.clone(),
         row: record.line,
+        confidence: settings.confidence,
         compound: compound.clone(),
         ki: KiValue {
             value: None,

@@ -25,7 +25,7 @@ pub struct Args {
     #[arg(long, value_enum, default_value_t = WeightingArg::None)]
     pub weighting: WeightingArg,
     /// Confidence level of the intervals.
-    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
+    #[arg(long, default_value_t = crate::report::DEFAULT_CONFIDENCE, value_parser = parse_fraction)]
     pub confidence: f64,
     /// Output format and destination.
     #[command(flatten)]
@@ -106,7 +106,7 @@ pub fn command_line(args: &Args) -> String {
         WeightingArg::Relative => line.push_str(" --weighting relative"),
         WeightingArg::Sd => line.push_str(" --weighting sd"),
     }
-    if (args.confidence - 0.95).abs() > 1e-12 {
+    if (args.confidence - crate::report::DEFAULT_CONFIDENCE).abs() > 1e-12 {
         line.push_str(&format!(" --confidence {}", args.confidence));
     }
     line

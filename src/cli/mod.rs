@@ -119,14 +119,18 @@ pub struct ModelChoiceArgs {
     #[arg(long, default_value_t = 0.05, value_parser = parse_fraction)]
     pub alpha_level: f64,
     /// Confidence level of the intervals.
-    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
+    #[arg(long, default_value_t = crate::report::DEFAULT_CONFIDENCE, value_parser = parse_fraction)]
     pub confidence: f64,
 }
 
 impl Default for ModelChoiceArgs {
     /// The command-line defaults.
     fn default() -> Self {
-        ModelChoiceArgs { criterion: mode::CriterionArg::Aicc, alpha_level: 0.05, confidence: 0.95 }
+        ModelChoiceArgs {
+            criterion: mode::CriterionArg::Aicc,
+            alpha_level: 0.05,
+            confidence: crate::report::DEFAULT_CONFIDENCE,
+        }
     }
 }
 

@@ -40,7 +40,7 @@ pub struct Args {
     #[arg(long, value_name = "UNIT")]
     pub ki_unit: Option<ConcUnit>,
     /// Confidence level of the interval of a geometric mean.
-    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
+    #[arg(long, default_value_t = crate::report::DEFAULT_CONFIDENCE, value_parser = parse_fraction)]
     pub confidence: f64,
     /// Output format and destination (csv is the registry export).
     #[command(flatten)]

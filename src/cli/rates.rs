@@ -27,7 +27,7 @@ pub struct Args {
     #[arg(long, default_value_t = 0.1, value_parser = parse_fraction)]
     pub max_conversion: f64,
     /// Confidence level of the rate intervals.
-    #[arg(long, default_value_t = 0.95, value_parser = parse_fraction)]
+    #[arg(long, default_value_t = crate::report::DEFAULT_CONFIDENCE, value_parser = parse_fraction)]
     pub confidence: f64,
     /// Output format and destination.
     #[command(flatten)]

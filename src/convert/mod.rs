@@ -121,7 +121,11 @@ pub struct Settings {
 
 impl Default for Settings {
     fn default() -> Self {
-        Settings { hill_tolerance: 0.5, confidence: 0.95, tight_binding_screen: checks::TIGHT_BINDING_SCREEN }
+        Settings {
+            hill_tolerance: 0.5,
+            confidence: crate::report::DEFAULT_CONFIDENCE,
+            tight_binding_screen: checks::TIGHT_BINDING_SCREEN,
+        }
     }
 }
 

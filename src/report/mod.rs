@@ -8,6 +8,11 @@ pub use code::Code;
 
 use crate::fit::intervals::{Bound, Interval};
 
+/// The confidence level every interval is computed at unless the user asks
+/// for another (`--confidence`); defined once, and every result records the
+/// level it used.
+pub const DEFAULT_CONFIDENCE: f64 = 0.95;
+
 /// Where a result's data came from: the input as named on the command line
 /// and the lines of its rows. Readers fill it (a reader of another shape — a
 /// plate layout — would name its wells' lines its own way); messages show it

@@ -72,6 +72,8 @@ pub struct KiRow {
     pub source: String,
     /// Input line number.
     pub row: u64,
+    /// Confidence level of the interval (that of the IC50 interval it maps).
+    pub confidence: f64,
     /// Compound as written.
     pub compound: String,
     /// The constant.

@@ -48,7 +48,8 @@ fn ki_and_rank_into(tables: &[(&str, &str, ki::Args)], sections: &mut Vec<Sectio
         entries.extend(e);
         failures.extend(f);
     }
-    let options = crate::analysis::rank::Options { versus: Some("VRD3".into()), confidence: 0.95 };
+    let options =
+        crate::analysis::rank::Options { versus: Some("VRD3".into()), confidence: crate::report::DEFAULT_CONFIDENCE };
     let ranked = crate::analysis::rank::aggregate(&entries, &options);
     let unit = crate::units::ConcUnit::Nanomolar;
     print!("{}", String::from_utf8_lossy(&crate::view::rank::render(&ranked, unit, crate::io::Format::Table)?));

@@ -103,7 +103,7 @@ fn rates_stage(sections: &mut Vec<Section>) -> Result<Table> {
         min_points: 4,
         curvature_alpha: 0.05,
         max_conversion: 0.1,
-        confidence: 0.95,
+        confidence: crate::report::DEFAULT_CONFIDENCE,
         output: stdout_table(),
     };
     let outcome = rates::process(&input, &args)?;
@@ -128,7 +128,7 @@ fn km_stage(rate_table: &Table, sections: &mut Vec<Section>) -> Result<()> {
         substrate_unit: None,
         enzyme: crate::units::ConcentrationArg::parse("5 nM").ok(),
         weighting: km::WeightingArg::None,
-        confidence: 0.95,
+        confidence: crate::report::DEFAULT_CONFIDENCE,
         output: stdout_table(),
         pictures: super::PictureArgs::default(),
     };
@@ -243,7 +243,7 @@ pub fn ki_args(name: &str) -> ki::Args {
         ic50_unit: None,
         conc_unit: None,
         hill_tolerance: 0.5,
-        confidence: 0.95,
+        confidence: crate::report::DEFAULT_CONFIDENCE,
         output: stdout_table(),
     }
 }
