@@ -242,6 +242,27 @@ impl Table {
         }
     }
 
+    /// An inhibitor concentration, as every reader of inhibitor levels wants it:
+    /// exact (no `<` or `>`) and zero (the uninhibited series) or positive.
+    pub fn inhibitor_concentration(
+        &self,
+        row: &Record,
+        col: usize,
+        default: Option<ConcUnit>,
+        flag: &str,
+    ) -> Result<Concentration> {
+        let c = self.concentration(row, col, default, flag)?;
+        if c.qualifier.is_bound() || c.molar < 0.0 {
+            return Err(self.cell_error(
+                row,
+                col,
+                "inhibitor concentration must be zero or positive, without < or >",
+                "give the inhibitor concentration used, e.g. '2.5 uM' (0 for the uninhibited series)",
+            ));
+        }
+        Ok(c)
+    }
+
     /// A concentration with optional qualifier, in mol/L. The unit comes from
     /// the cell, else the header, else `default` (a command-line flag named
     /// `flag`); with none of these it is an error naming the column.

@@ -96,15 +96,7 @@ fn read_matrix(
                 "give the substrate concentration used (S > 0)",
             ));
         }
-        let i = table.concentration(row, c.i, options.inhibitor_unit, "--inhibitor-unit")?;
-        if i.qualifier.is_bound() || i.molar < 0.0 {
-            return Err(table.cell_error(
-                row,
-                c.i,
-                "inhibitor concentration must be zero or positive, without < or >",
-                "give the inhibitor concentration used (0 for the uninhibited series)",
-            ));
-        }
+        let i = table.inhibitor_concentration(row, c.i, options.inhibitor_unit, "--inhibitor-unit")?;
         let v = table.number(row, c.v)?;
         m.substrate.push(c.s_unit.unwrap_or(s.unit).from_molar(s.molar));
         m.inhibitor.push(c.i_unit.unwrap_or(i.unit).from_molar(i.molar));

@@ -159,15 +159,7 @@ fn read_compound(
     let mut last_line: Vec<(f64, u64)> = Vec::new();
     let mut first_line: Vec<u64> = Vec::new();
     for row in rows {
-        let conc = table.concentration(row, cols.inhibitor, options.inhibitor_unit, "--inhibitor-unit")?;
-        if conc.qualifier.is_bound() || conc.molar < 0.0 {
-            return Err(table.cell_error(
-                row,
-                cols.inhibitor,
-                "not an exact, non-negative concentration",
-                "give the inhibitor concentration of the curve, e.g. '2.5 uM' (0 for the uninhibited curve)",
-            ));
-        }
+        let conc = table.inhibitor_concentration(row, cols.inhibitor, options.inhibitor_unit, "--inhibitor-unit")?;
         let inhibitor = inhibitor_unit.unwrap_or(conc.unit).from_molar(conc.molar);
         let curve_key = cols.curve.map_or_else(|| format!("{:e}", conc.molar), |c| table.text(row, c).to_string());
         let replicate = cols.replicate.map_or(String::new(), |c| table.text(row, c).to_string());
