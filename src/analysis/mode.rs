@@ -191,7 +191,7 @@ pub struct ModelResult {
     pub converged: bool,
     /// When the optimum lies at infinity, the simpler model it reduces to.
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub limit: Option<&'static str>,
+    pub limit: Option<Mechanism>,
     /// Estimated constants.
     pub params: ModelParams,
 }
@@ -246,7 +246,7 @@ pub struct Adequacy {
 struct Fitted {
     mechanism: Mechanism,
     fit: Fit,
-    limit: Option<&'static str>,
+    limit: Option<Mechanism>,
     params: ModelParams,
 }
 
@@ -332,7 +332,7 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
         // Partial inhibition acts through ESI: a call in which no ESI forms (competitive) cannot hide it.
         let esi = match picked {
             2 | 3 => true,
-            4 => models[4].limit != Some("competitive"),
+            4 => models[4].limit != Some(Mechanism::Competitive),
             _ => false,
         };
         let residual_p = if esi { residual_activity_p(&data, &ext_fits[0], &fits[4], &options.settings) } else { None };
@@ -462,13 +462,13 @@ pub fn fit_all(data: &Data<Point>, settings: &FitSettings) -> Vec<Fit> {
 /// Pulls constants that lie at infinity back to [`LIMIT_FACTOR`] × I_max,
 /// where the SSE is the same to 1 part in 10⁶ but the profile can start
 /// walking; returns the limit model's name, if any.
-fn tame_limits(mechanism: Mechanism, theta: &mut [f64], i_max: f64) -> Option<&'static str> {
+fn tame_limits(mechanism: Mechanism, theta: &mut [f64], i_max: f64) -> Option<Mechanism> {
     let cap = LIMIT_FACTOR * i_max;
     match mechanism {
         Mechanism::None => None,
         Mechanism::Competitive | Mechanism::Uncompetitive | Mechanism::Noncompetitive => (theta[2] > cap).then(|| {
             theta[2] = cap;
-            "none"
+            Mechanism::None
         }),
         Mechanism::Mixed => {
             let (ki, kiu) = (theta[2], theta[2] * theta[3]);
@@ -476,17 +476,17 @@ fn tame_limits(mechanism: Mechanism, theta: &mut [f64], i_max: f64) -> Option<&'
                 (false, false) => None,
                 (false, true) => {
                     theta[3] = cap / ki;
-                    Some("competitive")
+                    Some(Mechanism::Competitive)
                 }
                 (true, false) => {
                     theta[2] = cap;
                     theta[3] = kiu / cap;
-                    Some("uncompetitive")
+                    Some(Mechanism::Uncompetitive)
                 }
                 (true, true) => {
                     theta[2] = cap;
                     theta[3] = 1.0;
-                    Some("none")
+                    Some(Mechanism::None)
                 }
             }
         }
@@ -508,7 +508,7 @@ fn describe(
     let best = fits[mechanism as usize].clone();
     let mut tamed = best.clone();
     let limit = tame_limits(mechanism, &mut tamed.theta, i_max);
-    let nested = limit.and_then(|l| Mechanism::ALL.iter().position(|m| m.name() == l)).map(|k| &fits[k]);
+    let nested = limit.and_then(|l| Mechanism::ALL.iter().position(|m| *m == l)).map(|k| &fits[k]);
     let se = |j: usize| match nested {
         Some(n) if j < n.theta.len() => n.se[j],
         _ => best.se[j],
@@ -555,13 +555,13 @@ fn describe(
                 let var_log = c[(2, 2)] / (ki * ki) + c[(3, 3)] / (alpha * alpha) + 2.0 * c[(2, 3)] / (ki * alpha);
                 kiu * var_log.max(0.0).sqrt()
             });
-            let kiu_se = if limit == Some("uncompetitive") { se(2) } else { kiu_se };
+            let kiu_se = if limit == Some(Mechanism::Uncompetitive) { se(2) } else { kiu_se };
             let (tki, talpha) = (tamed.theta[2], tamed.theta[3]);
             let ki_kiu =
                 reparametrised(&tamed, [tki, tki * talpha], [tamed.se[2], kiu_se.map(|s| s * talpha * tki / kiu)]);
             let kiu_alpha = reparametrised(&tamed, [tki * talpha, talpha], [ki_kiu.se[3], tamed.se[3]]);
-            let ki_infinite = matches!(limit, Some("uncompetitive" | "none"));
-            let kiu_infinite = matches!(limit, Some("competitive" | "none"));
+            let ki_infinite = matches!(limit, Some(Mechanism::Uncompetitive | Mechanism::None));
+            let kiu_infinite = matches!(limit, Some(Mechanism::Competitive | Mechanism::None));
             params.ki = Some(report(ki, se(2), prof(&MixedKiu, &ki_kiu, 2), &units.inhibitor, ki_infinite));
             params.kiu = Some(report(kiu, kiu_se, prof(&MixedKiu, &ki_kiu, 3), &units.inhibitor, kiu_infinite));
             // α walked up holds Ki (the competitive edge), walked down holds Kiu (the uncompetitive edge).
@@ -570,13 +570,13 @@ fn describe(
             let up = prof(&law, &tamed, 3);
             let down = prof(&MixedAlphaKiu, &kiu_alpha, 3);
             let iv = Interval { low: wider(down.low, up.low, -1.0), high: wider(up.high, down.high, 1.0) };
-            let mut a = report(alpha, best.se[3], iv, &None, limit == Some("competitive"));
+            let mut a = report(alpha, best.se[3], iv, &None, limit == Some(Mechanism::Competitive));
             if ki_infinite {
                 a.value = f64::NAN;
                 a.se = None;
                 a.note = Some(format!(
                     "not determined: the best fit has Ki → ∞ (and α → 0 with α·Ki = Kiu fixed), i.e. it reduces to {}; {}",
-                    limit.unwrap_or("a simpler model"),
+                    limit.map_or("a simpler model", Mechanism::name),
                     Param::new(1.0, None, iv, method, None).note.unwrap_or_default()
                 ));
             }
@@ -786,11 +786,11 @@ fn interpret_alpha(mixed: &Fitted) -> String {
         return String::new();
     };
     let simple = match mixed.limit {
-        Some("competitive") => {
+        Some(Mechanism::Competitive) => {
             return "α → ∞: the best mixed fit is competitive (the inhibitor shows no binding to the ES complex)"
                 .into();
         }
-        Some("uncompetitive") => {
+        Some(Mechanism::Uncompetitive) => {
             return "Ki → ∞, α → 0: the best mixed fit is uncompetitive (the inhibitor shows no binding to free enzyme)"
                 .into();
         }
@@ -930,11 +930,11 @@ mod tests {
     fn limits_are_pulled_back_keeping_the_finite_constant() {
         // α·Ki beyond 10⁶ × I_max: competitive edge, Ki kept.
         let mut t = [1.0, 2.0, 3.0, 1e9];
-        assert_eq!(tame_limits(Mechanism::Mixed, &mut t, 8.0), Some("competitive"));
+        assert_eq!(tame_limits(Mechanism::Mixed, &mut t, 8.0), Some(Mechanism::Competitive));
         assert!((t[2] - 3.0).abs() < 1e-12 && (t[2] * t[3] - 8e6).abs() < 1e-3);
         // Ki beyond: uncompetitive edge, Kiu = α·Ki kept.
         let mut t = [1.0, 2.0, 1e20, 2e-20];
-        assert_eq!(tame_limits(Mechanism::Mixed, &mut t, 8.0), Some("uncompetitive"));
+        assert_eq!(tame_limits(Mechanism::Mixed, &mut t, 8.0), Some(Mechanism::Uncompetitive));
         assert!((t[2] - 8e6).abs() < 1e-3 && (t[2] * t[3] - 2.0).abs() < 1e-9);
         let mut t = [1.0, 2.0, 3.0, 4.0];
         assert_eq!(tame_limits(Mechanism::Mixed, &mut t, 8.0), None);
