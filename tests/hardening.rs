@@ -253,3 +253,86 @@ fn group_failures_name_the_file_and_shorten_long_ids() {
     assert!(message.contains("g.csv, lines 2-4") && message.contains('…'), "{message}");
     assert!(message.len() < 400, "the 500-character id is shortened: {message}");
 }
+
+/// Names in `dir` that a run left behind: the output's temporary sibling or the stdin spool.
+#[cfg(unix)]
+fn kimech_temporaries(dir: &std::path::Path) -> Vec<String> {
+    std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.contains("kimech"))
+        .collect()
+}
+
+/// Starts `kimech ic50 - ARGS -o out.csv` reading a pipe that stays open, waits until
+/// `ready` names a file in the run directory or the temp directory, then sends `signal`.
+#[cfg(unix)]
+fn kill_ic50_mid_run(args: &[&str], signal: &str, ready: impl Fn(&[String]) -> bool) {
+    use std::io::Write;
+    use std::process::{Command, Stdio};
+    let run = tempfile::tempdir().unwrap();
+    let tmp = tempfile::tempdir().unwrap();
+    let mut child = Command::new(assert_cmd::cargo::cargo_bin!("kimech"))
+        .current_dir(run.path())
+        .env("TMPDIR", tmp.path())
+        .args(["ic50", "-"])
+        .args(args)
+        .args(["-o", "out.csv"])
+        .stdin(Stdio::piped())
+        .stdout(Stdio::null())
+        .stderr(Stdio::null())
+        .spawn()
+        .unwrap();
+    let mut stdin = child.stdin.take().unwrap();
+    stdin.write_all(b"plate,compound,concentration (nM),response,control\nP1,,0,100,uninhibited\n").unwrap();
+    stdin.flush().unwrap();
+    let started = std::time::Instant::now();
+    loop {
+        let mut seen = kimech_temporaries(run.path());
+        seen.extend(kimech_temporaries(tmp.path()));
+        if ready(&seen) {
+            break;
+        }
+        assert!(started.elapsed().as_secs() < 20, "no temporary file appeared: {seen:?}");
+        std::thread::sleep(std::time::Duration::from_millis(20));
+    }
+    let status = Command::new("kill").args([signal, &child.id().to_string()]).status().unwrap();
+    assert!(status.success());
+    let exit = child.wait().unwrap();
+    drop(stdin);
+    assert_eq!(exit.code(), Some(130), "the handler exits with 130 after cleaning up");
+    assert!(kimech_temporaries(run.path()).is_empty(), "{:?}", kimech_temporaries(run.path()));
+    assert!(kimech_temporaries(tmp.path()).is_empty(), "{:?}", kimech_temporaries(tmp.path()));
+    assert!(!run.path().join("out.csv").exists(), "no partial output appears");
+}
+
+#[cfg(unix)]
+#[test]
+fn a_killed_run_leaves_no_temporary_output_behind() {
+    for signal in ["-INT", "-TERM", "-HUP"] {
+        kill_ic50_mid_run(&[], signal, |seen| seen.iter().any(|n| n.starts_with(".out.csv.kimech-")));
+    }
+}
+
+#[cfg(unix)]
+#[test]
+fn a_killed_run_leaves_no_stdin_spool_behind() {
+    for signal in ["-INT", "-TERM"] {
+        kill_ic50_mid_run(&["--normalise"], signal, |seen| seen.iter().any(|n| n.starts_with("kimech-ic50-stdin-")));
+    }
+}
+
+#[test]
+fn a_failed_write_leaves_no_temporary_output_behind() {
+    // The output's directory does not exist: the temporary sibling cannot be made, and
+    // nothing is left anywhere.
+    let dir = file("k.csv", "compound,ic50 (nM)\na,100\n");
+    let out = kimech(dir.path())
+        .args(["ki", "k.csv", "--mechanism", "noncompetitive", "-o", "missing/out.csv"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+    assert!(stderr(&out).contains("missing/out.csv"), "{}", stderr(&out));
+    let left: Vec<_> = std::fs::read_dir(dir.path()).unwrap().map(|e| e.unwrap().file_name()).collect();
+    assert_eq!(left.len(), 1, "{left:?}");
+}

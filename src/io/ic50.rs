@@ -41,8 +41,8 @@ impl Input {
     /// returned [`Spool`] removes the file when dropped.
     pub fn spool_stdin() -> Result<(Input, Spool)> {
         let path = std::env::temp_dir().join(format!("kimech-ic50-stdin-{}.csv", std::process::id()));
+        let spool = Spool { _registered: super::cleanup::register(&path), path: path.clone() };
         let mut file = std::fs::File::create(&path).map_err(|e| Error::Write { path: path.clone(), source: e })?;
-        let spool = Spool(path.clone());
         std::io::copy(&mut std::io::stdin().lock(), &mut file)
             .map_err(|e| Error::Read { path: "<stdin>".into(), source: e })?;
         Ok((Input::Spooled(path), spool))
@@ -71,12 +71,15 @@ impl Input {
     }
 }
 
-/// Removes the stdin spool file when done.
-pub struct Spool(PathBuf);
+/// Removes the stdin spool file when done (and, registered, on SIGINT/SIGTERM).
+pub struct Spool {
+    path: PathBuf,
+    _registered: super::cleanup::Registered,
+}
 
 impl Drop for Spool {
     fn drop(&mut self) {
-        let _ = std::fs::remove_file(&self.0);
+        let _ = std::fs::remove_file(&self.path);
     }
 }
 
