@@ -336,3 +336,40 @@ fn a_failed_write_leaves_no_temporary_output_behind() {
     let left: Vec<_> = std::fs::read_dir(dir.path()).unwrap().map(|e| e.unwrap().file_name()).collect();
     assert_eq!(left.len(), 1, "{left:?}");
 }
+
+/// The stderr line of a failed group, which must name the file and shorten a long id.
+fn assert_group_failure(e: &str, needle: &str, file_and_lines: &str) {
+    let message = e.lines().find(|l| l.contains(needle)).unwrap_or_else(|| panic!("{e}"));
+    assert!(message.contains(file_and_lines) && message.contains('…'), "{message}");
+    assert!(message.len() < 400, "the 500-character id is shortened: {message}");
+}
+
+#[test]
+fn ic50_and_mode_group_failures_name_the_file_and_shorten_long_ids() {
+    let long = "y".repeat(500);
+    let mut text = String::from("compound,concentration (nM),response\n");
+    for c in [1, 3, 10, 30, 100, 300, 1000, 3000] {
+        text.push_str(&format!("{long},{c},50\n"));
+    }
+    let dir = file("d.csv", &text);
+    let out = kimech(dir.path()).args(["ic50", "d.csv"]).output().unwrap();
+    assert_group_failure(&stderr(&out), "responses are equal", "d.csv, lines 2-9");
+
+    // The same compound again after another: the split-compound message.
+    let mut split = text.clone();
+    for c in [1, 3, 10, 30, 100, 300, 1000, 3000] {
+        split.push_str(&format!("other,{c},{}\n", 100.0 / (1.0 + f64::from(c) / 30.0)));
+    }
+    split.push_str(&format!("{long},1,50\n"));
+    let dir = file("s.csv", &split);
+    let out = kimech(dir.path()).args(["ic50", "s.csv"]).output().unwrap();
+    assert_group_failure(&stderr(&out), "appear again", "s.csv, line 18");
+
+    let mut matrix = String::from("compound,substrate (uM),inhibitor (uM),rate\n");
+    for s in [10, 20, 50, 100, 200, 400, 800] {
+        matrix.push_str(&format!("{long},{s},0,{}\n", s / 10));
+    }
+    let dir = file("m.csv", &matrix);
+    let out = kimech(dir.path()).args(["mode", "m.csv"]).output().unwrap();
+    assert_group_failure(&stderr(&out), "only one inhibitor concentration", "m.csv, lines 2-8");
+}

@@ -308,7 +308,12 @@ fn fails_with_one_inhibitor_level_only() {
     let dir = tempfile::tempdir().unwrap();
     let bad: String = [10, 20, 50, 100, 200, 400, 800].iter().map(|s| format!("BAD,{s},0,{}\n", s / 10)).collect();
     let (_, err) = run_partial(&with_bad_compound(dir.path(), HEADER, &bad), &[]);
-    assert!(err.contains("compound 'BAD' (lines 62-68)") && err.contains("only one inhibitor concentration"), "{err}");
+    assert!(
+        err.contains("compound 'BAD' (")
+            && err.contains("matrix.csv, lines 62-68)")
+            && err.contains("only one inhibitor concentration"),
+        "{err}"
+    );
 }
 
 #[test]

@@ -122,7 +122,7 @@ pub struct Curve {
 impl Curve {
     /// `compound 'KX-101' (lines 5-16)`, for messages.
     pub fn group(&self) -> String {
-        format!("compound '{}' ({})", self.compound, self.location.span)
+        format!("compound '{}' ({})", crate::report::short_id(&self.compound), self.location.span)
     }
 }
 
@@ -132,7 +132,7 @@ impl Curve {
 /// leaves `lines` empty, and an excluded well is then listed without a line.
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
 pub struct Location {
-    /// The curve's place in the input, for messages: `lines 5-16`.
+    /// The curve's place in the input, for messages: `plate.csv, lines 5-16`.
     pub span: String,
     /// The input line of each well, in the order of `x` and `y` (empty when unknown).
     pub lines: Vec<u64>,

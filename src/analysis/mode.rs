@@ -361,7 +361,7 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
 /// The compound's name for messages.
 pub fn group_name(matrix: &Matrix) -> String {
     match &matrix.label {
-        Some(l) => format!("compound '{l}' ({})", matrix.origin),
+        Some(l) => format!("compound '{}' ({})", crate::report::short_id(l), matrix.origin),
         None => format!("the data ({})", matrix.origin),
     }
 }

@@ -353,7 +353,11 @@ impl<'a> CurveReader<'a> {
             ));
         } else if !self.seen.insert(b.compound.clone()) {
             b.error = Some(Error::Data {
-                group: format!("compound '{}' (line {line})", b.compound),
+                group: format!(
+                    "compound '{}' ({}, line {line})",
+                    crate::report::short_id(&b.compound),
+                    self.stream.table().source
+                ),
                 problem: "its rows appear again after rows of other compounds".into(),
                 expected: "rows of one compound must be together; sort the file by compound (the earlier block was fitted on its own)".into(),
             });
@@ -383,7 +387,10 @@ impl<'a> CurveReader<'a> {
             .collect();
         Ok(Curve {
             compound: b.compound,
-            location: Location { span: line_span(b.first, b.last), lines: b.lines },
+            location: Location {
+                span: format!("{}, {}", self.stream.table().source, line_span(b.first, b.last)),
+                lines: b.lines,
+            },
             x: b.x,
             y: b.y,
             carried: Carried(carried),

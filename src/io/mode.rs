@@ -79,7 +79,7 @@ fn read_matrix(
 ) -> Result<Matrix> {
     let mut m = Matrix {
         label,
-        origin: rows_origin(rows),
+        origin: format!("{}, {}", table.source, rows_origin(rows)),
         lines: Vec::new(),
         substrate: Vec::new(),
         inhibitor: Vec::new(),

@@ -202,7 +202,8 @@ fn read_compound(
     }
     same_on_every_row(table, rows, &[cols.substrate, cols.km, cols.enzyme])?;
     let conditions = conditions(table, cols, rows[0], inhibitor_unit, options)?;
-    let origin = lines(rows.first().map_or(0, |r| r.line), rows.last().map_or(0, |r| r.line));
+    let origin =
+        format!("{}, {}", table.source, lines(rows.first().map_or(0, |r| r.line), rows.last().map_or(0, |r| r.line)));
     Ok(Compound { label, origin, curves, conditions })
 }
 
