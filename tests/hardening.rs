@@ -373,3 +373,81 @@ fn ic50_and_mode_group_failures_name_the_file_and_shorten_long_ids() {
     let out = kimech(dir.path()).args(["mode", "m.csv"]).output().unwrap();
     assert_group_failure(&stderr(&out), "only one inhibitor concentration", "m.csv, lines 2-8");
 }
+
+/// A matrix over S = 1…50 uM and I = 0…10 uM with rate `v(s, i)`.
+fn matrix(v: impl Fn(f64, f64) -> f64) -> String {
+    let mut text = String::from("substrate (uM),inhibitor (uM),rate\n");
+    for s in [1.0, 2.0, 5.0, 10.0, 20.0, 50.0] {
+        for i in [0.0, 1.0, 3.0, 10.0] {
+            text.push_str(&format!("{s},{i},{}\n", v(s, i)));
+        }
+    }
+    text
+}
+
+#[test]
+fn mode_flat_rates_say_km_and_ki_are_not_determined() {
+    let dir = file("m.csv", &matrix(|_, _| 5.0));
+    let out = kimech(dir.path()).args(["mode", "m.csv", "--format", "json"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(3), "the one compound failed");
+    let e = stderr(&out);
+    assert!(e.contains("every rate is 5") && e.contains("Km is not determined") && e.contains("Ki"), "{e}");
+}
+
+#[test]
+fn mode_with_an_inhibitor_that_changes_nothing_gives_no_ki_not_a_huge_one() {
+    // Michaelis–Menten rates, the same at every inhibitor level (Vmax 100, Km 5 uM).
+    let dir = file("m.csv", &matrix(|s, _| 100.0 * s / (5.0 + s)));
+    let out = kimech(dir.path()).args(["mode", "m.csv", "--format", "json"]).output().unwrap();
+    assert!(out.status.success(), "{}", stderr(&out));
+    let doc: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let r = &doc["results"][0];
+    assert_eq!(r["chosen"], "none");
+    assert!(r["headline"]["ki"]["value"].is_null(), "{}", r["headline"]);
+    for model in r["models"].as_array().unwrap() {
+        for key in ["ki", "kiu"] {
+            if let Some(p) = model["params"].get(key) {
+                assert!(p["value"].is_null(), "{} {key}: {p}", model["model"]);
+                assert!(p["note"].as_str().unwrap().contains("not determined"), "{p}");
+            }
+        }
+    }
+    assert!(r["warnings"].to_string().contains("no-inhibition-detected"), "{}", r["warnings"]);
+}
+
+/// A dose-response table for compound X at 1…3000 nM with response `y(c)`.
+fn curve(y: impl Fn(f64) -> f64) -> String {
+    let mut text = String::from("compound,concentration (nM),response\n");
+    for c in [1.0, 3.0, 10.0, 30.0, 100.0, 300.0, 1000.0, 3000.0] {
+        text.push_str(&format!("X,{c},{}\n", y(c)));
+    }
+    text
+}
+
+#[test]
+fn ic50_degenerate_curves_name_the_parameter_the_data_cannot_determine() {
+    let dir = file("c.csv", &curve(|_| 50.0));
+    let e = stderr(&kimech(dir.path()).args(["ic50", "c.csv"]).output().unwrap());
+    assert!(e.contains("all 8 responses are equal") && e.contains("neither the IC50 nor the Hill slope"), "{e}");
+
+    // Beyond what squares of doubles hold: an error, not a wrong 'inactive' call.
+    for (scale, what) in [(1e300, "as large as"), (1e-300, "span only")] {
+        let dir = file("c.csv", &curve(|c| scale * 100.0 / (1.0 + c / 30.0)));
+        let out = kimech(dir.path()).args(["ic50", "c.csv", "--format", "csv"]).output().unwrap();
+        assert_eq!(out.status.code(), Some(3));
+        let e = stderr(&out);
+        assert!(e.contains(what) && e.contains("IC50, Hill slope and asymptotes cannot be determined"), "{e}");
+    }
+    // Rates too: the same limit in mode.
+    let dir = file("m.csv", &matrix(|s, i| 1e300 * s / (5.0 + s * (1.0 + i))));
+    let e = stderr(&kimech(dir.path()).args(["mode", "m.csv"]).output().unwrap());
+    assert!(e.contains("rates as large as"), "{e}");
+
+    // A perfect step between 10 and 30 nM: the slope is not determined, and the JSON says so.
+    let dir = file("c.csv", &curve(|c| if c < 20.0 { 100.0 } else { 0.0 }));
+    let out = kimech(dir.path()).args(["ic50", "c.csv", "--format", "json"]).output().unwrap();
+    let doc: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let hill = &doc["results"][0]["hill"];
+    assert!(hill["se"].is_null(), "{hill}");
+    assert!(hill["note"].as_str().unwrap().contains("Hill slope standard error not determined"), "{hill}");
+}
