@@ -451,3 +451,139 @@ fn ic50_degenerate_curves_name_the_parameter_the_data_cannot_determine() {
     assert!(hill["se"].is_null(), "{hill}");
     assert!(hill["note"].as_str().unwrap().contains("Hill slope standard error not determined"), "{hill}");
 }
+
+/// Whether `cell` is how Rust, JSON writers or spreadsheets spell a non-finite number.
+fn is_non_finite(cell: &str) -> bool {
+    let c = cell.trim().trim_matches('"').to_ascii_lowercase();
+    ["nan", "inf", "-inf", "+inf", "infinity", "-infinity", "+infinity"].contains(&c.as_str())
+}
+
+/// Every string in a JSON document that spells a non-finite number.
+fn non_finite_json_strings(v: &Value, out: &mut Vec<String>) {
+    match v {
+        Value::String(s) if is_non_finite(s) => out.push(s.clone()),
+        Value::Array(a) => a.iter().for_each(|x| non_finite_json_strings(x, out)),
+        Value::Object(o) => o.values().for_each(|x| non_finite_json_strings(x, out)),
+        _ => {}
+    }
+}
+
+/// Runs `kimech ARGS FILE --format F` for every format on `text`: no panic, and no
+/// non-finite number in any output: no CSV cell, no JSON value (the document must parse
+/// strictly, which refuses `NaN` and `Infinity`, and no string spells one) and no word of
+/// the human table is `NaN` or `inf` (how Rust prints them; prose such as "lies at
+/// infinity" and the table's `→ ∞` are words, not numbers).
+fn assert_finite_everywhere(args: &[&str], text: &str) {
+    let dir = file("x.csv", text);
+    for format in ["csv", "json", "table"] {
+        let out = kimech(dir.path()).args(args).args(["x.csv", "--format", format]).output().unwrap();
+        assert!(matches!(out.status.code(), Some(0 | 2 | 3)), "{args:?} {format} on {text:?}: {}", stderr(&out));
+        let stdout = String::from_utf8_lossy(&out.stdout);
+        let bad: Vec<String> = match format {
+            "csv" => stdout.lines().flat_map(|l| l.split(',')).filter(|c| is_non_finite(c)).map(String::from).collect(),
+            "json" if stdout.is_empty() => Vec::new(),
+            "json" => {
+                let doc: Value = serde_json::from_str(&stdout)
+                    .unwrap_or_else(|e| panic!("{args:?}: JSON does not parse ({e}) for {text:?}:\n{stdout}"));
+                let mut bad = Vec::new();
+                non_finite_json_strings(&doc, &mut bad);
+                bad
+            }
+            _ => stdout
+                .split(|c: char| !c.is_ascii_alphanumeric())
+                .filter(|w| *w == "NaN" || *w == "inf")
+                .map(String::from)
+                .collect(),
+        };
+        assert!(bad.is_empty(), "{args:?} --format {format} wrote {bad:?} for {text:?}:\n{stdout}");
+    }
+}
+
+#[test]
+fn no_command_writes_nan_or_inf_for_extreme_but_valid_input() {
+    let progress = |f: &dyn Fn(f64) -> f64| {
+        let mut t = String::from("curve,time (min),product (uM)\n");
+        for k in 0..8 {
+            t.push_str(&format!("A,{k},{}\n", f(f64::from(k))));
+        }
+        t
+    };
+    for text in [
+        progress(&|t| 1e300 * t),
+        progress(&|t| 1e-300 * t),
+        progress(&|t| 1.7e308 * t / 8.0),
+        progress(&|_| 0.0),
+        progress(&|_| 5.0),
+        "curve,time (min),product (uM)\nA,0,0\nA,1e-300,1\nA,2e-300,2\n".into(),
+    ] {
+        assert_finite_everywhere(&["rates"], &text);
+    }
+
+    for text in [
+        "substrate (uM),rate\n1,1e300\n2,1.7e308\n3,-1.7e308\n4,1e-300\n5,4\n",
+        "substrate (uM),rate\n1e-300,2\n2e-300,3\n3e-300,4\n",
+        "substrate (uM),rate\n1e300,2\n2e300,3\n3e300,4\n",
+        "substrate (uM),rate\n1,0\n2,0\n3,0\n",
+        "substrate (uM),rate\n1,5\n2,5\n5,5\n",
+        "substrate (uM),rate\n0,0\n1,1\n2,2\n4,4\n",
+    ] {
+        assert_finite_everywhere(&["km"], text);
+    }
+
+    for text in [
+        matrix(|s, i| 1e140 * s / (5.0 + s * (1.0 + i))),
+        matrix(|s, i| 1e-140 * s / (5.0 + s * (1.0 + i))),
+        matrix(|s, i| 1e300 * s / (5.0 + s * (1.0 + i))),
+        matrix(|_, _| 0.0),
+        matrix(|_, i| 100.0 / (1.0 + i / 2.0)),
+        matrix(|s, i| 3.0 * s / (1.0 + i / 2.0)),
+        matrix(|s, _| 100.0 * s / (5.0 + s)),
+        matrix(|s, i| if i == 0.0 { s } else { 0.0 }),
+    ] {
+        assert_finite_everywhere(&["mode"], &text);
+    }
+
+    for text in [
+        curve(|c| 1e140 * 100.0 / (1.0 + c / 30.0)),
+        curve(|c| 1e-140 * 100.0 / (1.0 + c / 30.0)),
+        curve(|c| 1e300 * 100.0 / (1.0 + c / 30.0)),
+        curve(|_| 0.0),
+        curve(|c| if c < 20.0 { 100.0 } else { 0.0 }),
+        curve(|c| 100.0 - c / 100.0),
+        curve(|c| if c == 100.0 { 1e6 } else { 100.0 / (1.0 + c / 30.0) }),
+        "compound,concentration (nM),response\nX,0,100\nX,1e-300,90\nX,1e300,0\nX,1,50\nX,2,40\nX,3,30\n".into(),
+    ] {
+        assert_finite_everywhere(&["ic50"], &text);
+    }
+
+    let ki = "compound,ic50 (nM),substrate (uM),km (uM)\n\
+              a,1e300,10,10\nb,1e-300,10,10\nc,100,0,10\nd,100,1e300,1e-300\ne,100,1e-300,1e300\n\
+              f,> 1e300,10,10\ng,< 1e-300,10,10\nh,100,10,10\n";
+    for mechanism in ["competitive", "uncompetitive", "noncompetitive"] {
+        assert_finite_everywhere(&["ki", "--mechanism", mechanism], ki);
+    }
+    // rank on what ki wrote for those rows, and on a hand-made table of extreme constants.
+    let dir = file("k.csv", ki);
+    let out =
+        kimech(dir.path()).args(["ki", "k.csv", "--mechanism", "competitive", "--format", "csv"]).output().unwrap();
+    assert_finite_everywhere(&["rank"], &String::from_utf8(out.stdout).unwrap());
+    let hand = "compound,ki (nM),method,mechanism\na,1e-300,cheng-prusoff,competitive\n\
+                a,1e300,cheng-prusoff,competitive\nb,> 1e300,cheng-prusoff,competitive\nc,0.0001,measured,mixed\n";
+    assert_finite_everywhere(&["rank"], hand);
+
+    let onset = |f: &dyn Fn(f64, f64) -> f64| {
+        let mut t = String::from("compound,inhibitor (uM),time (min),signal\n");
+        for i in [0.0, 1.0, 3.0, 10.0] {
+            for k in 0..10 {
+                let time = f64::from(k) * 3.0;
+                t.push_str(&format!("X,{i},{time},{}\n", f(i, time)));
+            }
+        }
+        t
+    };
+    for text in
+        [onset(&|_, t| 1e300 * t), onset(&|_, t| 1e-300 * t), onset(&|_, _| 5.0), onset(&|i, t| 100.0 * t / (1.0 + i))]
+    {
+        assert_finite_everywhere(&["onset", "--substrate", "40 uM", "--km", "20 uM"], &text);
+    }
+}
