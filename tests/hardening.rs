@@ -372,6 +372,15 @@ fn ic50_and_mode_group_failures_name_the_file_and_shorten_long_ids() {
     let dir = file("m.csv", &matrix);
     let out = kimech(dir.path()).args(["mode", "m.csv"]).output().unwrap();
     assert_group_failure(&stderr(&out), "only one inhibitor concentration", "m.csv, lines 2-8");
+
+    // Row failures in ki and rank, too.
+    let dir = file("k.csv", &format!("compound,ic50 (nM),substrate (uM),km (uM)\n{long},100,0,10\n"));
+    let out = kimech(dir.path()).args(["ki", "k.csv", "--mechanism", "competitive"]).output().unwrap();
+    assert_group_failure(&stderr(&out), "not positive", "k.csv, line 2");
+    let dir =
+        file("r.csv", &format!("compound,ki (nM),method,mechanism,error\n{long},,not converted,competitive,bad S\n"));
+    let out = kimech(dir.path()).args(["rank", "r.csv"]).output().unwrap();
+    assert_group_failure(&stderr(&out), "the row has no Ki", "r.csv, line 2");
 }
 
 /// A matrix over S = 1…50 uM and I = 0…10 uM with rate `v(s, i)`.

@@ -460,7 +460,12 @@ impl RowContext<'_> {
                 None => {
                     let (u, i) = qc.map_or((0, 0), |q| (q.uninhibited_n, q.inhibited_n));
                     return Err(Error::Data {
-                        group: format!("compound '{}' (line {})", b.compound, row.line),
+                        group: format!(
+                            "compound '{}' ({}, line {})",
+                            crate::report::short_id(&b.compound),
+                            self.table.source,
+                            row.line
+                        ),
                         problem: format!(
                             "plate '{plate}' has {u} uninhibited and {i} inhibited control wells (or no signal window between them)"
                         ),
@@ -483,7 +488,7 @@ impl RowContext<'_> {
 fn with_compound(e: Error, compound: &str) -> Error {
     match e {
         Error::Cell(mut cell) => {
-            cell.problem = format!("compound '{compound}': {}", cell.problem);
+            cell.problem = format!("compound '{}': {}", crate::report::short_id(compound), cell.problem);
             Error::Cell(cell)
         }
         other => other,
