@@ -3,6 +3,8 @@
 use std::process::ExitCode;
 
 fn main() -> ExitCode {
+    // Temporary files (the output's sibling, ic50's stdin spool) go on SIGINT/SIGTERM/SIGHUP too.
+    kimech::io::cleanup::on_signal();
     match kimech::cli::run(std::env::args_os()) {
         Ok(()) => ExitCode::SUCCESS,
         Err(e @ kimech::Error::Partial { .. }) => {

@@ -253,3 +253,346 @@ fn group_failures_name_the_file_and_shorten_long_ids() {
     assert!(message.contains("g.csv, lines 2-4") && message.contains('…'), "{message}");
     assert!(message.len() < 400, "the 500-character id is shortened: {message}");
 }
+
+/// Names in `dir` that a run left behind: the output's temporary sibling or the stdin spool.
+#[cfg(unix)]
+fn kimech_temporaries(dir: &std::path::Path) -> Vec<String> {
+    std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.contains("kimech"))
+        .collect()
+}
+
+/// Starts `kimech ic50 - ARGS -o out.csv` reading a pipe that stays open, waits until
+/// `ready` names a file in the run directory or the temp directory, then sends `signal`.
+#[cfg(unix)]
+fn kill_ic50_mid_run(args: &[&str], signal: &str, ready: impl Fn(&[String]) -> bool) {
+    use std::io::Write;
+    use std::process::{Command, Stdio};
+    let run = tempfile::tempdir().unwrap();
+    let tmp = tempfile::tempdir().unwrap();
+    let mut child = Command::new(assert_cmd::cargo::cargo_bin!("kimech"))
+        .current_dir(run.path())
+        .env("TMPDIR", tmp.path())
+        .args(["ic50", "-"])
+        .args(args)
+        .args(["-o", "out.csv"])
+        .stdin(Stdio::piped())
+        .stdout(Stdio::null())
+        .stderr(Stdio::null())
+        .spawn()
+        .unwrap();
+    let mut stdin = child.stdin.take().unwrap();
+    stdin.write_all(b"plate,compound,concentration (nM),response,control\nP1,,0,100,uninhibited\n").unwrap();
+    stdin.flush().unwrap();
+    let started = std::time::Instant::now();
+    loop {
+        let mut seen = kimech_temporaries(run.path());
+        seen.extend(kimech_temporaries(tmp.path()));
+        if ready(&seen) {
+            break;
+        }
+        assert!(started.elapsed().as_secs() < 20, "no temporary file appeared: {seen:?}");
+        std::thread::sleep(std::time::Duration::from_millis(20));
+    }
+    let status = Command::new("kill").args([signal, &child.id().to_string()]).status().unwrap();
+    assert!(status.success());
+    let exit = child.wait().unwrap();
+    drop(stdin);
+    assert_eq!(exit.code(), Some(130), "the handler exits with 130 after cleaning up");
+    assert!(kimech_temporaries(run.path()).is_empty(), "{:?}", kimech_temporaries(run.path()));
+    assert!(kimech_temporaries(tmp.path()).is_empty(), "{:?}", kimech_temporaries(tmp.path()));
+    assert!(!run.path().join("out.csv").exists(), "no partial output appears");
+}
+
+#[cfg(unix)]
+#[test]
+fn a_killed_run_leaves_no_temporary_output_behind() {
+    for signal in ["-INT", "-TERM", "-HUP"] {
+        kill_ic50_mid_run(&[], signal, |seen| seen.iter().any(|n| n.starts_with(".out.csv.kimech-")));
+    }
+}
+
+#[cfg(unix)]
+#[test]
+fn a_killed_run_leaves_no_stdin_spool_behind() {
+    for signal in ["-INT", "-TERM"] {
+        kill_ic50_mid_run(&["--normalise"], signal, |seen| seen.iter().any(|n| n.starts_with("kimech-ic50-stdin-")));
+    }
+}
+
+#[test]
+fn a_failed_write_leaves_no_temporary_output_behind() {
+    // The output's directory does not exist: the temporary sibling cannot be made, and
+    // nothing is left anywhere.
+    let dir = file("k.csv", "compound,ic50 (nM)\na,100\n");
+    let out = kimech(dir.path())
+        .args(["ki", "k.csv", "--mechanism", "noncompetitive", "-o", "missing/out.csv"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+    assert!(stderr(&out).contains("missing/out.csv"), "{}", stderr(&out));
+    let left: Vec<_> = std::fs::read_dir(dir.path()).unwrap().map(|e| e.unwrap().file_name()).collect();
+    assert_eq!(left.len(), 1, "{left:?}");
+}
+
+/// The stderr line of a failed group, which must name the file and shorten a long id.
+fn assert_group_failure(e: &str, needle: &str, file_and_lines: &str) {
+    let message = e.lines().find(|l| l.contains(needle)).unwrap_or_else(|| panic!("{e}"));
+    assert!(message.contains(file_and_lines) && message.contains('…'), "{message}");
+    assert!(message.len() < 400, "the 500-character id is shortened: {message}");
+}
+
+#[test]
+fn ic50_and_mode_group_failures_name_the_file_and_shorten_long_ids() {
+    let long = "y".repeat(500);
+    let mut text = String::from("compound,concentration (nM),response\n");
+    for c in [1, 3, 10, 30, 100, 300, 1000, 3000] {
+        text.push_str(&format!("{long},{c},50\n"));
+    }
+    let dir = file("d.csv", &text);
+    let out = kimech(dir.path()).args(["ic50", "d.csv"]).output().unwrap();
+    assert_group_failure(&stderr(&out), "responses are equal", "d.csv, lines 2-9");
+
+    // The same compound again after another: the split-compound message.
+    let mut split = text.clone();
+    for c in [1, 3, 10, 30, 100, 300, 1000, 3000] {
+        split.push_str(&format!("other,{c},{}\n", 100.0 / (1.0 + f64::from(c) / 30.0)));
+    }
+    split.push_str(&format!("{long},1,50\n"));
+    let dir = file("s.csv", &split);
+    let out = kimech(dir.path()).args(["ic50", "s.csv"]).output().unwrap();
+    assert_group_failure(&stderr(&out), "appear again", "s.csv, line 18");
+
+    let mut matrix = String::from("compound,substrate (uM),inhibitor (uM),rate\n");
+    for s in [10, 20, 50, 100, 200, 400, 800] {
+        matrix.push_str(&format!("{long},{s},0,{}\n", s / 10));
+    }
+    let dir = file("m.csv", &matrix);
+    let out = kimech(dir.path()).args(["mode", "m.csv"]).output().unwrap();
+    assert_group_failure(&stderr(&out), "only one inhibitor concentration", "m.csv, lines 2-8");
+
+    // Row failures in ki and rank, too.
+    let dir = file("k.csv", &format!("compound,ic50 (nM),substrate (uM),km (uM)\n{long},100,0,10\n"));
+    let out = kimech(dir.path()).args(["ki", "k.csv", "--mechanism", "competitive"]).output().unwrap();
+    assert_group_failure(&stderr(&out), "not positive", "k.csv, line 2");
+    let dir =
+        file("r.csv", &format!("compound,ki (nM),method,mechanism,error\n{long},,not converted,competitive,bad S\n"));
+    let out = kimech(dir.path()).args(["rank", "r.csv"]).output().unwrap();
+    assert_group_failure(&stderr(&out), "the row has no Ki", "r.csv, line 2");
+}
+
+/// A matrix over S = 1…50 uM and I = 0…10 uM with rate `v(s, i)`.
+fn matrix(v: impl Fn(f64, f64) -> f64) -> String {
+    let mut text = String::from("substrate (uM),inhibitor (uM),rate\n");
+    for s in [1.0, 2.0, 5.0, 10.0, 20.0, 50.0] {
+        for i in [0.0, 1.0, 3.0, 10.0] {
+            text.push_str(&format!("{s},{i},{}\n", v(s, i)));
+        }
+    }
+    text
+}
+
+#[test]
+fn mode_flat_rates_say_km_and_ki_are_not_determined() {
+    let dir = file("m.csv", &matrix(|_, _| 5.0));
+    let out = kimech(dir.path()).args(["mode", "m.csv", "--format", "json"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(3), "the one compound failed");
+    let e = stderr(&out);
+    assert!(e.contains("every rate is 5") && e.contains("Km is not determined") && e.contains("Ki"), "{e}");
+}
+
+#[test]
+fn mode_with_an_inhibitor_that_changes_nothing_gives_no_ki_not_a_huge_one() {
+    // Michaelis–Menten rates, the same at every inhibitor level (Vmax 100, Km 5 uM).
+    let dir = file("m.csv", &matrix(|s, _| 100.0 * s / (5.0 + s)));
+    let out = kimech(dir.path()).args(["mode", "m.csv", "--format", "json"]).output().unwrap();
+    assert!(out.status.success(), "{}", stderr(&out));
+    let doc: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let r = &doc["results"][0];
+    assert_eq!(r["chosen"], "none");
+    assert!(r["headline"]["ki"]["value"].is_null(), "{}", r["headline"]);
+    for model in r["models"].as_array().unwrap() {
+        for key in ["ki", "kiu"] {
+            if let Some(p) = model["params"].get(key) {
+                assert!(p["value"].is_null(), "{} {key}: {p}", model["model"]);
+                assert!(p["note"].as_str().unwrap().contains("not determined"), "{p}");
+            }
+        }
+    }
+    assert!(r["warnings"].to_string().contains("no-inhibition-detected"), "{}", r["warnings"]);
+}
+
+/// A dose-response table for compound X at 1…3000 nM with response `y(c)`.
+fn curve(y: impl Fn(f64) -> f64) -> String {
+    let mut text = String::from("compound,concentration (nM),response\n");
+    for c in [1.0, 3.0, 10.0, 30.0, 100.0, 300.0, 1000.0, 3000.0] {
+        text.push_str(&format!("X,{c},{}\n", y(c)));
+    }
+    text
+}
+
+#[test]
+fn ic50_degenerate_curves_name_the_parameter_the_data_cannot_determine() {
+    let dir = file("c.csv", &curve(|_| 50.0));
+    let e = stderr(&kimech(dir.path()).args(["ic50", "c.csv"]).output().unwrap());
+    assert!(e.contains("all 8 responses are equal") && e.contains("neither the IC50 nor the Hill slope"), "{e}");
+
+    // Beyond what squares of doubles hold: an error, not a wrong 'inactive' call.
+    for (scale, what) in [(1e300, "as large as"), (1e-300, "span only")] {
+        let dir = file("c.csv", &curve(|c| scale * 100.0 / (1.0 + c / 30.0)));
+        let out = kimech(dir.path()).args(["ic50", "c.csv", "--format", "csv"]).output().unwrap();
+        assert_eq!(out.status.code(), Some(3));
+        let e = stderr(&out);
+        assert!(e.contains(what) && e.contains("IC50, Hill slope and asymptotes cannot be determined"), "{e}");
+    }
+    // Rates too: the same limit in mode.
+    let dir = file("m.csv", &matrix(|s, i| 1e300 * s / (5.0 + s * (1.0 + i))));
+    let e = stderr(&kimech(dir.path()).args(["mode", "m.csv"]).output().unwrap());
+    assert!(e.contains("rates as large as"), "{e}");
+
+    // A perfect step between 10 and 30 nM: the slope is not determined, and the JSON says so.
+    let dir = file("c.csv", &curve(|c| if c < 20.0 { 100.0 } else { 0.0 }));
+    let out = kimech(dir.path()).args(["ic50", "c.csv", "--format", "json"]).output().unwrap();
+    let doc: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let hill = &doc["results"][0]["hill"];
+    assert!(hill["se"].is_null(), "{hill}");
+    assert!(hill["note"].as_str().unwrap().contains("Hill slope standard error not determined"), "{hill}");
+}
+
+/// Whether `cell` is how Rust, JSON writers or spreadsheets spell a non-finite number.
+fn is_non_finite(cell: &str) -> bool {
+    let c = cell.trim().trim_matches('"').to_ascii_lowercase();
+    ["nan", "inf", "-inf", "+inf", "infinity", "-infinity", "+infinity"].contains(&c.as_str())
+}
+
+/// Every string in a JSON document that spells a non-finite number.
+fn non_finite_json_strings(v: &Value, out: &mut Vec<String>) {
+    match v {
+        Value::String(s) if is_non_finite(s) => out.push(s.clone()),
+        Value::Array(a) => a.iter().for_each(|x| non_finite_json_strings(x, out)),
+        Value::Object(o) => o.values().for_each(|x| non_finite_json_strings(x, out)),
+        _ => {}
+    }
+}
+
+/// Runs `kimech ARGS FILE --format F` for every format on `text`: no panic, and no
+/// non-finite number in any output: no CSV cell, no JSON value (the document must parse
+/// strictly, which refuses `NaN` and `Infinity`, and no string spells one) and no word of
+/// the human table is `NaN` or `inf` (how Rust prints them; prose such as "lies at
+/// infinity" and the table's `→ ∞` are words, not numbers).
+fn assert_finite_everywhere(args: &[&str], text: &str) {
+    let dir = file("x.csv", text);
+    for format in ["csv", "json", "table"] {
+        let out = kimech(dir.path()).args(args).args(["x.csv", "--format", format]).output().unwrap();
+        assert!(matches!(out.status.code(), Some(0 | 2 | 3)), "{args:?} {format} on {text:?}: {}", stderr(&out));
+        let stdout = String::from_utf8_lossy(&out.stdout);
+        let bad: Vec<String> = match format {
+            "csv" => stdout.lines().flat_map(|l| l.split(',')).filter(|c| is_non_finite(c)).map(String::from).collect(),
+            "json" if stdout.is_empty() => Vec::new(),
+            "json" => {
+                let doc: Value = serde_json::from_str(&stdout)
+                    .unwrap_or_else(|e| panic!("{args:?}: JSON does not parse ({e}) for {text:?}:\n{stdout}"));
+                let mut bad = Vec::new();
+                non_finite_json_strings(&doc, &mut bad);
+                bad
+            }
+            _ => stdout
+                .split(|c: char| !c.is_ascii_alphanumeric())
+                .filter(|w| *w == "NaN" || *w == "inf")
+                .map(String::from)
+                .collect(),
+        };
+        assert!(bad.is_empty(), "{args:?} --format {format} wrote {bad:?} for {text:?}:\n{stdout}");
+    }
+}
+
+#[test]
+fn no_command_writes_nan_or_inf_for_extreme_but_valid_input() {
+    let progress = |f: &dyn Fn(f64) -> f64| {
+        let mut t = String::from("curve,time (min),product (uM)\n");
+        for k in 0..8 {
+            t.push_str(&format!("A,{k},{}\n", f(f64::from(k))));
+        }
+        t
+    };
+    for text in [
+        progress(&|t| 1e300 * t),
+        progress(&|t| 1e-300 * t),
+        progress(&|t| 1.7e308 * t / 8.0),
+        progress(&|_| 0.0),
+        progress(&|_| 5.0),
+        "curve,time (min),product (uM)\nA,0,0\nA,1e-300,1\nA,2e-300,2\n".into(),
+    ] {
+        assert_finite_everywhere(&["rates"], &text);
+    }
+
+    for text in [
+        "substrate (uM),rate\n1,1e300\n2,1.7e308\n3,-1.7e308\n4,1e-300\n5,4\n",
+        "substrate (uM),rate\n1e-300,2\n2e-300,3\n3e-300,4\n",
+        "substrate (uM),rate\n1e300,2\n2e300,3\n3e300,4\n",
+        "substrate (uM),rate\n1,0\n2,0\n3,0\n",
+        "substrate (uM),rate\n1,5\n2,5\n5,5\n",
+        "substrate (uM),rate\n0,0\n1,1\n2,2\n4,4\n",
+    ] {
+        assert_finite_everywhere(&["km"], text);
+    }
+
+    for text in [
+        matrix(|s, i| 1e140 * s / (5.0 + s * (1.0 + i))),
+        matrix(|s, i| 1e-140 * s / (5.0 + s * (1.0 + i))),
+        matrix(|s, i| 1e300 * s / (5.0 + s * (1.0 + i))),
+        matrix(|_, _| 0.0),
+        matrix(|_, i| 100.0 / (1.0 + i / 2.0)),
+        matrix(|s, i| 3.0 * s / (1.0 + i / 2.0)),
+        matrix(|s, _| 100.0 * s / (5.0 + s)),
+        matrix(|s, i| if i == 0.0 { s } else { 0.0 }),
+    ] {
+        assert_finite_everywhere(&["mode"], &text);
+    }
+
+    for text in [
+        curve(|c| 1e140 * 100.0 / (1.0 + c / 30.0)),
+        curve(|c| 1e-140 * 100.0 / (1.0 + c / 30.0)),
+        curve(|c| 1e300 * 100.0 / (1.0 + c / 30.0)),
+        curve(|_| 0.0),
+        curve(|c| if c < 20.0 { 100.0 } else { 0.0 }),
+        curve(|c| 100.0 - c / 100.0),
+        curve(|c| if c == 100.0 { 1e6 } else { 100.0 / (1.0 + c / 30.0) }),
+        "compound,concentration (nM),response\nX,0,100\nX,1e-300,90\nX,1e300,0\nX,1,50\nX,2,40\nX,3,30\n".into(),
+    ] {
+        assert_finite_everywhere(&["ic50"], &text);
+    }
+
+    let ki = "compound,ic50 (nM),substrate (uM),km (uM)\n\
+              a,1e300,10,10\nb,1e-300,10,10\nc,100,0,10\nd,100,1e300,1e-300\ne,100,1e-300,1e300\n\
+              f,> 1e300,10,10\ng,< 1e-300,10,10\nh,100,10,10\n";
+    for mechanism in ["competitive", "uncompetitive", "noncompetitive"] {
+        assert_finite_everywhere(&["ki", "--mechanism", mechanism], ki);
+    }
+    // rank on what ki wrote for those rows, and on a hand-made table of extreme constants.
+    let dir = file("k.csv", ki);
+    let out =
+        kimech(dir.path()).args(["ki", "k.csv", "--mechanism", "competitive", "--format", "csv"]).output().unwrap();
+    assert_finite_everywhere(&["rank"], &String::from_utf8(out.stdout).unwrap());
+    let hand = "compound,ki (nM),method,mechanism\na,1e-300,cheng-prusoff,competitive\n\
+                a,1e300,cheng-prusoff,competitive\nb,> 1e300,cheng-prusoff,competitive\nc,0.0001,measured,mixed\n";
+    assert_finite_everywhere(&["rank"], hand);
+
+    let onset = |f: &dyn Fn(f64, f64) -> f64| {
+        let mut t = String::from("compound,inhibitor (uM),time (min),signal\n");
+        for i in [0.0, 1.0, 3.0, 10.0] {
+            for k in 0..10 {
+                let time = f64::from(k) * 3.0;
+                t.push_str(&format!("X,{i},{time},{}\n", f(i, time)));
+            }
+        }
+        t
+    };
+    for text in
+        [onset(&|_, t| 1e300 * t), onset(&|_, t| 1e-300 * t), onset(&|_, _| 5.0), onset(&|i, t| 100.0 * t / (1.0 + i))]
+    {
+        assert_finite_everywhere(&["onset", "--substrate", "40 uM", "--km", "20 uM"], &text);
+    }
+}

@@ -408,7 +408,12 @@ fn a_compound_split_across_the_file_is_an_error_not_a_silent_merge() {
     let out = kimech().args(["ic50", &path, "--format", "csv"]).output().unwrap();
     assert_eq!(out.status.code(), Some(3));
     let stderr = String::from_utf8(out.stderr).unwrap();
-    assert!(stderr.contains("compound 'KX-1' (line 22)") && stderr.contains("sort the file"), "{stderr}");
+    assert!(
+        stderr.contains("split.csv, line 22)")
+            && stderr.contains("compound 'KX-1' (")
+            && stderr.contains("sort the file"),
+        "{stderr}"
+    );
 }
 
 #[test]

@@ -310,7 +310,7 @@ fn fails_with_one_inhibitor_level_only() {
     let (_, err) = run_partial(&with_bad_compound(dir.path(), HEADER, &bad), &[]);
     assert!(
         err.contains("compound 'BAD' (")
-            && err.contains(".csv, lines 62-68)")
+            && err.contains("matrix.csv, lines 62-68)")
             && err.contains("only one inhibitor concentration"),
         "{err}"
     );

@@ -123,7 +123,7 @@ pub struct Curve {
 impl Curve {
     /// `compound 'KX-101' (lines 5-16)`, for messages.
     pub fn group(&self) -> String {
-        format!("compound '{}' ({})", self.compound, self.location.span)
+        format!("compound '{}' ({})", crate::report::short_id(&self.compound), self.location.span)
     }
 }
 
@@ -135,7 +135,7 @@ impl Curve {
 pub struct Location {
     /// The input, as named on the command line (shared by every curve of a file).
     pub file: std::sync::Arc<str>,
-    /// The curve's place in the input, for messages: `lines 5-16`.
+    /// The curve's place in the input, for messages: `plate.csv, lines 5-16`.
     pub span: String,
     /// The input line of each well, in the order of `x` and `y` (empty when unknown).
     pub lines: Vec<u64>,
@@ -400,8 +400,18 @@ fn check(curve: &Curve, n_free: usize) -> Result<(usize, f64, f64)> {
     let (lo, hi) = curve.y.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
     if hi - lo <= 1e-12 * hi.abs().max(lo.abs()) {
         return Err(fail(
-            format!("all {} responses are equal ({})", curve.y.len(), crate::units::sig(hi, 6)),
+            format!(
+                "all {} responses are equal ({}): a flat line determines neither the IC50 nor the Hill slope, nor a second asymptote",
+                curve.y.len(),
+                crate::units::sig(hi, 6)
+            ),
             "there is no dose-response to fit; check the response column".into(),
+        ));
+    }
+    if let Some(problem) = crate::fit::out_of_range(&curve.y, "responses") {
+        return Err(fail(
+            format!("{problem}: the IC50, Hill slope and asymptotes cannot be determined"),
+            "rescale the response column (a power of ten changes only the asymptotes)".into(),
         ));
     }
     Ok((levels, min_pos, max))
@@ -527,7 +537,42 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
         model: "logistic",
         ki_app: None,
         fitted: fit.theta.clone(),
-    })
+    }
+    .with_missing_se_explained(fit))
+}
+
+impl Ic50Result {
+    /// A free parameter of a logistic fit without a standard error gets a
+    /// note naming it and why: the residuals are zero (nothing to scale the
+    /// covariance by; the Hill slope of a curve that steps between two
+    /// concentrations is not determined) or the information matrix JᵀJ is
+    /// singular at the fit (the data do not fix that parameter).
+    fn with_missing_se_explained(mut self, fit: &Fit) -> Ic50Result {
+        let span = (self.upper.value - self.lower.value).abs();
+        let why = if fit.residual_sd <= 1e-12 * span || fit.sse < f64::MIN_POSITIVE {
+            "the curve passes through every well exactly (zero residuals), so no scatter is left to measure its uncertainty by; a curve that steps between two concentrations fixes neither its Hill slope nor its IC50 inside that step"
+        } else {
+            "the information matrix is singular at the fit: the data do not fix this parameter"
+        };
+        let explain = |param: &mut Param, name: &str, j: usize| {
+            if !fit.fixed[j] && param.se.is_none() && param.interval != "bound" {
+                let text = format!("{name} standard error not determined: {why}");
+                param.note = Some(match param.note.take() {
+                    Some(n) => format!("{n}; {text}"),
+                    None => text,
+                });
+            }
+        };
+        if self.qualifier == Qualifier::Equal && self.ic50.interval == "wald-log" {
+            explain(&mut self.ic50, "IC50", Logistic::IC50);
+        }
+        if let Some(hill) = self.hill.as_mut() {
+            explain(hill, "Hill slope", Logistic::HILL);
+        }
+        explain(&mut self.upper, "upper asymptote", Logistic::UPPER);
+        explain(&mut self.lower, "lower asymptote", Logistic::LOWER);
+        self
+    }
 }
 
 /// Why an IC50 from a fit with the Hill coefficient held is approximate.

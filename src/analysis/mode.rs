@@ -232,7 +232,8 @@ pub struct NestedTest {
 pub struct Adequacy {
     /// The model tested.
     pub model: &'static str,
-    /// Runs-test p for too few sign runs; null when every residual has one sign.
+    /// Runs-test p for too few sign runs; null when every residual has one sign,
+    /// or when the model reproduces every rate to rounding (1e-9 of the largest).
     pub runs_p: Option<f64>,
     /// Lack-of-fit F against pure error; null without replicates.
     pub lack_of_fit_f: Option<f64>,
@@ -260,7 +261,14 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
     let ext_fits = fit_extensions(&data, &fits[4], &options.settings);
     let fitted: Vec<Fitted> =
         Mechanism::ALL.iter().map(|&m| describe(m, &fits, &data, i_max, units, options)).collect();
-    let aiccs: Vec<Option<f64>> = fitted.iter().map(|f| aicc(f.fit.n, f.fit.n_free, f.fit.sse)).collect();
+    // A model at a limit (a constant → ∞) is the simpler model it reduces to: its SSE is taken as
+    // no lower than that model's, so rounding in an all but exact fit cannot pick, say,
+    // noncompetitive with Ki → ∞ over none.
+    let sse_for_choice = |f: &Fitted| {
+        let nested = f.limit.and_then(|l| fitted.iter().find(|g| g.mechanism == l));
+        nested.map_or(f.fit.sse, |g| f.fit.sse.max(g.fit.sse))
+    };
+    let aiccs: Vec<Option<f64>> = fitted.iter().map(|f| aicc(f.fit.n, f.fit.n_free, sse_for_choice(f))).collect();
     let weights = akaike_weights(&aiccs);
     let tests = nested_tests(&fitted);
     let (picked, evidence) = match options.criterion {
@@ -365,7 +373,7 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
 /// The compound's name for messages.
 pub fn group_name(matrix: &Matrix) -> String {
     match &matrix.label {
-        Some(l) => format!("compound '{l}' ({})", matrix.origin),
+        Some(l) => format!("compound '{}' ({})", crate::report::short_id(l), matrix.origin),
         None => format!("the data ({})", matrix.origin),
     }
 }
@@ -417,6 +425,22 @@ fn check_matrix(matrix: &Matrix, options: &Options) -> Result<()> {
     }
     if !matrix.rate.iter().any(|v| *v > 0.0) {
         return Err(err("no positive rate".into(), "check the rate column and its sign"));
+    }
+    let (lo, hi) = matrix.rate.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
+    if hi - lo <= 1e-12 * hi.abs() {
+        return Err(err(
+            format!(
+                "every rate is {}: the rates change with neither substrate nor inhibitor, so Km is not \
+                 determined (it lies somewhere well below the lowest substrate concentration) and neither is Ki, \
+                 Kiu or α (the inhibitor changes no rate)",
+                sig(hi, 6)
+            ),
+            "measure substrate concentrations around and below Km, where the rate still rises, and inhibitor \
+             concentrations up to several times the expected Ki",
+        ));
+    }
+    if let Some(problem) = crate::fit::out_of_range(&matrix.rate, "rates") {
+        return Err(err(problem, "rescale the rate column (a power of ten changes only Vmax)"));
     }
     Ok(())
 }
@@ -740,13 +764,20 @@ fn choose_by_f(fitted: &[Fitted], level: f64) -> (usize, String) {
 }
 
 /// Runs test and lack-of-fit test of one fit.
+/// Residuals within this fraction of the largest rate are rounding, not scatter.
+const EXACT_FIT: f64 = 1e-9;
+
 fn adequacy_of(matrix: &Matrix, data: &Data<Point>, fit: &Fit, model: &'static str) -> Adequacy {
     // Replicates by level, not by bit pattern: 1000 nM and 1 uM differ in the last bit after conversion.
     let (substrate, inhibitor) = (same_levels(&matrix.substrate), same_levels(&matrix.inhibitor));
     let mut order: Vec<usize> = (0..data.len()).collect();
     order.sort_by(|&a, &b| inhibitor[a].total_cmp(&inhibitor[b]).then(substrate[a].total_cmp(&substrate[b])));
     let ordered: Vec<f64> = order.iter().map(|&k| fit.residuals[k]).collect();
-    let runs = runs_test(&ordered).map(|r| r.p_too_few);
+    // Residuals at rounding level (the model reproduces every rate to 1e-9 of the largest) have
+    // signs set by floating-point rounding, not by the data: no runs test on them.
+    let scale = data.y.iter().fold(0f64, |m, v| m.max(v.abs()));
+    let exact = fit.residuals.iter().all(|r| r.abs() <= EXACT_FIT * scale);
+    let runs = if exact { None } else { runs_test(&ordered).map(|r| r.p_too_few) };
     let mut cells: HashMap<(u64, u64), usize> = HashMap::new();
     let groups: Vec<usize> = substrate
         .iter()

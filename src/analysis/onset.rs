@@ -508,7 +508,7 @@ pub struct OnsetResult {
 /// The compound's name for messages.
 pub fn group_name(compound: &Compound) -> String {
     match &compound.label {
-        Some(l) => format!("compound '{l}' ({})", compound.origin),
+        Some(l) => format!("compound '{}' ({})", crate::report::short_id(l), compound.origin),
         None => format!("the data ({})", compound.origin),
     }
 }

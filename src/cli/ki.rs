@@ -230,7 +230,12 @@ fn convert_row(
     let outcome = read_row(table, cols, record, &defaults(args)).and_then(|input| {
         row.conditions = input.described.clone();
         convert::convert(&input.measurement, &input.conditions, settings).map_err(|p| Error::Data {
-            group: format!("{}, line {} (compound '{}')", table.source, record.line, compound),
+            group: format!(
+                "{}, line {} (compound '{}')",
+                table.source,
+                record.line,
+                crate::report::short_id(&compound)
+            ),
             problem: p.problem(),
             expected: p.expected(),
         })

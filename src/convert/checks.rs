@@ -101,6 +101,12 @@ fn tight_binding(m: &Measurement, c: &Conditions, settings: &Settings, out: &mut
     }
 }
 
+/// A ratio in words, three significant digits; one past the double range
+/// (1e300 / 1e-300) is said as such, never `inf`.
+fn ratio_text(r: f64) -> String {
+    if r.is_finite() { crate::units::sig(r, 3) } else { "beyond 1e308".into() }
+}
+
 fn ratio_checks(c: &Conditions, out: &mut Vec<Warning>) {
     let outside = |r: f64| !(0.1..=10.0).contains(&r);
     match c.assay {
@@ -111,8 +117,8 @@ fn ratio_checks(c: &Conditions, out: &mut Vec<Warning>) {
                 out.push(Warning::new(
                     Code::SubstrateFarFromKm,
                     format!(
-                        "S/Km = {:.3} is outside 0.1–10: the correction then dominates the result and inherits Km's error",
-                        s / km
+                        "S/Km = {} is outside 0.1–10: the correction then dominates the result and inherits Km's error",
+                        ratio_text(s / km)
                     ),
                 ));
             }
@@ -124,8 +130,8 @@ fn ratio_checks(c: &Conditions, out: &mut Vec<Warning>) {
                 out.push(Warning::new(
                     Code::LigandFarFromKd,
                     format!(
-                        "L/Kd = {:.3} is outside 0.1–10: the correction then dominates the result and inherits Kd's error",
-                        l / kd
+                        "L/Kd = {} is outside 0.1–10: the correction then dominates the result and inherits Kd's error",
+                        ratio_text(l / kd)
                     ),
                 ));
             }

@@ -17,6 +17,36 @@ pub mod stats;
 pub use engine::{Fit, FitSettings, Termination, fit, fit_from, summarise};
 pub use small::fit_small;
 
+/// Largest response magnitude whose squares, summed over a million rows,
+/// stay finite (1e150² · 1e6 = 1e306 < 1.8e308).
+const LARGEST_RESPONSE: f64 = 1e150;
+/// Smallest response span whose squared residuals stay normal doubles
+/// (1e-150² = 1e-300 > 2.2e-308); below it the SSE underflows to zero.
+const SMALLEST_SPAN: f64 = 1e-150;
+
+/// Why responses cannot be fitted by least squares in doubles, if they
+/// cannot: so large that their squares overflow, or spanning so little that
+/// the squared residuals underflow. `what` names them in the message
+/// ("rates", "responses"). The fits are scale-free inside these limits.
+pub fn out_of_range(y: &[f64], what: &str) -> Option<String> {
+    let (lo, hi) = y.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
+    let largest = lo.abs().max(hi.abs());
+    if largest > LARGEST_RESPONSE {
+        return Some(format!(
+            "{what} as large as {}: their squares overflow a double (beyond 1e150 the sum of squares is infinite)",
+            crate::units::sig(largest, 3)
+        ));
+    }
+    let span = hi - lo;
+    if span > 0.0 && span < SMALLEST_SPAN {
+        return Some(format!(
+            "{what} that span only {}: their squared differences underflow a double (below a span of 1e-150 the sum of squares is zero)",
+            crate::units::sig(span, 3)
+        ));
+    }
+    None
+}
+
 /// How a parameter is represented inside the minimiser.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Scale {

@@ -42,8 +42,8 @@ impl Input {
     /// returned [`Spool`] removes the file when dropped.
     pub fn spool_stdin() -> Result<(Input, Spool)> {
         let path = std::env::temp_dir().join(format!("kimech-ic50-stdin-{}.csv", std::process::id()));
+        let spool = Spool { _registered: super::cleanup::register(&path), path: path.clone() };
         let mut file = std::fs::File::create(&path).map_err(|e| Error::Write { path: path.clone(), source: e })?;
-        let spool = Spool(path.clone());
         std::io::copy(&mut std::io::stdin().lock(), &mut file)
             .map_err(|e| Error::Read { path: "<stdin>".into(), source: e })?;
         Ok((Input::Spooled(path), spool))
@@ -72,12 +72,15 @@ impl Input {
     }
 }
 
-/// Removes the stdin spool file when done.
-pub struct Spool(PathBuf);
+/// Removes the stdin spool file when done (and, registered, on SIGINT/SIGTERM).
+pub struct Spool {
+    path: PathBuf,
+    _registered: super::cleanup::Registered,
+}
 
 impl Drop for Spool {
     fn drop(&mut self) {
-        let _ = std::fs::remove_file(&self.0);
+        let _ = std::fs::remove_file(&self.path);
     }
 }
 
@@ -356,7 +359,11 @@ impl<'a> CurveReader<'a> {
             ));
         } else if !self.seen.insert(b.compound.clone()) {
             b.error = Some(Error::Data {
-                group: format!("compound '{}' (line {line})", b.compound),
+                group: format!(
+                    "compound '{}' ({}, line {line})",
+                    crate::report::short_id(&b.compound),
+                    self.stream.table().source
+                ),
                 problem: "its rows appear again after rows of other compounds".into(),
                 expected: "rows of one compound must be together; sort the file by compound (the earlier block was fitted on its own)".into(),
             });
@@ -386,7 +393,11 @@ impl<'a> CurveReader<'a> {
             .collect();
         Ok(Curve {
             compound: b.compound,
-            location: Location { file: self.file.clone(), span: line_span(b.first, b.last), lines: b.lines },
+            location: Location {
+                file: self.file.clone(),
+                span: format!("{}, {}", self.file, line_span(b.first, b.last)),
+                lines: b.lines,
+            },
             x: b.x,
             y: b.y,
             carried: Carried(carried),
@@ -456,7 +467,12 @@ impl RowContext<'_> {
                 None => {
                     let (u, i) = qc.map_or((0, 0), |q| (q.uninhibited_n, q.inhibited_n));
                     return Err(Error::Data {
-                        group: format!("compound '{}' (line {})", b.compound, row.line),
+                        group: format!(
+                            "compound '{}' ({}, line {})",
+                            crate::report::short_id(&b.compound),
+                            self.table.source,
+                            row.line
+                        ),
                         problem: format!(
                             "plate '{plate}' has {u} uninhibited and {i} inhibited control wells (or no signal window between them)"
                         ),
@@ -479,7 +495,7 @@ impl RowContext<'_> {
 fn with_compound(e: Error, compound: &str) -> Error {
     match e {
         Error::Cell(mut cell) => {
-            cell.problem = format!("compound '{compound}': {}", cell.problem);
+            cell.problem = format!("compound '{}': {}", crate::report::short_id(compound), cell.problem);
             Error::Cell(cell)
         }
         other => other,

@@ -1,5 +1,6 @@
 //! Reading assay tables and writing results. Nothing here computes.
 
+pub mod cleanup;
 pub mod ic50;
 pub mod identity;
 pub mod input;

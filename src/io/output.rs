@@ -35,6 +35,7 @@ pub fn write_output(path: Option<&Path>, bytes: &[u8], inputs: &[&str]) -> Resul
         return std::fs::write(path, bytes).map_err(write_error);
     }
     let temp = super::identity::temp_sibling(path);
+    let _registered = super::cleanup::register(&temp);
     std::fs::write(&temp, bytes).map_err(|source| {
         let _ = std::fs::remove_file(&temp); // a full disk leaves no half-written temporary
         write_error(source)

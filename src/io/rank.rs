@@ -154,7 +154,12 @@ fn read_entry(table: &Table, cols: &Columns, record: &Record, ki_unit: Option<Co
         && !table.text(record, c).is_empty()
     {
         return Err(Error::Data {
-            group: format!("{}, line {} (compound '{compound}')", table.source, record.line),
+            group: format!(
+                "{}, line {} (compound '{}')",
+                table.source,
+                record.line,
+                crate::report::short_id(&compound)
+            ),
             problem: format!("the row has no Ki: {}", table.text(record, c)),
             expected: "fix the input of `kimech ki` for this row and convert again".into(),
         });

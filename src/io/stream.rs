@@ -200,6 +200,8 @@ pub fn delimiter_for(path: &str) -> u8 {
 pub struct OutputSink {
     writer: BufWriter<Box<dyn Write + Send>>,
     temp: Option<(PathBuf, PathBuf)>,
+    /// The temporary file, registered for removal on SIGINT/SIGTERM.
+    _registered: Option<super::cleanup::Registered>,
 }
 
 impl OutputSink {
@@ -207,7 +209,11 @@ impl OutputSink {
     /// `path`, refused if `path` is one of `inputs`.
     pub fn create(path: Option<&Path>, inputs: &[&str]) -> Result<OutputSink> {
         let Some(path) = path.filter(|p| p.as_os_str() != "-") else {
-            return Ok(OutputSink { writer: BufWriter::new(Box::new(std::io::stdout())), temp: None });
+            return Ok(OutputSink {
+                writer: BufWriter::new(Box::new(std::io::stdout())),
+                temp: None,
+                _registered: None,
+            });
         };
         super::output::refuse_inputs(path, inputs)?;
         if super::output::is_special_file(path) {
@@ -215,11 +221,16 @@ impl OutputSink {
                 .write(true)
                 .open(path)
                 .map_err(|source| Error::Write { path: path.to_path_buf(), source })?;
-            return Ok(OutputSink { writer: BufWriter::new(Box::new(device)), temp: None });
+            return Ok(OutputSink { writer: BufWriter::new(Box::new(device)), temp: None, _registered: None });
         }
         let temp = super::identity::temp_sibling(path);
+        let registered = super::cleanup::register(&temp);
         let file = std::fs::File::create(&temp).map_err(|source| Error::Write { path: path.to_path_buf(), source })?;
-        Ok(OutputSink { writer: BufWriter::new(Box::new(file)), temp: Some((temp, path.to_path_buf())) })
+        Ok(OutputSink {
+            writer: BufWriter::new(Box::new(file)),
+            temp: Some((temp, path.to_path_buf())),
+            _registered: Some(registered),
+        })
     }
 
     /// The error for a failed write to this sink.
