@@ -98,7 +98,7 @@ use serde::ser::SerializeMap;
 use crate::error::{Error, Result};
 use crate::fit::intervals::{Bound, Interval, profile, t_quantile};
 use crate::fit::{Data, Fit, FitSettings, Model, Scale, fit_small};
-use crate::models::{Dose, Logistic, Morrison};
+use crate::models::{Dose, Logistic, LogisticAt, Morrison};
 use crate::report::Param;
 use crate::units::{ConcUnit, Qualifier, p_value};
 use projected::fit_logistic_projected;
@@ -433,7 +433,7 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
         let lf = fit_logistic(&subset(&curve.x, kept), &subset(&curve.y, kept), options, min_pos, max);
         let worst = match options.outliers {
             OutlierMode::Keep => None,
-            _ => worst_well(&model, &lf.data, &lf.fit, t.outlier_alpha),
+            _ => worst_well(&LogisticAt::new(&lf.fit.theta), &lf.data, &lf.fit, t.outlier_alpha),
         };
         (lf, worst)
     });

@@ -29,7 +29,7 @@
 use nalgebra::{Matrix2, Vector2};
 
 use crate::fit::{Data, Fit, Termination, summarise};
-use crate::models::{Dose, Logistic};
+use crate::models::{Dose, Logistic, LogisticAt};
 
 /// Curves with more wells than this go to the general engine (stack buffers).
 const MAX_POINTS: usize = 64;
@@ -352,7 +352,8 @@ pub fn fit_logistic_projected(data: &Data<Dose>) -> Option<Fit> {
         return None;
     }
     let theta = vec![a.exp(), h, lin.lower, lin.upper];
-    let fit = summarise(&Logistic, data, theta, lin.sse, Termination::Converged, &[None; 4], iterations);
+    let model = LogisticAt::new(&theta);
+    let fit = summarise(&model, data, theta, lin.sse, Termination::Converged, &[None; 4], iterations);
     fit.covariance.is_some().then_some(fit)
 }
 
