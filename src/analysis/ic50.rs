@@ -98,7 +98,7 @@ use serde::ser::SerializeMap;
 use crate::error::{Error, Result};
 use crate::fit::intervals::{Bound, Interval, profile, t_quantile};
 use crate::fit::{Data, Fit, FitSettings, Model, Scale, fit_small};
-use crate::models::{Dose, Logistic, Morrison};
+use crate::models::{Dose, Logistic, LogisticAt, Morrison};
 use crate::report::Param;
 use crate::units::{ConcUnit, Qualifier, p_value};
 use projected::fit_logistic_projected;
@@ -320,8 +320,8 @@ pub struct Ic50Result {
     pub converged: bool,
     /// What the data show (full, partial, complete, weak, inactive).
     pub call: Call,
-    /// The call's rule in words, with its numbers.
-    pub reason: String,
+    /// The call's rule in words, with its numbers (written out when shown).
+    pub reason: Reason,
     /// `=`; `>` / `<` when the call puts the IC50 beyond the tested range
     /// (then `ic50.value` is the bound); `~` when the Hill coefficient was held.
     pub qualifier: Qualifier,
@@ -445,7 +445,7 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
         let lf = fit_logistic(&subset(&curve.x, kept), &subset(&curve.y, kept), options, min_pos, max);
         let worst = match options.outliers {
             OutlierMode::Keep => None,
-            _ => worst_well(&model, &lf.data, &lf.fit, t.outlier_alpha),
+            _ => worst_well(&LogisticAt::new(&lf.fit.theta), &lf.data, &lf.fit, t.outlier_alpha),
         };
         (lf, worst)
     });
@@ -818,7 +818,7 @@ struct Shape {
 struct Verdict {
     call: Call,
     qualifier: Qualifier,
-    reason: String,
+    reason: Reason,
 }
 
 impl Verdict {
@@ -844,79 +844,37 @@ impl Verdict {
 /// asymptotes for raw signal.
 fn decide(shape: &Shape, flat_p: Option<f64>, y: &[f64], options: &Options, min_pos: f64, max: f64) -> Verdict {
     let t = &options.thresholds;
-    let sig3 = |v: f64| crate::units::sig(v, 3);
-    let verdict = |call, qualifier, reason: String| Verdict { call, qualifier, reason };
-    let p_text = flat_p.map_or("not formed".into(), |p| crate::units::sig(p, 2));
+    let unit = if options.percent { " %" } else { "" };
+    let verdict =
+        |call, qualifier, why, a, b| Verdict { call, qualifier, reason: Reason { why, p: flat_p, a, b, unit } };
     let flat = flat_p.is_some_and(|p| p >= t.flat_alpha);
     if flat {
         let mean = y.iter().sum::<f64>() / y.len() as f64;
         if options.percent && mean < 50.0 {
-            return verdict(
-                Call::Complete,
-                Qualifier::Less,
-                format!(
-                    "a flat line fits as well as the curve (F test p = {p_text} ≥ {}) at {} % activity, below half: inhibition is complete at the lowest concentration",
-                    t.flat_alpha,
-                    sig3(mean)
-                ),
-            );
+            return verdict(Call::Complete, Qualifier::Less, Why::FlatBelowHalf, t.flat_alpha, mean);
         }
-        return verdict(
-            Call::Inactive,
-            Qualifier::Greater,
-            format!(
-                "a flat line fits as well as the curve (F test p = {p_text} ≥ {}): no significant inhibition up to the highest concentration",
-                t.flat_alpha
-            ),
-        );
+        return verdict(Call::Inactive, Qualifier::Greater, Why::Flat, t.flat_alpha, 0.0);
     }
     let (top, half) = if options.percent { (100.0, 50.0) } else { (shape.upper, 0.5 * (shape.upper + shape.lower)) };
     let effect = if top > 0.0 { 1.0 - shape.y_high / top } else { 0.0 };
-    let unit = if options.percent { " %" } else { "" };
     if effect < t.min_inhibition {
         return verdict(
             Call::Inactive,
             Qualifier::Greater,
-            format!(
-                "the fitted inhibition at the highest concentration is {} %, below --min-inhibition ({} %) (F test against a flat line p = {p_text})",
-                sig3(100.0 * effect),
-                100.0 * t.min_inhibition
-            ),
+            Why::BelowMinInhibition,
+            100.0 * effect,
+            100.0 * t.min_inhibition,
         );
     }
     let partial = !shape.lower_known && top > 0.0 && shape.lower / top > t.partial_above && shape.lower < shape.upper;
     if shape.y_low < half || (!options.percent && shape.ic50 < min_pos) {
-        return verdict(
-            Call::Complete,
-            Qualifier::Less,
-            format!(
-                "the fitted curve is already below half ({}{unit}) at the lowest concentration ({}{unit}): inhibition is complete there",
-                sig3(half),
-                sig3(shape.y_low)
-            ),
-        );
+        return verdict(Call::Complete, Qualifier::Less, Why::CompleteAtLowest, half, shape.y_low);
     }
     if shape.y_high > half || (!options.percent && shape.ic50 > max) {
         if partial && shape.plateau_reached {
-            return verdict(
-                Call::Partial,
-                Qualifier::Greater,
-                format!(
-                    "the curve levels off at {}{unit}, above half ({}{unit}): partial inhibition that never reaches half",
-                    sig3(shape.lower),
-                    sig3(half)
-                ),
-            );
+            return verdict(Call::Partial, Qualifier::Greater, Why::PartialNeverHalf, shape.lower, half);
         }
-        return verdict(
-            Call::Weak,
-            Qualifier::Greater,
-            format!(
-                "inhibition starts (F test against a flat line p = {p_text}) but the fitted curve is still above half ({}{unit}) at the highest concentration ({}{unit})",
-                sig3(half),
-                sig3(shape.y_high)
-            ),
-        );
+        return verdict(Call::Weak, Qualifier::Greater, Why::AboveHalfAtHighest, half, shape.y_high);
     }
     // Crosses half inside the range; the reported IC50 is the curve's own
     // midpoint, which for % data with asymptotes off 100/0 may still fall outside.
@@ -927,20 +885,96 @@ fn decide(shape: &Shape, flat_p: Option<f64>, y: &[f64], options: &Options, min_
     } else {
         Qualifier::Equal
     };
-    let call = if partial { Call::Partial } else { Call::Full };
-    let what = if partial {
-        format!("levels off at {}{unit}, well above zero activity (partial inhibition)", sig3(shape.lower))
-    } else {
-        "a full curve".into()
-    };
-    verdict(
-        call,
-        qualifier,
-        format!(
-            "the fitted curve crosses half ({}{unit}) inside the tested range and {what} (F test against a flat line p = {p_text})",
-            sig3(half)
-        ),
-    )
+    let (call, why) = if partial { (Call::Partial, Why::CrossesPartial) } else { (Call::Full, Why::CrossesFull) };
+    verdict(call, qualifier, why, half, shape.lower)
+}
+
+/// Which rule made the call.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Why {
+    FlatBelowHalf,
+    Flat,
+    BelowMinInhibition,
+    CompleteAtLowest,
+    PartialNeverHalf,
+    AboveHalfAtHighest,
+    CrossesPartial,
+    CrossesFull,
+}
+
+/// The call's rule in words, with its numbers: kept as the rule and its
+/// numbers and written out only when a report shows it (JSON), not built
+/// for every curve of a CSV run that never prints it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Reason {
+    why: Why,
+    /// p of the F test against a flat line.
+    p: Option<f64>,
+    /// The rule's numbers, in the order its text names them.
+    a: f64,
+    b: f64,
+    /// `" %"` for % activity, else empty.
+    unit: &'static str,
+}
+
+impl std::fmt::Display for Reason {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        let sig3 = |v: f64| crate::units::sig(v, 3);
+        let p_text = self.p.map_or("not formed".into(), |p| crate::units::sig(p, 2));
+        let (a, b, unit) = (self.a, self.b, self.unit);
+        match self.why {
+            Why::FlatBelowHalf => write!(
+                f,
+                "a flat line fits as well as the curve (F test p = {p_text} ≥ {a}) at {} % activity, below half: inhibition is complete at the lowest concentration",
+                sig3(b)
+            ),
+            Why::Flat => write!(
+                f,
+                "a flat line fits as well as the curve (F test p = {p_text} ≥ {a}): no significant inhibition up to the highest concentration"
+            ),
+            Why::BelowMinInhibition => write!(
+                f,
+                "the fitted inhibition at the highest concentration is {} %, below --min-inhibition ({b} %) (F test against a flat line p = {p_text})",
+                sig3(a)
+            ),
+            Why::CompleteAtLowest => write!(
+                f,
+                "the fitted curve is already below half ({}{unit}) at the lowest concentration ({}{unit}): inhibition is complete there",
+                sig3(a),
+                sig3(b)
+            ),
+            Why::PartialNeverHalf => write!(
+                f,
+                "the curve levels off at {}{unit}, above half ({}{unit}): partial inhibition that never reaches half",
+                sig3(a),
+                sig3(b)
+            ),
+            Why::AboveHalfAtHighest => write!(
+                f,
+                "inhibition starts (F test against a flat line p = {p_text}) but the fitted curve is still above half ({}{unit}) at the highest concentration ({}{unit})",
+                sig3(a),
+                sig3(b)
+            ),
+            Why::CrossesPartial | Why::CrossesFull => {
+                let what = if self.why == Why::CrossesPartial {
+                    format!("levels off at {}{unit}, well above zero activity (partial inhibition)", sig3(b))
+                } else {
+                    "a full curve".into()
+                };
+                write!(
+                    f,
+                    "the fitted curve crosses half ({}{unit}) inside the tested range and {what} (F test against a flat line p = {p_text})",
+                    sig3(a)
+                )
+            }
+        }
+    }
+}
+
+impl Serialize for Reason {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> std::result::Result<S::Ok, S::Error> {
+        s.collect_str(self)
+    }
 }
 
 /// Whether a free 4PL fit is a curve the data determine: a Hill coefficient

@@ -49,11 +49,29 @@ impl Logistic {
     /// Index of the asymptote at zero concentration.
     pub const UPPER: usize = 3;
 
+    /// The first of [`Model::starts`] (the data-driven one), without
+    /// building the others: the variable-projection kernel needs only it,
+    /// once per curve.
+    pub fn first_start(data: &Data<Dose>) -> [f64; 4] {
+        let Some(guess) = Guess::from(&data.x.iter().map(|d| d.x).collect::<Vec<_>>(), &data.y) else {
+            return [1.0, 1.0, 0.0, 1.0];
+        };
+        match logit_line(data, guess.lower, guess.upper) {
+            Some((ic50, hill)) => [ic50, hill, guess.lower, guess.upper],
+            None => [guess.middle(), 1.0, guess.lower, guess.upper],
+        }
+    }
+
     /// 1/(1 + (x/IC50)^h), with its limits at x = 0, and ln(x/IC50) (0 at x = 0).
     fn fraction(theta: &[f64], dose: &Dose) -> (f64, f64) {
+        Self::fraction_with(theta, dose, |ic50| ic50.ln())
+    }
+
+    /// [`Logistic::fraction`] with ln IC50 from `ln_ic50` (taken only for a positive dose).
+    fn fraction_with(theta: &[f64], dose: &Dose, ln_ic50: impl Fn(f64) -> f64) -> (f64, f64) {
         let h = theta[Self::HILL];
         if dose.x > 0.0 {
-            let log_ratio = dose.ln_x - theta[Self::IC50].ln();
+            let log_ratio = dose.ln_x - ln_ic50(theta[Self::IC50]);
             // exp overflowing to +inf gives s = 0, the right limit.
             (1.0 / (1.0 + (h * log_ratio).exp()), log_ratio)
         } else if h > 0.0 {
@@ -86,13 +104,7 @@ impl Model for Logistic {
     /// ∂y/∂IC50 = (upper − lower)·s(1−s)·h/IC50,
     /// ∂y/∂h = −(upper − lower)·s(1−s)·ln(x/IC50). At x = 0, s(1−s) = 0.
     fn gradient(&self, theta: &[f64], x: &Dose, grad: &mut [f64]) {
-        let (s, log_ratio) = Self::fraction(theta, x);
-        let span = theta[Self::UPPER] - theta[Self::LOWER];
-        let bend = span * s * (1.0 - s);
-        grad[Self::IC50] = bend * theta[Self::HILL] / theta[Self::IC50];
-        grad[Self::HILL] = -bend * log_ratio;
-        grad[Self::LOWER] = 1.0 - s;
-        grad[Self::UPPER] = s;
+        logistic_gradient(theta, Self::fraction(theta, x), grad);
     }
 
     /// First a start from the data themselves: asymptotes from the mean
@@ -112,6 +124,63 @@ impl Model for Logistic {
             starts.push(vec![ic50, 1.0, guess.lower, guess.upper]);
         }
         starts
+    }
+}
+
+fn logistic_gradient(theta: &[f64], (s, log_ratio): (f64, f64), grad: &mut [f64]) {
+    let span = theta[Logistic::UPPER] - theta[Logistic::LOWER];
+    let bend = span * s * (1.0 - s);
+    grad[Logistic::IC50] = bend * theta[Logistic::HILL] / theta[Logistic::IC50];
+    grad[Logistic::HILL] = -bend * log_ratio;
+    grad[Logistic::LOWER] = 1.0 - s;
+    grad[Logistic::UPPER] = s;
+}
+
+/// The [`Logistic`] model evaluated at one θ well after well — a fit's
+/// summary (residuals, Jacobian) and the outlier rule's leverages — with
+/// ln IC50 taken once instead of at every well and call: the same numbers
+/// to the bit (the same `ln`, the same operations), a logarithm fewer per
+/// well. At any other IC50 it takes the logarithm as `Logistic` does.
+#[derive(Debug, Clone, Copy)]
+pub struct LogisticAt {
+    ic50: f64,
+    ln_ic50: f64,
+}
+
+impl LogisticAt {
+    /// The model at θ (ln of its IC50 taken here, once).
+    pub fn new(theta: &[f64]) -> LogisticAt {
+        let ic50 = theta[Logistic::IC50];
+        LogisticAt { ic50, ln_ic50: ic50.ln() }
+    }
+
+    fn ln(&self, ic50: f64) -> f64 {
+        if ic50.to_bits() == self.ic50.to_bits() { self.ln_ic50 } else { ic50.ln() }
+    }
+}
+
+impl Model for LogisticAt {
+    type Point = Dose;
+
+    fn names(&self) -> &[&'static str] {
+        Logistic.names()
+    }
+
+    fn scales(&self) -> &[Scale] {
+        Logistic.scales()
+    }
+
+    fn value(&self, theta: &[f64], x: &Dose) -> f64 {
+        let (s, _) = Logistic::fraction_with(theta, x, |v| self.ln(v));
+        theta[Logistic::LOWER] + (theta[Logistic::UPPER] - theta[Logistic::LOWER]) * s
+    }
+
+    fn gradient(&self, theta: &[f64], x: &Dose, grad: &mut [f64]) {
+        logistic_gradient(theta, Logistic::fraction_with(theta, x, |v| self.ln(v)), grad);
+    }
+
+    fn starts(&self, data: &Data<Dose>) -> Vec<Vec<f64>> {
+        Logistic.starts(data)
     }
 }
 
@@ -273,6 +342,25 @@ fn half_crossing(data: &Data<f64>, upper: f64) -> Option<f64> {
 mod tests {
     use super::*;
     use approx::assert_relative_eq;
+
+    /// `LogisticAt` gives `Logistic`'s values and gradients to the bit, at
+    /// its own θ and at another (where it takes the logarithm itself), at
+    /// zero dose and with a negative slope.
+    #[test]
+    fn logistic_at_matches_logistic_bit_for_bit() {
+        let theta = [37.3, 1.27, 4.1, 98.6];
+        let other = [0.093, -0.8, 101.0, -3.0];
+        let at = LogisticAt::new(&theta);
+        for t in [&theta, &other] {
+            for x in [0.0, 1e-3, 0.5, 37.3, 333.3, 1e4, 1e9].map(Dose::new) {
+                assert_eq!(at.value(t, &x).to_bits(), Logistic.value(t, &x).to_bits());
+                let (mut a, mut b) = ([0.0; 4], [0.0; 4]);
+                at.gradient(t, &x, &mut a);
+                Logistic.gradient(t, &x, &mut b);
+                assert_eq!(a.map(f64::to_bits), b.map(f64::to_bits));
+            }
+        }
+    }
 
     fn check_gradient<M: Model>(m: &M, theta: &[f64], xs: &[M::Point]) {
         let mut g = vec![0.0; theta.len()];

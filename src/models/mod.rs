@@ -9,5 +9,5 @@ pub use michaelis_menten::MichaelisMenten;
 pub use polynomial::Polynomial;
 pub mod logistic;
 
-pub use logistic::{Dose, Logistic, Morrison};
+pub use logistic::{Dose, Logistic, LogisticAt, Morrison};
 pub mod onset;

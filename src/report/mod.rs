@@ -35,21 +35,37 @@ impl Origin {
         Origin { file: file.to_string(), lines }
     }
 
-    /// Runs of consecutive lines: `[(2, 8), (15, 15)]`.
-    fn runs(&self) -> Vec<(u64, u64)> {
-        let mut runs: Vec<(u64, u64)> = Vec::new();
-        for &l in &self.lines {
-            match runs.last_mut() {
-                Some((_, last)) if *last + 1 == l => *last = l,
-                _ => runs.push((l, l)),
+    /// Runs of consecutive lines (`4-9,15` with `sep` ","), written onto
+    /// `out` digit by digit: one row of a million-curve `ic50` run writes
+    /// this cell, and the former `Vec` of runs, `String` per run and `join`
+    /// cost more than the rest of the row's text.
+    fn write_runs(&self, out: &mut String, sep: &str) {
+        let mut i = 0;
+        let mut first_run = true;
+        while i < self.lines.len() {
+            let first = self.lines[i];
+            let mut last = first;
+            while i + 1 < self.lines.len() && self.lines[i + 1] == last + 1 {
+                i += 1;
+                last = self.lines[i];
+            }
+            i += 1;
+            if !first_run {
+                out.push_str(sep);
+            }
+            first_run = false;
+            push_decimal(out, first);
+            if first != last {
+                out.push('-');
+                push_decimal(out, last);
             }
         }
-        runs
     }
 
     fn runs_text(&self, sep: &str) -> String {
-        let text = |(a, b): (u64, u64)| if a == b { a.to_string() } else { format!("{a}-{b}") };
-        self.runs().into_iter().map(text).collect::<Vec<_>>().join(sep)
+        let mut out = String::new();
+        self.write_runs(&mut out, sep);
+        out
     }
 
     /// `line 4`, `lines 4-9` or `lines 4-9, 15`.
@@ -63,7 +79,30 @@ impl Origin {
 
     /// The CSV cell: `file:4-9,15` (just the name when there are no lines).
     pub fn cell(&self) -> String {
-        if self.lines.is_empty() { self.file.clone() } else { format!("{}:{}", self.file, self.runs_text(",")) }
+        let mut out = String::with_capacity(self.file.len() + 1 + 8 * self.lines.len().min(4));
+        out.push_str(&self.file);
+        if !self.lines.is_empty() {
+            out.push(':');
+            self.write_runs(&mut out, ",");
+        }
+        out
+    }
+}
+
+/// `v` in decimal, as `v.to_string()` writes it.
+fn push_decimal(out: &mut String, mut v: u64) {
+    let mut digits = [0u8; 20];
+    let mut at = digits.len();
+    loop {
+        at -= 1;
+        digits[at] = b'0' + (v % 10) as u8;
+        v /= 10;
+        if v == 0 {
+            break;
+        }
+    }
+    for &d in &digits[at..] {
+        out.push(d as char);
     }
 }
 
@@ -198,6 +237,9 @@ mod tests {
         assert_eq!(o.cell(), "m.csv:2-4,9,15");
         assert_eq!(o.to_string(), "m.csv, lines 2-4, 9, 15");
         assert_eq!(Origin::new("m.csv", [7]).to_string(), "m.csv, line 7");
+        // Digits written by hand, as `to_string` writes them.
+        let wide = Origin::new("f", [0, 10, 99, 100, 101, 12345678901234567890]);
+        assert_eq!(wide.cell(), "f:0,10,99-101,12345678901234567890");
         let simulated = Origin::new("simulation 3 of mixed", []);
         assert_eq!(
             (simulated.to_string(), simulated.cell()),

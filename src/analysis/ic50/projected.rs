@@ -28,8 +28,8 @@
 
 use nalgebra::{Matrix2, Vector2};
 
-use crate::fit::{Data, Fit, Model, Termination, summarise};
-use crate::models::{Dose, Logistic};
+use crate::fit::{Data, Fit, Termination, summarise};
+use crate::models::{Dose, Logistic, LogisticAt};
 
 /// Curves with more wells than this go to the general engine (stack buffers).
 const MAX_POINTS: usize = 64;
@@ -184,11 +184,8 @@ fn best_start(wells: &Wells, data: &Data<Dose>, s: &mut [f64]) -> Option<(f64, f
             best = Some((a, h, sse));
         }
     };
-    if let Some(first) = Logistic.starts(data).first()
-        && first[0] > 0.0
-        && first[1].is_finite()
-        && first[1] != 0.0
-    {
+    let first = Logistic::first_start(data);
+    if first[0] > 0.0 && first[1].is_finite() && first[1] != 0.0 {
         consider(first[0].ln(), first[1].abs(), s);
     }
     // The grid's fractions cost one `exp` per well and slope, not one per
@@ -355,14 +352,15 @@ pub fn fit_logistic_projected(data: &Data<Dose>) -> Option<Fit> {
         return None;
     }
     let theta = vec![a.exp(), h, lin.lower, lin.upper];
-    let fit = summarise(&Logistic, data, theta, lin.sse, Termination::Converged, &[None; 4], iterations);
+    let model = LogisticAt::new(&theta);
+    let fit = summarise(&model, data, theta, lin.sse, Termination::Converged, &[None; 4], iterations);
     fit.covariance.is_some().then_some(fit)
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::fit::{FitSettings, fit_from};
+    use crate::fit::{FitSettings, Model, fit_from};
     use rand::{Rng, SeedableRng};
     use rand_distr::{Distribution, Normal};
 
@@ -441,6 +439,21 @@ mod tests {
             }
         }
         assert!(answered * 100 >= total * 95, "kernel answered {answered} of {total}");
+    }
+
+    /// The kernel's one data-driven start is the model's first start, on
+    /// curves with and without a transition and with no positive dose.
+    #[test]
+    fn first_start_is_the_models_first() {
+        let mut rng = rand::rngs::StdRng::seed_from_u64(7);
+        let conc: Vec<f64> = (0..10).map(|k| 10000.0 / 3f64.powi(k)).collect();
+        for _ in 0..50 {
+            let ic50 = (rng.random_range(0.1f64.ln()..1e6f64.ln())).exp();
+            let data = curve(&conc, ic50, rng.random_range(0.3..4.0), 0.0, 100.0, 3.0, &mut rng);
+            assert_eq!(Logistic::first_start(&data).to_vec(), Logistic.starts(&data)[0]);
+        }
+        let zeros = Data::unweighted(vec![Dose::new(0.0); 5], vec![1.0, 2.0, 3.0, 4.0, 5.0]);
+        assert_eq!(Logistic::first_start(&zeros).to_vec(), Logistic.starts(&zeros)[0]);
     }
 
     /// A flat curve has no interior optimum: the kernel declines.
