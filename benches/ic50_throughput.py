@@ -110,14 +110,19 @@ PHASES = {
 }
 
 
-def callgrind_breakdown(kimech, data, work, count):
-    """Instructions per curve, by phase, from one single-threaded callgrind run."""
-    subset = work / "callgrind.csv"
-    with open(data) as src, open(subset, "w") as dst:
+def first_curves(data, out, count):
+    """Copies the header and the first `count` ten-point curves of `data` to `out`."""
+    with open(data) as src, open(out, "w") as dst:
         for i, line in enumerate(src):
             if i > count * 10:
                 break
             dst.write(line)
+
+
+def callgrind_breakdown(kimech, data, work, count):
+    """Instructions per curve, by phase, from one single-threaded callgrind run."""
+    subset = work / "callgrind.csv"
+    first_curves(data, subset, count)
     out_file = work / "callgrind.out"
     env = dict(os.environ, RAYON_NUM_THREADS="1")
     cmd = ["valgrind", "--tool=callgrind", f"--callgrind-out-file={out_file}", str(kimech), "ic50", str(subset),
@@ -185,11 +190,7 @@ def main():
 
     single_n = min(a.single_n, a.n)
     single_data = work / "single.csv"
-    with open(data) as src, open(single_data, "w") as dst:
-        for i, line in enumerate(src):
-            if i > single_n * 10:
-                break
-            dst.write(line)
+    first_curves(data, single_data, single_n)
     wall1, _, cpu1 = run_kimech(a.kimech, single_data, work / "single-out.csv", threads=1)
     per_core = single_n / wall1
     print(f"kimech, 1 thread: {single_n} curves in {wall1:.2f} s = {per_core:,.0f} curves/s (CPU time {cpu1:.2f} s)")
