@@ -4,6 +4,10 @@
 //! a view (`view`); it holds no numerics and no command-line flags.
 
 pub mod ic50;
+pub mod km;
+pub mod mode;
+pub mod onset;
+pub mod rates;
 
 use std::io::IsTerminal;
 

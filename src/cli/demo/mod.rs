@@ -9,7 +9,8 @@ mod plan_stage;
 
 use chain::{IC50_CSV, ki_rank_stage};
 
-use super::{OutputArgs, ic50, ki, km, mode, rates};
+use super::{OutputArgs, ic50, ki};
+use crate::batch::{km, mode};
 use crate::error::Result;
 use crate::io::{Format, Table};
 use crate::plot::html::{Page, Section};
@@ -73,9 +74,9 @@ fn onset_stage(sections: &mut Vec<Section>) -> Result<()> {
     );
     println!("  $ kimech onset {path}\n");
     let table = Table::parse(path, ONSET_CURVES.as_bytes(), b',')?;
-    let outcome = super::onset::process(&table, &super::onset::default_args(path))?;
+    let outcome = crate::batch::onset::process(&table, &crate::batch::onset::Settings::default())?;
     print!("{}", crate::view::onset::human(&outcome.results()));
-    sections.push(super::onset::report_section(&outcome, &format!("kimech onset {path}"))?);
+    sections.push(outcome.section(&format!("kimech onset {path}"))?);
     super::finish(&outcome.failures, outcome.pairs.len() + outcome.failures.len(), "compounds")
 }
 
@@ -98,15 +99,7 @@ fn rates_stage(sections: &mut Vec<Section>) -> Result<Table> {
     println!("Stage 1 — progress curves → initial rates");
     println!("  $ kimech rates demo-compounds/progress-curves.csv --format csv -o rates.csv\n");
     let input = Table::parse("demo-compounds/progress-curves.csv", PROGRESS_CURVES.as_bytes(), b',')?;
-    let args = rates::Args {
-        file: "demo-compounds/progress-curves.csv".into(),
-        min_points: 4,
-        curvature_alpha: 0.05,
-        max_conversion: 0.1,
-        confidence: crate::report::DEFAULT_CONFIDENCE,
-        output: stdout_table(),
-    };
-    let outcome = rates::process(&input, &args)?;
+    let outcome = crate::batch::rates::process(&input, &crate::batch::rates::Settings::default())?;
     let text = String::from_utf8_lossy(&crate::view::rates::render(&outcome.table, Format::Table)?).into_owned();
     print!("{text}");
     println!();
@@ -123,18 +116,12 @@ fn rates_stage(sections: &mut Vec<Section>) -> Result<Table> {
 fn km_stage(rate_table: &Table, sections: &mut Vec<Section>) -> Result<()> {
     println!("Stage 2 — initial rates → Km, Vmax, kcat");
     println!("  $ kimech km rates.csv --enzyme \"5 nM\"\n");
-    let args = km::Args {
-        file: "rates.csv".into(),
-        substrate_unit: None,
-        enzyme: crate::units::ConcentrationArg::parse("5 nM").ok(),
-        weighting: km::WeightingArg::None,
-        confidence: crate::report::DEFAULT_CONFIDENCE,
-        output: stdout_table(),
-        pictures: super::PictureArgs::default(),
-    };
-    let outcome = km::process(rate_table, &args)?;
+    let settings =
+        km::Settings { enzyme: crate::units::ConcentrationArg::parse("5 nM").ok(), ..km::Settings::default() };
+    let outcome = km::process(rate_table, &settings)?;
     print!("{}", crate::view::km::human(&outcome.results));
-    sections.push(crate::plot::km::section(&outcome.results, &outcome.failures, &km::command_line(&args))?);
+    let command = km::command_line("rates.csv", &settings);
+    sections.push(crate::plot::km::section(&outcome.results, &outcome.failures, &command)?);
     super::finish(&outcome.failures, outcome.total, "series")
 }
 
@@ -156,19 +143,9 @@ fn difficult_mode_stage(sections: &mut Vec<Section>) -> Result<()> {
 /// Runs `mode` on one bundled file, prints the table and adds the report section.
 fn mode_file_stage(sections: &mut Vec<Section>, path: &str, text: &str) -> Result<()> {
     let table = crate::io::Table::parse(path, text.as_bytes(), b',')?;
-    let args = mode::Args {
-        file: path.into(),
-        substrate_unit: None,
-        inhibitor_unit: None,
-        weighting: km::WeightingArg::None,
-        choice: super::ModelChoiceArgs::default(),
-        output: stdout_table(),
-        pictures: super::PictureArgs::default(),
-    };
-    let outcome = mode::analyse_with_matrices(&table, &args)?;
-    let results: Vec<_> = outcome.pairs.iter().map(|(r, _)| r.clone()).collect();
-    print!("{}", crate::view::mode::human(&results));
-    sections.push(mode::report_section(&outcome, &format!("kimech mode {path}"))?);
+    let outcome = mode::process(&table, &mode::Settings::default())?;
+    print!("{}", crate::view::mode::human(&outcome.results()));
+    sections.push(outcome.section(&format!("kimech mode {path}"))?);
     super::finish(&outcome.failures, outcome.total, "compounds")
 }
 

@@ -41,16 +41,7 @@ pub fn plan_stage(matrix_csv: &str, sections: &mut Vec<crate::plot::html::Sectio
     };
     let outcome = compute(&args)?;
     let table = crate::io::Table::parse("demo-compounds/rate-matrix.csv", matrix_csv.as_bytes(), b',')?;
-    let mode_args = crate::cli::mode::Args {
-        file: "demo-compounds/rate-matrix.csv".into(),
-        substrate_unit: None,
-        inhibitor_unit: None,
-        weighting: crate::cli::km::WeightingArg::None,
-        choice: crate::cli::ModelChoiceArgs::default(),
-        output: OutputArgs { format: crate::io::Format::Table, output: None },
-        pictures: crate::cli::PictureArgs::default(),
-    };
-    let found = crate::cli::mode::analyse_with_matrices(&table, &mode_args)?;
+    let found = crate::batch::mode::process(&table, &crate::batch::mode::Settings::default())?;
     // The compounds of the demo matrix and the mechanism each was made with.
     let made = [
         ("KX-205", "none"),
