@@ -4,6 +4,7 @@
 //! a view (`view`); it holds no numerics and no command-line flags.
 
 pub mod ic50;
+pub mod ki;
 pub mod km;
 pub mod mode;
 pub mod onset;

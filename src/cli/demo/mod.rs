@@ -9,7 +9,7 @@ mod plan_stage;
 
 use chain::{IC50_CSV, ki_rank_stage};
 
-use super::{OutputArgs, ic50, ki};
+use super::ic50;
 use crate::batch::{km, mode};
 use crate::error::Result;
 use crate::io::{Format, Table};
@@ -42,10 +42,6 @@ pub struct Args {
     /// Write the HTML report here (default: kimech-demo-report.html in the current directory).
     #[arg(long, value_name = "FILE")]
     pub report: Option<PathBuf>,
-}
-
-fn stdout_table() -> OutputArgs {
-    OutputArgs { format: Format::Table, output: None }
 }
 
 /// Runs the demo.
@@ -201,26 +197,4 @@ fn raw_and_normalised_agree(name: &str, normalised: &ic50::Args) -> Result<Strin
         percent.len(),
         crate::io::output::sig(worst, 2)
     ))
-}
-
-/// `kimech ki NAME` with every default: conditions come from the table.
-pub fn ki_args(name: &str) -> ki::Args {
-    ki::Args {
-        file: name.to_string(),
-        substrate: None,
-        km: None,
-        km_se: None,
-        enzyme: None,
-        mechanism: ki::MechanismArg::Unknown,
-        alpha: None,
-        assay: ki::AssayArg::Enzyme,
-        ligand: None,
-        kd: None,
-        unit: crate::units::ConcUnit::Nanomolar,
-        ic50_unit: None,
-        conc_unit: None,
-        hill_tolerance: 0.5,
-        confidence: crate::report::DEFAULT_CONFIDENCE,
-        output: stdout_table(),
-    }
 }
