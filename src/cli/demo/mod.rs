@@ -9,7 +9,7 @@ mod plan_stage;
 
 use chain::{IC50_CSV, ki_rank_stage};
 
-use super::ic50;
+use crate::batch::ic50;
 use crate::batch::{km, mode};
 use crate::error::Result;
 use crate::io::{Format, Table};
@@ -153,14 +153,15 @@ fn dose_response_stage_into(sections: &mut Vec<Section>) -> Result<(String, Resu
     println!("\nStage 4 — dose-response plates → IC50, Hill coefficient, quality flags (Z′ per plate)");
     println!("  $ kimech ic50 {name} --normalise");
     println!("  $ kimech ic50 {name} --normalise --format csv -o {IC50_CSV}\n");
-    let mut args = ic50::Args::new(name, Format::Table);
-    args.normalise = true;
-    let (human, summary, pictures) = ic50::run_bytes_with_pictures(name, DOSE_RESPONSE.as_bytes(), &args)?;
+    let mut settings = ic50::Settings::defaults(Format::Table);
+    settings.read.normalise = true;
+    let mut pictures = ic50::Pictures::new(name, None, None);
+    let (human, summary) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &settings, Some(&mut pictures))?;
     print!("{}", String::from_utf8_lossy(&human));
     sections.push(pictures.section(&format!("kimech ic50 {name} --normalise"))?);
-    args.output.format = Format::Csv;
-    let (csv, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &args)?;
-    println!("{}", raw_and_normalised_agree(name, &args)?);
+    settings.format = Format::Csv;
+    let (csv, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &settings, None)?;
+    println!("{}", raw_and_normalised_agree(name, &settings)?);
     Ok((String::from_utf8_lossy(&csv).into_owned(), summary.into_result()))
 }
 
@@ -168,18 +169,18 @@ fn dose_response_stage_into(sections: &mut Vec<Section>) -> Result<(String, Resu
 /// calls and IC50s agree with the % activity run: per plate, % activity is an
 /// affine map of the signal, which moves the asymptotes but not the IC50 or
 /// the call (the engine is scale-free).
-fn raw_and_normalised_agree(name: &str, normalised: &ic50::Args) -> Result<String> {
-    let results = |args: &ic50::Args| -> Result<Vec<serde_json::Value>> {
-        let (json, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), args)?;
+fn raw_and_normalised_agree(name: &str, normalised: &ic50::Settings) -> Result<String> {
+    let results = |settings: &ic50::Settings| -> Result<Vec<serde_json::Value>> {
+        let (json, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), settings, None)?;
         let doc: serde_json::Value =
             serde_json::from_slice(&json).map_err(|e| crate::error::Error::Serialise(e.to_string()))?;
         Ok(doc["results"].as_array().cloned().unwrap_or_default())
     };
-    let mut args = normalised.clone();
-    args.output.format = Format::Json;
-    let percent = results(&args)?;
-    args.normalise = false;
-    let raw = results(&args)?;
+    let mut settings = normalised.clone();
+    settings.format = Format::Json;
+    let percent = results(&settings)?;
+    settings.read.normalise = false;
+    let raw = results(&settings)?;
     let mut same_call = 0;
     let mut worst: f64 = 0.0;
     for (p, r) in percent.iter().zip(&raw) {
