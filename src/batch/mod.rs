@@ -8,6 +8,7 @@ pub mod ki;
 pub mod km;
 pub mod mode;
 pub mod onset;
+pub mod plan;
 pub mod rates;
 
 use std::io::IsTerminal;
