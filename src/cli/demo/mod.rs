@@ -85,7 +85,7 @@ fn write_report(path: &std::path::Path, sections: Vec<Section>) -> Result<()> {
             "Each section shows the command that produced it, its tables, warnings and charts.".into(),
         ],
         sections,
-        caution: super::CAUTION.to_string(),
+        caution: crate::view::CAUTION.to_string(),
     };
     crate::io::write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[])
 }
