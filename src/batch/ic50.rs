@@ -45,6 +45,59 @@ pub struct Settings {
     pub thresholds: Thresholds,
 }
 
+impl Settings {
+    /// Every command-line default, writing `format`.
+    pub fn defaults(format: Format) -> Settings {
+        Settings {
+            read: ReadOptions { normalise: false, concentration_unit: None, unit_flag: "--concentration-unit" },
+            format,
+            batch_size: 2048,
+            fix_lower: None,
+            fix_upper: None,
+            enzyme: None,
+            confidence: crate::report::DEFAULT_CONFIDENCE,
+            intervals: IntervalMethod::Wald,
+            outliers: OutlierMode::Exclude,
+            thresholds: Thresholds::default(),
+        }
+    }
+
+    /// Refuses combinations that cannot mean what the user wants (named by their flags).
+    pub fn check(&self) -> Result<()> {
+        let t = &self.thresholds;
+        if let (Some(lower), Some(_)) = (self.fix_lower, self.enzyme) {
+            return Err(Error::Option {
+                option: "--fix-lower".into(),
+                value: lower.to_string(),
+                problem: "the Morrison model (--enzyme) has no lower asymptote; inhibition is complete at saturation"
+                    .into(),
+                expected: "drop --fix-lower, and give % activity (--normalise) or background-subtracted signal".into(),
+            });
+        }
+        let ((upper_min, upper_max), (lower_min, lower_max)) = (t.upper_window, t.lower_window);
+        if !(upper_min < upper_max && lower_min < lower_max) {
+            return Err(Error::Option {
+                option: "--upper-min/--upper-max/--lower-min/--lower-max".into(),
+                value: format!("{upper_min}..{upper_max}, {lower_min}..{lower_max}"),
+                problem: "a plausible window must have its minimum below its maximum".into(),
+                expected: "e.g. --upper-min 70 --upper-max 130 --lower-min -30 --lower-max 100 (the defaults)".into(),
+            });
+        }
+        if t.min_concentrations < 2 || t.min_z_prime >= 1.0 || t.min_z_prime.is_nan() || t.hill_shallow < 0.0 {
+            return Err(Error::Option {
+                option: "thresholds".into(),
+                value: format!(
+                    "--min-concentrations {}, --min-z-prime {}, --hill-shallow {}",
+                    t.min_concentrations, t.min_z_prime, t.hill_shallow
+                ),
+                problem: "a threshold is outside its meaningful range".into(),
+                expected: "use --min-concentrations ≥ 2, --min-z-prime < 1 and --hill-shallow ≥ 0".into(),
+            });
+        }
+        Ok(())
+    }
+}
+
 /// What a run did, for the exit status.
 #[derive(Debug, Clone, Copy, Default)]
 pub struct Summary {
@@ -165,6 +218,38 @@ impl Pictures {
         }
         Ok(())
     }
+}
+
+/// [`run`] after [`Settings::check`], with the note on unused controls:
+/// the whole run as the command does it, on any input.
+pub fn run_checked(
+    input: &Input,
+    settings: &Settings,
+    out: &mut dyn Write,
+    progress: bool,
+    pictures: Option<&mut Pictures>,
+) -> Result<Summary> {
+    settings.check()?;
+    let summary = run(input, settings, out, progress, pictures)?;
+    if summary.unused_controls > 0 {
+        eprintln!(
+            "kimech: note: {} control rows were not used; pass --normalise to turn raw signal into % activity from them",
+            summary.unused_controls
+        );
+    }
+    Ok(summary)
+}
+
+/// [`run_checked`] on in-memory CSV (the demo), returning the output bytes.
+pub fn run_bytes(
+    name: &str,
+    bytes: &'static [u8],
+    settings: &Settings,
+    pictures: Option<&mut Pictures>,
+) -> Result<(Vec<u8>, Summary)> {
+    let mut out = Vec::new();
+    let summary = run_checked(&Input::Bytes(bytes, name.to_string()), settings, &mut out, false, pictures)?;
+    Ok((out, summary))
 }
 
 /// A fitted compound and its line in the output format.

@@ -4,6 +4,12 @@
 //! a view (`view`); it holds no numerics and no command-line flags.
 
 pub mod ic50;
+pub mod ki;
+pub mod km;
+pub mod mode;
+pub mod onset;
+pub mod plan;
+pub mod rates;
 
 use std::io::IsTerminal;
 

@@ -5,9 +5,8 @@
 
 use super::{OutputArgs, parse_flag_concentration, parse_fraction};
 use crate::analysis::ic50::{IntervalMethod, OutlierMode, Thresholds};
-use crate::batch::ic50::{Pictures, Settings, Summary};
-use crate::error::{Error, Result};
-use crate::io::Format;
+use crate::batch::ic50::{Pictures, Settings, run_checked};
+use crate::error::Result;
 use crate::io::ic50::{Input, ReadOptions};
 use crate::io::stream::OutputSink;
 use crate::units::{ConcUnit, ConcentrationArg};
@@ -138,39 +137,6 @@ impl From<OutlierArg> for OutlierMode {
 }
 
 impl Args {
-    /// Arguments for `file` with every default.
-    pub fn new(file: &str, format: Format) -> Args {
-        let defaults = Thresholds::default();
-        Args {
-            file: file.into(),
-            concentration_unit: None,
-            fix_lower: None,
-            fix_upper: None,
-            normalise: false,
-            enzyme: None,
-            confidence: crate::report::DEFAULT_CONFIDENCE,
-            intervals: IntervalArg::Wald,
-            hill_steep: defaults.hill_steep,
-            hill_shallow: defaults.hill_shallow,
-            partial_above: defaults.partial_above,
-            min_inhibition: defaults.min_inhibition,
-            min_r2: defaults.min_r2,
-            min_concentrations: defaults.min_concentrations,
-            min_z_prime: defaults.min_z_prime,
-            outliers: OutlierArg::Exclude,
-            outlier_alpha: defaults.outlier_alpha,
-            max_outliers: defaults.max_outliers,
-            flat_alpha: defaults.flat_alpha,
-            upper_min: defaults.upper_window.0,
-            upper_max: defaults.upper_window.1,
-            lower_min: defaults.lower_window.0,
-            lower_max: defaults.lower_window.1,
-            batch_size: 2048,
-            output: OutputArgs { format, output: None },
-            pictures: super::PictureArgs::default(),
-        }
-    }
-
     fn thresholds(&self) -> Thresholds {
         Thresholds {
             hill_steep: self.hill_steep,
@@ -188,7 +154,8 @@ impl Args {
         }
     }
 
-    fn settings(&self) -> Settings {
+    /// The library's settings from the flags.
+    pub fn settings(&self) -> Settings {
         Settings {
             read: ReadOptions {
                 normalise: self.normalise,
@@ -214,7 +181,8 @@ impl Args {
 
 /// Runs `kimech ic50`.
 pub fn run(args: &Args) -> Result<()> {
-    check_options(args)?;
+    let settings = args.settings();
+    settings.check()?;
     let (input, _spool) = match args.file == "-" && args.normalise {
         // Normalising reads the input twice: stdin is spooled to a file first.
         true => Input::spool_stdin().map(|(input, spool)| (input, Some(spool)))?,
@@ -223,78 +191,10 @@ pub fn run(args: &Args) -> Result<()> {
     let mut sink = OutputSink::create(args.output.output.as_deref(), &[&args.file])?;
     let wanted = args.pictures.plot.is_some() || args.pictures.report.is_some();
     let mut pictures = wanted.then(|| args.pictures());
-    let summary = run_input(&input, args, &mut sink, true, pictures.as_mut())?;
+    let summary = run_checked(&input, &settings, &mut sink, true, pictures.as_mut())?;
     sink.commit()?;
     if let Some(p) = &pictures {
         p.finish()?;
     }
     summary.into_result()
-}
-
-/// The batch run with the notes only a user of the command line needs.
-fn run_input(
-    input: &Input,
-    args: &Args,
-    out: &mut dyn std::io::Write,
-    progress: bool,
-    pictures: Option<&mut Pictures>,
-) -> Result<Summary> {
-    let summary = crate::batch::ic50::run(input, &args.settings(), out, progress, pictures)?;
-    if summary.unused_controls > 0 {
-        eprintln!(
-            "kimech: note: {} control rows were not used; pass --normalise to turn raw signal into % activity from them",
-            summary.unused_controls
-        );
-    }
-    Ok(summary)
-}
-
-/// Option combinations that cannot mean what the user wants.
-fn check_options(args: &Args) -> Result<()> {
-    if let (Some(lower), Some(_)) = (args.fix_lower, args.enzyme) {
-        return Err(Error::Option {
-            option: "--fix-lower".into(),
-            value: lower.to_string(),
-            problem: "the Morrison model (--enzyme) has no lower asymptote; inhibition is complete at saturation"
-                .into(),
-            expected: "drop --fix-lower, and give % activity (--normalise) or background-subtracted signal".into(),
-        });
-    }
-    if !(args.upper_min < args.upper_max && args.lower_min < args.lower_max) {
-        return Err(Error::Option {
-            option: "--upper-min/--upper-max/--lower-min/--lower-max".into(),
-            value: format!("{}..{}, {}..{}", args.upper_min, args.upper_max, args.lower_min, args.lower_max),
-            problem: "a plausible window must have its minimum below its maximum".into(),
-            expected: "e.g. --upper-min 70 --upper-max 130 --lower-min -30 --lower-max 100 (the defaults)".into(),
-        });
-    }
-    if args.min_concentrations < 2 || args.min_z_prime >= 1.0 || args.min_z_prime.is_nan() || args.hill_shallow < 0.0 {
-        return Err(Error::Option {
-            option: "thresholds".into(),
-            value: format!(
-                "--min-concentrations {}, --min-z-prime {}, --hill-shallow {}",
-                args.min_concentrations, args.min_z_prime, args.hill_shallow
-            ),
-            problem: "a threshold is outside its meaningful range".into(),
-            expected: "use --min-concentrations ≥ 2, --min-z-prime < 1 and --hill-shallow ≥ 0".into(),
-        });
-    }
-    Ok(())
-}
-
-/// Runs `ic50` on in-memory CSV (the demo), returning the report bytes.
-pub fn run_bytes(name: &str, bytes: &'static [u8], args: &Args) -> Result<(Vec<u8>, Summary)> {
-    check_options(args)?;
-    let mut out = Vec::new();
-    let summary = run_input(&Input::Bytes(bytes, name.to_string()), args, &mut out, false, None)?;
-    Ok((out, summary))
-}
-
-/// [`run_bytes`], also collecting the pictures (for the demo's report).
-pub fn run_bytes_with_pictures(name: &str, bytes: &'static [u8], args: &Args) -> Result<(Vec<u8>, Summary, Pictures)> {
-    check_options(args)?;
-    let mut out = Vec::new();
-    let mut pictures = args.pictures();
-    let summary = run_input(&Input::Bytes(bytes, name.to_string()), args, &mut out, false, Some(&mut pictures))?;
-    Ok((out, summary, pictures))
 }

@@ -1,6 +1,7 @@
 //! `kimech ki`: IC50 → Ki per row, with the relation, the mechanism behind it,
 //! the assumption checks and an interval. The numbers come from
-//! [`crate::convert`]; this file reads the table, writes the results.
+//! [`crate::convert`], the per-row work from [`crate::batch::ki`]; this file
+//! streams the table through it and writes the results.
 //!
 //! Reads any IC50 table (`compound`, `ic50` with unit in the cell or header
 //! and an optional qualifier) and the CSV that `kimech ic50` writes
@@ -9,15 +10,14 @@
 //! from the command-line defaults otherwise.
 
 use super::{OutputArgs, parse_flag_concentration, parse_fraction};
-use crate::convert::relations::parse_stated;
-use crate::convert::{self, Assay, Mechanism, MechanismSource, Settings};
+use crate::batch::ki::{Plan, Settings};
+use crate::convert::{Assay, Mechanism};
 use crate::error::{Error, Result};
-use crate::io::Table;
 use crate::io::input::Record;
-use crate::io::ki::{CONSUMED, Columns, Defaults, curve_flags, read_row, with_upstream_error};
+use crate::io::ki::Defaults;
 use crate::io::stream::{OutputSink, RowStream};
-use crate::units::{ConcUnit, ConcentrationArg, Qualifier};
-use crate::view::ki::{CSV_KEYS, KiRow, KiValue, RowWriter};
+use crate::units::{ConcUnit, ConcentrationArg};
+use crate::view::ki::RowWriter;
 
 /// Convert IC50 values to Ki (Cheng–Prusoff, with the Morrison tight-binding
 /// correction when Et is known), flagging every assumption the number leans on.
@@ -123,14 +123,14 @@ impl From<AssayArg> for Assay {
 /// column widths need every row).
 pub fn run(args: &Args) -> Result<()> {
     let mut stream = RowStream::open(&args.file)?;
-    let plan = Plan::new(stream.table(), args)?;
+    let plan = Plan::new(stream.table(), &settings(args))?;
     let mut sink = OutputSink::create(args.output.output.as_deref(), &[&args.file])?;
     let mut writer = RowWriter::start(args.output.format, &plan.carried_headers, args.unit, &mut sink)?;
     let (mut total, mut failed) = (0, 0);
     let mut record = Record { line: 0, cells: Vec::new() };
     while stream.next_into(&mut record)? {
         total += 1;
-        let (row, failure) = plan.convert(stream.table(), &record, args);
+        let (row, failure) = plan.convert(stream.table(), &record);
         if let Some(f) = failure {
             eprintln!("kimech: {f}");
             failed += 1;
@@ -142,121 +142,14 @@ pub fn run(args: &Args) -> Result<()> {
     if failed == 0 { Ok(()) } else { Err(Error::Partial { failed, total, what: "rows" }) }
 }
 
-/// Converts every row; rows that fail keep their place with `error` set.
-/// Returns the rows, the headers of the carried columns and the failures.
-pub fn convert_table(table: &Table, args: &Args) -> Result<(Vec<KiRow>, Vec<String>, Vec<Error>)> {
-    let plan = Plan::new(table, args)?;
-    let mut rows = Vec::new();
-    let mut failures = Vec::new();
-    for record in &table.rows {
-        let (row, failure) = plan.convert(table, record, args);
-        rows.push(row);
-        failures.extend(failure);
-    }
-    Ok((rows, plan.carried_headers, failures))
-}
-
-/// What the header says: where each column is and which ones are carried through.
-struct Plan {
-    columns: Columns,
-    carried_cols: Vec<usize>,
-    carried_headers: Vec<String>,
-    settings: Settings,
-}
-
-impl Plan {
-    fn new(table: &Table, args: &Args) -> Result<Plan> {
-        let columns = Columns::find(table)?;
-        let carried_cols: Vec<usize> =
-            (0..table.columns.len()).filter(|&i| !CONSUMED.iter().any(|spec| table.find(spec) == Some(i))).collect();
-        let carried_headers = carried_cols
-            .iter()
-            .map(|&i| {
-                let c = &table.columns[i];
-                if CSV_KEYS.contains(&c.key.as_str()) { format!("input {}", c.header) } else { c.header.clone() }
-            })
-            .collect();
-        let settings =
-            Settings { hill_tolerance: args.hill_tolerance, confidence: args.confidence, ..Settings::default() };
-        Ok(Plan { columns, carried_cols, carried_headers, settings })
-    }
-
-    fn convert(&self, table: &Table, record: &Record, args: &Args) -> (KiRow, Option<Error>) {
-        let carried = self.carried_cols.iter().map(|&i| table.text(record, i).to_string()).collect();
-        convert_row(table, &self.columns, record, args, &self.settings, carried)
-    }
-}
-
-fn convert_row(
-    table: &Table,
-    cols: &Columns,
-    record: &Record,
-    args: &Args,
-    settings: &Settings,
-    carried: Vec<String>,
-) -> (KiRow, Option<Error>) {
-    let compound = table.text(record, cols.compound).to_string();
-    let mechanism = cols
-        .mechanism
-        .and_then(|c| parse_stated(table.text(record, c)).filter(|_| !table.text(record, c).is_empty()))
-        .unwrap_or(args.mechanism.stated());
-    let mut row = KiRow {
-        source: table.source.clone(),
-        row: record.line,
-        confidence: settings.confidence,
-        compound: compound.clone(),
-        ki: KiValue {
-            value: None,
-            unit: args.unit.symbol().into(),
-            qualifier: Qualifier::Equal,
-            low: None,
-            high: None,
-        },
-        pki: None,
-        pki_qualifier: Qualifier::Equal,
-        endpoint: if mechanism == Some(Mechanism::Uncompetitive) { "Kiu" } else { "Ki" },
-        method: "not converted".into(),
-        mechanism: mechanism.map_or("competitive", Mechanism::name),
-        mechanism_source: if mechanism.is_none() { MechanismSource::Assumed } else { MechanismSource::Measured },
-        flags: Vec::new(),
-        error: None,
-        target: cols.target.map(|c| table.text(record, c).to_string()),
-        range: None,
-        interval_method: None,
-        messages: Vec::new(),
-        conditions: String::new(),
-        carried,
+/// The library's settings from the flags.
+pub fn settings(args: &Args) -> Settings {
+    let convert = crate::convert::Settings {
+        hill_tolerance: args.hill_tolerance,
+        confidence: args.confidence,
+        ..Default::default()
     };
-    let outcome = read_row(table, cols, record, &defaults(args)).and_then(|input| {
-        row.conditions = input.described.clone();
-        convert::convert(&input.measurement, &input.conditions, settings).map_err(|p| Error::Data {
-            group: format!(
-                "{}, line {} (compound '{}')",
-                table.source,
-                record.line,
-                crate::report::short_id(&compound)
-            ),
-            problem: p.problem(),
-            expected: p.expected(),
-        })
-    });
-    match outcome {
-        Ok(conversion) => {
-            row.fill(&conversion, args.unit);
-            for (code, message) in curve_flags(table, record) {
-                if !row.flags.contains(&code) {
-                    row.flags.push(code);
-                    row.messages.push(message.to_string());
-                }
-            }
-            (row, None)
-        }
-        Err(e) => {
-            let e = with_upstream_error(table, record, e);
-            row.error = Some(e.to_string());
-            (row, Some(e))
-        }
-    }
+    Settings { defaults: defaults(args), convert, unit: args.unit }
 }
 
 /// The conditions the arguments give for rows that do not.

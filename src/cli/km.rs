@@ -1,10 +1,9 @@
 //! `kimech km`: Michaelis–Menten fits of substrate series.
 
 use super::{CAUTION, OutputArgs, PictureArgs, finish, parse_flag_concentration, parse_fraction};
-use crate::analysis::km::{Enzyme, KmResult, Options, Series, Units, analyse};
-use crate::error::{Error, Result};
-use crate::fit::{FitSettings, Weighting};
-use crate::io::km::{ReadOptions, read};
+use crate::batch::km::{Outcome, Settings, command_line, process};
+use crate::error::Result;
+use crate::fit::Weighting;
 use crate::io::{Table, write_output};
 use crate::units::{ConcUnit, ConcentrationArg};
 use crate::view::km::render;
@@ -59,7 +58,7 @@ impl From<WeightingArg> for Weighting {
 /// Runs `kimech km`.
 pub fn run(args: &Args) -> Result<()> {
     let table = Table::read(&args.file)?;
-    let outcome = process(&table, args)?;
+    let outcome = process(&table, &settings(args))?;
     let bytes = render(&outcome.results, args.output.format)?;
     write_output(args.output.output.as_deref(), &bytes, &[&args.file])?;
     write_pictures(&outcome, args)?;
@@ -78,7 +77,8 @@ fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
         crate::plot::files::write_plots(dir, &files, &[&args.file])?;
     }
     if let Some(path) = &args.pictures.report {
-        let section = crate::plot::km::section(&outcome.results, &outcome.failures, &command_line(args))?;
+        let section =
+            crate::plot::km::section(&outcome.results, &outcome.failures, &command_line(&args.file, &settings(args)))?;
         let page = crate::plot::html::Page {
             title: format!("kimech km — {}", args.file),
             intro: vec![format!("Michaelis–Menten fits of {} series from {}.", outcome.total, args.file)],
@@ -90,63 +90,12 @@ fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
     Ok(())
 }
 
-/// The command line that reproduces this run's numbers, for the report.
-pub fn command_line(args: &Args) -> String {
-    let mut line = format!("kimech km {}", args.file);
-    if let Some(u) = args.substrate_unit {
-        line.push_str(&format!(" --substrate-unit {}", u.symbol()));
-    }
-    if let Some(e) = &args.enzyme {
-        let value = format!("{:.6}", e.unit.from_molar(e.molar));
-        let value = value.trim_end_matches('0').trim_end_matches('.');
-        line.push_str(&format!(" --enzyme \"{value} {}\"", e.unit.symbol()));
-    }
-    match args.weighting {
-        WeightingArg::None => {}
-        WeightingArg::Relative => line.push_str(" --weighting relative"),
-        WeightingArg::Sd => line.push_str(" --weighting sd"),
-    }
-    if (args.confidence - crate::report::DEFAULT_CONFIDENCE).abs() > 1e-12 {
-        line.push_str(&format!(" --confidence {}", args.confidence));
-    }
-    line
-}
-
-/// What one run produced: results for the series that could be fitted and
-/// the errors of those that could not.
-pub struct Outcome {
-    /// Results, in input order.
-    pub results: Vec<KmResult>,
-    /// One error per series that failed.
-    pub failures: Vec<Error>,
-    /// Number of series in the input.
-    pub total: usize,
-}
-
-/// Reads the series from `table` and fits each one.
-pub fn process(table: &Table, args: &Args) -> Result<Outcome> {
-    let read_options =
-        ReadOptions { substrate_unit: args.substrate_unit, sd_required: args.weighting == WeightingArg::Sd };
-    let (series, units) = read(table, &read_options)?;
-    let options = Options {
+/// The library's settings from the flags.
+pub fn settings(args: &Args) -> Settings {
+    Settings {
+        substrate_unit: args.substrate_unit,
+        enzyme: args.enzyme,
         weighting: args.weighting.into(),
         confidence: args.confidence,
-        enzyme: args.enzyme.map(|e| Enzyme { molar: e.molar, unit: e.unit }),
-        settings: FitSettings::default(),
-    };
-    let (results, failures) = analyse_all(&series, &units, &options);
-    Ok(Outcome { results, failures, total: series.len() })
-}
-
-/// Fits every series; failures are collected, not fatal.
-fn analyse_all(series: &[Series], units: &Units, options: &Options) -> (Vec<KmResult>, Vec<Error>) {
-    let mut results = Vec::new();
-    let mut failures = Vec::new();
-    for s in series {
-        match analyse(s, units, options) {
-            Ok(r) => results.push(r),
-            Err(e) => failures.push(e),
-        }
     }
-    (results, failures)
 }

@@ -3,10 +3,11 @@
 
 use super::km::WeightingArg;
 use super::{CAUTION, OutputArgs, finish};
-use crate::analysis::mode::{Criterion, Matrix, ModeResult, Options, Units, analyse};
-use crate::error::{Error, Result};
+use crate::analysis::mode::{Criterion, Options};
+pub use crate::batch::mode::Outcome;
+use crate::batch::mode::{Settings, process};
+use crate::error::Result;
 use crate::fit::FitSettings;
-use crate::io::mode::{ReadOptions, read};
 use crate::io::{Table, write_output};
 use crate::units::ConcUnit;
 use crate::view::mode::render;
@@ -60,46 +61,16 @@ impl From<CriterionArg> for Criterion {
 /// Runs `kimech mode`.
 pub fn run(args: &Args) -> Result<()> {
     let table = Table::read(&args.file)?;
-    let outcome = analyse_with_matrices(&table, args)?;
-    let results: Vec<ModeResult> = outcome.pairs.iter().map(|(r, _)| r.clone()).collect();
-    let bytes = render(&results, args.output.format)?;
+    let outcome = process(&table, &settings(args))?;
+    let bytes = render(&outcome.results(), args.output.format)?;
     write_output(args.output.output.as_deref(), &bytes, &[&args.file])?;
     write_pictures(&outcome, args)?;
     finish(&outcome.failures, outcome.total, "compounds")
 }
 
-/// A run's results, each with the matrix it was fitted to (for pictures).
-pub struct Outcome {
-    /// (result, matrix) per analysed compound, in input order.
-    pub pairs: Vec<(ModeResult, Matrix)>,
-    /// Units of the matrices.
-    pub units: Units,
-    /// Compounds that could not be read or analysed.
-    pub failures: Vec<Error>,
-    /// Compounds in the input.
-    pub total: usize,
-}
-
-/// Reads and analyses every compound of a table, keeping each compound's
-/// matrix beside its result (for pictures); a compound that fails is a failure, not fatal.
+/// Reads and analyses every compound of a table ([`crate::batch::mode::process`] with the flags' settings).
 pub fn analyse_with_matrices(table: &Table, args: &Args) -> Result<Outcome> {
-    let (matrices, units, mut failures) = read(table, &read_options(args))?;
-    let total = matrices.len() + failures.len();
-    let opts = options(args);
-    let mut pairs = Vec::new();
-    for m in matrices {
-        match analyse(&m, &units, &opts) {
-            Ok(r) => pairs.push((r, m)),
-            Err(e) => failures.push(e),
-        }
-    }
-    Ok(Outcome { pairs, units, failures, total })
-}
-
-/// The report section of a run: per compound its text block and figure.
-pub fn report_section(outcome: &Outcome, command: &str) -> Result<crate::plot::html::Section> {
-    let pairs: Vec<(&ModeResult, &Matrix)> = outcome.pairs.iter().map(|(r, m)| (r, m)).collect();
-    crate::plot::mode::section(&pairs, &outcome.units, &outcome.failures, command)
+    process(table, &settings(args))
 }
 
 /// Writes `--plot` SVGs (one per compound) and the `--report` page.
@@ -117,7 +88,7 @@ fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
         let page = crate::plot::html::Page {
             title: format!("kimech mode — {}", args.file),
             intro: vec![format!("Inhibition mechanism of {} compound(s) from {}.", outcome.total, args.file)],
-            sections: vec![report_section(outcome, &format!("kimech mode {}", args.file))?],
+            sections: vec![outcome.section(&format!("kimech mode {}", args.file))?],
             caution: CAUTION.to_string(),
         };
         write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[&args.file])?;
@@ -136,11 +107,7 @@ pub fn options(args: &Args) -> Options {
     }
 }
 
-/// What the reader needs from the arguments.
-fn read_options(args: &Args) -> ReadOptions {
-    ReadOptions {
-        substrate_unit: args.substrate_unit,
-        inhibitor_unit: args.inhibitor_unit,
-        sd_required: args.weighting == WeightingArg::Sd,
-    }
+/// The library's settings from the flags.
+pub fn settings(args: &Args) -> Settings {
+    Settings { substrate_unit: args.substrate_unit, inhibitor_unit: args.inhibitor_unit, options: options(args) }
 }

@@ -3,9 +3,10 @@
 //! [`crate::analysis::onset`], writes with [`crate::view::onset`].
 
 use super::{OutputArgs, finish, parse_flag_concentration};
-use crate::analysis::onset::{Compound, OnsetResult, Options, RatesPolicy, SubstrateMechanism, analyse};
-use crate::error::{Error, Result};
-use crate::io::onset::{ReadOptions, TimeUnit, read};
+use crate::analysis::onset::{Options, RatesPolicy, SubstrateMechanism};
+use crate::batch::onset::{Outcome, Settings, process};
+use crate::error::Result;
+use crate::io::onset::{ReadOptions, TimeUnit};
 use crate::io::{Table, write_output};
 use crate::units::{ConcUnit, ConcentrationArg};
 
@@ -99,7 +100,7 @@ fn parse_time_unit(text: &str) -> std::result::Result<TimeUnit, String> {
 /// Runs `kimech onset`.
 pub fn run(args: &Args) -> Result<()> {
     let table = Table::read(&args.file)?;
-    let mut outcome = process(&table, args)?;
+    let mut outcome = process(&table, &settings(args))?;
     if outcome.pairs.is_empty() && outcome.failures.len() == 1 {
         return Err(outcome.failures.remove(0));
     }
@@ -109,32 +110,15 @@ pub fn run(args: &Args) -> Result<()> {
     finish(&outcome.failures, outcome.pairs.len() + outcome.failures.len(), "compounds")
 }
 
-/// What one run produced: each compound's input with its result, and the
-/// errors of the compounds that could not be analysed.
-pub struct Outcome {
-    /// Input and result, in input order.
-    pub pairs: Vec<(Compound, OnsetResult)>,
-    /// One error per compound that failed.
-    pub failures: Vec<Error>,
-}
-
-impl Outcome {
-    /// The results alone.
-    pub fn results(&self) -> Vec<OnsetResult> {
-        self.pairs.iter().map(|(_, r)| r.clone()).collect()
-    }
-}
-
-/// Reads the compounds of `table` and analyses each one.
-pub fn process(table: &Table, args: &Args) -> Result<Outcome> {
-    let read_options = ReadOptions {
+/// The library's settings from the flags.
+pub fn settings(args: &Args) -> Settings {
+    let read = ReadOptions {
         inhibitor_unit: args.inhibitor_unit,
         time_unit: args.time_unit,
         substrate: args.substrate.map(|c| c.molar),
         km: args.km.map(|c| c.molar),
         enzyme: args.enzyme.map(|c| c.molar),
     };
-    let input = read(table, &read_options)?;
     let options = Options {
         criterion: args.choice.criterion.into(),
         alpha_level: args.choice.alpha_level,
@@ -143,37 +127,7 @@ pub fn process(table: &Table, args: &Args) -> Result<Outcome> {
         initial_rates: args.initial_rates.into(),
         ..Options::default()
     };
-    let mut outcome = Outcome { pairs: Vec::new(), failures: Vec::new() };
-    for compound in input.compounds {
-        match analyse(&compound, &input.units, &options) {
-            Ok(r) => outcome.pairs.push((compound, r)),
-            Err(e) => outcome.failures.push(e),
-        }
-    }
-    Ok(outcome)
-}
-
-/// The report section of a run (for `--report` and the demo).
-pub fn report_section(outcome: &Outcome, command: &str) -> Result<crate::plot::html::Section> {
-    let pairs: Vec<(&Compound, &OnsetResult)> = outcome.pairs.iter().map(|(c, r)| (c, r)).collect();
-    crate::plot::onset::section(&pairs, &outcome.failures, command)
-}
-
-/// Default arguments for `file` (table output to stdout), as the demo uses them.
-pub fn default_args(file: &str) -> Args {
-    Args {
-        file: file.to_string(),
-        inhibitor_unit: None,
-        time_unit: None,
-        substrate: None,
-        km: None,
-        enzyme: None,
-        mechanism_vs_substrate: MechanismArg::Competitive,
-        initial_rates: RatesArg::Test,
-        choice: super::ModelChoiceArgs::default(),
-        output: OutputArgs { format: crate::io::Format::Table, output: None },
-        pictures: super::PictureArgs::default(),
-    }
+    Settings { read, options }
 }
 
 /// Writes `--plot` SVGs (one per compound) and the `--report` page.
@@ -195,7 +149,7 @@ fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
                 outcome.pairs.len(),
                 args.file
             )],
-            sections: vec![report_section(outcome, &command)?],
+            sections: vec![outcome.section(&command)?],
             caution: crate::view::CAUTION.to_string(),
         };
         write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[&args.file])?;

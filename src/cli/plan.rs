@@ -1,17 +1,16 @@
 //! `kimech plan`: before the experiment, how likely is an [S]×[I] grid to
 //! tell the mechanisms apart, and which grid within a budget would do better.
-//! Parses the flags, runs [`crate::analysis::plan`], writes with
+//! Parses the flags, runs [`crate::batch::plan::compute`], writes with
 //! [`crate::view::plan`] and draws with [`crate::plot::plan`].
 
 use super::{OutputArgs, parse_flag_concentration};
-use crate::analysis::plan::{
-    Constants, Design, Noise, PlanResult, Search, SearchSettings, Settings, plan, search_workload, suggest, workload,
-};
-use crate::batch::CountProgress;
+use crate::analysis::plan::{Noise, SearchSettings, Settings};
+pub use crate::batch::plan::{Levels, parse_levels};
+use crate::batch::plan::{Outcome, Request, compute};
 use crate::error::{Error, Result};
 use crate::io::write_output;
-use crate::units::{ACCEPTED_UNITS, ConcUnit, ConcentrationArg, Qualifier, parse_written};
-use crate::view::plan::{PlanView, render};
+use crate::units::ConcentrationArg;
+use crate::view::plan::render;
 
 /// Predict, by simulation, how often `mode` will name each mechanism on a
 /// planned [S]×[I] grid, how wide the Ki interval will be, and (with
@@ -76,47 +75,9 @@ pub struct Args {
     pub pictures: super::PictureArgs,
 }
 
-/// A list of concentrations with the unit each was written in.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Levels {
-    /// In mol/L, ascending, without duplicates.
-    pub molar: Vec<f64>,
-    /// The unit written (the last one in the list).
-    pub unit: ConcUnit,
-}
-
 fn parse_positive(text: &str) -> std::result::Result<f64, String> {
     let v: f64 = text.trim().parse().map_err(|_| format!("'{text}' is not a number; give a positive one"))?;
     if v.is_finite() && v > 0.0 { Ok(v) } else { Err(format!("{v} is not a positive, finite number")) }
-}
-
-/// Parses "5,10,20 uM" or "5 uM, 10 uM": comma-separated levels; a bare number
-/// takes the unit written last in the list. Every level must be ≥ 0.
-pub fn parse_levels(text: &str) -> std::result::Result<Levels, String> {
-    let items: Vec<&str> = text.split([',', ';']).map(str::trim).collect();
-    let mut written = Vec::new();
-    for (k, item) in items.iter().enumerate() {
-        let w = parse_written(item)
-            .map_err(|p| format!("item {} ('{item}'): {}; expected e.g. \"5,10,20 uM\"", k + 1, p.describe()))?;
-        if w.qualifier != Qualifier::Equal {
-            return Err(format!("item {} ('{item}'): a qualifier makes no sense in a design; give the level", k + 1));
-        }
-        if w.value < 0.0 {
-            return Err(format!("item {} ('{item}') is negative; a concentration must be ≥ 0", k + 1));
-        }
-        written.push(w);
-    }
-    let unit = written.iter().rev().find_map(|w| w.unit).ok_or_else(|| {
-        format!("'{text}' has no unit; write one after the list, e.g. \"{text} uM\" ({ACCEPTED_UNITS})")
-    })?;
-    let mut molar: Vec<f64> = written.iter().map(|w| w.unit.unwrap_or(unit).to_molar(w.value)).collect();
-    molar.sort_by(f64::total_cmp);
-    let before = molar.len();
-    molar.dedup_by(|a, b| (*a - *b).abs() <= 1e-9 * b.abs());
-    if molar.len() < before {
-        return Err(format!("'{text}' lists a level twice; give each level once and set --replicates"));
-    }
-    Ok(Levels { molar, unit })
 }
 
 /// "5%" → proportional 0.05; "0.2" → constant SD 0.2 in rate units.
@@ -142,48 +103,6 @@ pub fn parse_noise(text: &str) -> std::result::Result<Noise, String> {
     }
 }
 
-/// Everything a run produced, for the views.
-pub struct Outcome {
-    /// The plan of the grid given.
-    pub plan: PlanResult,
-    /// The search, with --suggest.
-    pub search: Option<Search>,
-    /// Unit of substrate and Km.
-    pub substrate_unit: ConcUnit,
-    /// Unit of inhibitor and Ki.
-    pub inhibitor_unit: ConcUnit,
-}
-
-impl Outcome {
-    /// The view of this outcome.
-    pub fn view(&self) -> PlanView<'_> {
-        PlanView {
-            plan: &self.plan,
-            search: self.search.as_ref(),
-            substrate_unit: self.substrate_unit.symbol(),
-            inhibitor_unit: self.inhibitor_unit.symbol(),
-        }
-    }
-}
-
-/// A concentration in `unit`, rounded to 12 significant digits so that a
-/// conversion (250 nM → 0.25 uM → 250.00000000000003 nM) prints as written.
-fn in_unit(molar: f64, unit: ConcUnit) -> f64 {
-    let v = unit.from_molar(molar);
-    format!("{v:.11e}").parse().unwrap_or(v)
-}
-
-/// The design in the units of Km and Ki.
-pub fn design(args: &Args) -> Design {
-    let s_unit = args.km.unit;
-    let i_unit = args.ki.unit;
-    Design {
-        substrate: args.substrate.molar.iter().map(|m| in_unit(*m, s_unit)).collect(),
-        inhibitor: args.inhibitor.molar.iter().map(|m| in_unit(*m, i_unit)).collect(),
-        replicates: args.replicates as usize,
-    }
-}
-
 /// The simulation settings from the flags.
 pub fn settings(args: &Args) -> Settings {
     let mode = crate::analysis::mode::Options {
@@ -201,41 +120,34 @@ pub fn settings(args: &Args) -> Settings {
     }
 }
 
-/// Runs the plan (and the search) without writing anything.
-pub fn compute(args: &Args) -> Result<Outcome> {
-    let design = design(args);
-    let constants = Constants {
-        vmax: args.vmax,
-        km: in_unit(args.km.molar, args.km.unit),
-        ki: in_unit(args.ki.molar, args.ki.unit),
-        alpha: args.alpha,
-        partial_beta: args.partial,
-    };
-    let settings = settings(args);
-    let bar = CountProgress::new(workload(&constants, &settings), "simulating");
-    let result = plan(&design, &constants, &settings, &bar);
-    bar.finish();
-    let plan = result?;
+/// The library's request from the flags.
+pub fn request(args: &Args) -> Result<Request> {
     let search = match (args.suggest, args.wells) {
         (true, Some(wells)) => {
-            let search_settings =
-                SearchSettings { wells: wells as usize, screening: args.screening as usize, finalists: 3 };
-            let bar = CountProgress::new(search_workload(&constants, &settings, &search_settings), "searching");
-            let found = suggest(&plan, &settings, &search_settings, &bar);
-            bar.finish();
-            Some(found?)
+            Some(SearchSettings { wells: wells as usize, screening: args.screening as usize, finalists: 3 })
         }
         (true, None) => {
             return Err(Error::Usage("--suggest needs --wells N, the well budget per compound".into()));
         }
         _ => None,
     };
-    Ok(Outcome { plan, search, substrate_unit: args.km.unit, inhibitor_unit: args.ki.unit })
+    Ok(Request {
+        km: args.km,
+        ki: args.ki,
+        alpha: args.alpha,
+        vmax: args.vmax,
+        partial: args.partial,
+        substrate: args.substrate.clone(),
+        inhibitor: args.inhibitor.clone(),
+        replicates: args.replicates as usize,
+        settings: settings(args),
+        search,
+    })
 }
 
 /// Runs `kimech plan`.
 pub fn run(args: &Args) -> Result<()> {
-    let outcome = compute(args)?;
+    let outcome = compute(&request(args)?)?;
     let bytes = render(&outcome.view(), args.output.format)?;
     write_output(args.output.output.as_deref(), &bytes, &[])?;
     write_pictures(&outcome, args)

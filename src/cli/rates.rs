@@ -2,11 +2,10 @@
 //! output feeds `kimech km` (and the rate-matrix command) directly.
 
 use super::{OutputArgs, finish, parse_fraction};
-use crate::analysis::rates::{Options, analyse};
-use crate::error::{Error, Result};
-use crate::io::rates::read;
+use crate::batch::rates::{Settings, process};
+use crate::error::Result;
 use crate::io::{Table, write_output};
-use crate::view::rates::{CarriedResult, RateTable, render};
+use crate::view::rates::render;
 
 /// Initial rates from progress curves: the slope of the longest initial
 /// window that a straight line describes. Other columns (substrate,
@@ -34,44 +33,21 @@ pub struct Args {
     pub output: OutputArgs,
 }
 
-/// What one run produced.
-pub struct Outcome {
-    /// The rates, as the views show them.
-    pub table: RateTable,
-    /// Errors of curves that could not be used.
-    pub failures: Vec<Error>,
-    /// Number of curves.
-    pub total: usize,
-}
-
 /// Runs `kimech rates`.
 pub fn run(args: &Args) -> Result<()> {
     let table = Table::read(&args.file)?;
-    let outcome = process(&table, args)?;
+    let outcome = process(&table, &settings(args))?;
     let bytes = render(&outcome.table, args.output.format)?;
     write_output(args.output.output.as_deref(), &bytes, &[&args.file])?;
     finish(&outcome.failures, outcome.total, "curves")
 }
 
-/// Reads the curves of `table` and finds each one's initial rate.
-pub fn process(table: &Table, args: &Args) -> Result<Outcome> {
-    let input = read(table)?;
-    let options = Options {
+/// The library's settings from the flags.
+pub fn settings(args: &Args) -> Settings {
+    Settings {
         min_points: args.min_points,
         curvature_alpha: args.curvature_alpha,
         max_conversion: args.max_conversion,
         confidence: args.confidence,
-        rate_unit: input.rate_unit.clone(),
-    };
-    let mut results = Vec::new();
-    let mut failures = Vec::new();
-    let total = input.curves.len();
-    for (curve, carried) in input.curves {
-        match analyse(&curve, &options) {
-            Ok(result) => results.push(CarriedResult { result, carried }),
-            Err(e) => failures.push(e),
-        }
     }
-    let table = RateTable { results, carried_headers: input.carried_headers, has_curve_column: input.has_curve_column };
-    Ok(Outcome { table, failures, total })
 }

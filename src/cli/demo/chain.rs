@@ -1,7 +1,8 @@
 //! The demo's last stages: IC50 tables → Ki → one ranked registry table,
 //! each stage's output parsed as the next one's input.
 
-use super::{SECOND_ASSAY, Section, ki, ki_args};
+use super::{SECOND_ASSAY, Section};
+use crate::batch::ki;
 use crate::error::Result;
 
 /// The file name the dose-response stage's CSV is shown under.
@@ -10,21 +11,21 @@ pub(super) const IC50_CSV: &str = "dose-response-ic50.csv";
 /// Stages 5 and 6: IC50 tables (the plates' and a second assay's) → Ki → ranking.
 pub(super) fn ki_rank_stage(ic50_csv: &str, sections: &mut Vec<Section>) -> Result<()> {
     let second = "demo-compounds/second-assay-ic50.csv";
-    ki_and_rank_into(&[(IC50_CSV, ic50_csv, ki_args(IC50_CSV)), (second, SECOND_ASSAY, ki_args(second))], sections)
+    ki_and_rank_into(&[(IC50_CSV, ic50_csv), (second, SECOND_ASSAY)], sections)
 }
 
-/// The `ki` and `rank` stages: each IC50 table (name, CSV text, `ki` options) goes through
-/// `kimech ki` and its CSV output, and all of them together through `kimech rank`,
+/// The `ki` and `rank` stages: each IC50 table (name, CSV text) goes through
+/// `kimech ki` with every default (conditions come from the table) and its CSV output, and all of them together through `kimech rank`,
 /// exactly as a user would pipe them; a report section per stage (the ranking with its charts).
-fn ki_and_rank_into(tables: &[(&str, &str, ki::Args)], sections: &mut Vec<Section>) -> Result<()> {
+fn ki_and_rank_into(tables: &[(&str, &str)], sections: &mut Vec<Section>) -> Result<()> {
     let mut ki_csv = Vec::new();
     let mut failures = Vec::new();
     let mut total = 0;
     println!("\nStage 5 — IC50 tables → Ki (conditions from each table's columns)");
-    for (name, text, args) in tables {
+    for (name, text) in tables {
         println!("\n  $ kimech ki {name}\n");
         let table = crate::io::Table::parse(name, text.as_bytes(), b',')?;
-        let (rows, carried, row_failures) = ki::convert_table(&table, args)?;
+        let (rows, carried, row_failures) = ki::convert_table(&table, &ki::Settings::default())?;
         let human = crate::view::ki::human(&rows);
         print!("{human}");
         sections.push(crate::plot::ki::section(&format!("Ki from {name}"), &rows, &format!("kimech ki {name}")));
@@ -37,7 +38,7 @@ fn ki_and_rank_into(tables: &[(&str, &str, ki::Args)], sections: &mut Vec<Sectio
     }
     let names: Vec<&str> = ki_csv.iter().map(|(n, _)| n.as_str()).collect();
     println!("\nStage 6 — Ki → one ranked, flagged, registry-ready table (selectivity against VRD3)");
-    for ((n, _), (name, _, _)) in ki_csv.iter().zip(tables) {
+    for ((n, _), (name, _)) in ki_csv.iter().zip(tables) {
         println!("  $ kimech ki {name} --format csv -o {n}");
     }
     println!("  $ kimech rank {} --versus VRD3\n", names.join(" "));

@@ -9,7 +9,8 @@ mod plan_stage;
 
 use chain::{IC50_CSV, ki_rank_stage};
 
-use super::{OutputArgs, ic50, ki, km, mode, rates};
+use crate::batch::ic50;
+use crate::batch::{km, mode};
 use crate::error::Result;
 use crate::io::{Format, Table};
 use crate::plot::html::{Page, Section};
@@ -43,10 +44,6 @@ pub struct Args {
     pub report: Option<PathBuf>,
 }
 
-fn stdout_table() -> OutputArgs {
-    OutputArgs { format: Format::Table, output: None }
-}
-
 /// Runs the demo.
 pub fn run(args: &Args) -> Result<()> {
     println!("kimech demo — an invented scenario: the fictional enzyme veridase-7 (VRD7)");
@@ -73,9 +70,9 @@ fn onset_stage(sections: &mut Vec<Section>) -> Result<()> {
     );
     println!("  $ kimech onset {path}\n");
     let table = Table::parse(path, ONSET_CURVES.as_bytes(), b',')?;
-    let outcome = super::onset::process(&table, &super::onset::default_args(path))?;
+    let outcome = crate::batch::onset::process(&table, &crate::batch::onset::Settings::default())?;
     print!("{}", crate::view::onset::human(&outcome.results()));
-    sections.push(super::onset::report_section(&outcome, &format!("kimech onset {path}"))?);
+    sections.push(outcome.section(&format!("kimech onset {path}"))?);
     super::finish(&outcome.failures, outcome.pairs.len() + outcome.failures.len(), "compounds")
 }
 
@@ -88,7 +85,7 @@ fn write_report(path: &std::path::Path, sections: Vec<Section>) -> Result<()> {
             "Each section shows the command that produced it, its tables, warnings and charts.".into(),
         ],
         sections,
-        caution: super::CAUTION.to_string(),
+        caution: crate::view::CAUTION.to_string(),
     };
     crate::io::write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[])
 }
@@ -98,15 +95,7 @@ fn rates_stage(sections: &mut Vec<Section>) -> Result<Table> {
     println!("Stage 1 — progress curves → initial rates");
     println!("  $ kimech rates demo-compounds/progress-curves.csv --format csv -o rates.csv\n");
     let input = Table::parse("demo-compounds/progress-curves.csv", PROGRESS_CURVES.as_bytes(), b',')?;
-    let args = rates::Args {
-        file: "demo-compounds/progress-curves.csv".into(),
-        min_points: 4,
-        curvature_alpha: 0.05,
-        max_conversion: 0.1,
-        confidence: crate::report::DEFAULT_CONFIDENCE,
-        output: stdout_table(),
-    };
-    let outcome = rates::process(&input, &args)?;
+    let outcome = crate::batch::rates::process(&input, &crate::batch::rates::Settings::default())?;
     let text = String::from_utf8_lossy(&crate::view::rates::render(&outcome.table, Format::Table)?).into_owned();
     print!("{text}");
     println!();
@@ -123,18 +112,12 @@ fn rates_stage(sections: &mut Vec<Section>) -> Result<Table> {
 fn km_stage(rate_table: &Table, sections: &mut Vec<Section>) -> Result<()> {
     println!("Stage 2 — initial rates → Km, Vmax, kcat");
     println!("  $ kimech km rates.csv --enzyme \"5 nM\"\n");
-    let args = km::Args {
-        file: "rates.csv".into(),
-        substrate_unit: None,
-        enzyme: crate::units::ConcentrationArg::parse("5 nM").ok(),
-        weighting: km::WeightingArg::None,
-        confidence: crate::report::DEFAULT_CONFIDENCE,
-        output: stdout_table(),
-        pictures: super::PictureArgs::default(),
-    };
-    let outcome = km::process(rate_table, &args)?;
+    let settings =
+        km::Settings { enzyme: crate::units::ConcentrationArg::parse("5 nM").ok(), ..km::Settings::default() };
+    let outcome = km::process(rate_table, &settings)?;
     print!("{}", crate::view::km::human(&outcome.results));
-    sections.push(crate::plot::km::section(&outcome.results, &outcome.failures, &km::command_line(&args))?);
+    let command = km::command_line("rates.csv", &settings);
+    sections.push(crate::plot::km::section(&outcome.results, &outcome.failures, &command)?);
     super::finish(&outcome.failures, outcome.total, "series")
 }
 
@@ -156,19 +139,9 @@ fn difficult_mode_stage(sections: &mut Vec<Section>) -> Result<()> {
 /// Runs `mode` on one bundled file, prints the table and adds the report section.
 fn mode_file_stage(sections: &mut Vec<Section>, path: &str, text: &str) -> Result<()> {
     let table = crate::io::Table::parse(path, text.as_bytes(), b',')?;
-    let args = mode::Args {
-        file: path.into(),
-        substrate_unit: None,
-        inhibitor_unit: None,
-        weighting: km::WeightingArg::None,
-        choice: super::ModelChoiceArgs::default(),
-        output: stdout_table(),
-        pictures: super::PictureArgs::default(),
-    };
-    let outcome = mode::analyse_with_matrices(&table, &args)?;
-    let results: Vec<_> = outcome.pairs.iter().map(|(r, _)| r.clone()).collect();
-    print!("{}", crate::view::mode::human(&results));
-    sections.push(mode::report_section(&outcome, &format!("kimech mode {path}"))?);
+    let outcome = mode::process(&table, &mode::Settings::default())?;
+    print!("{}", crate::view::mode::human(&outcome.results()));
+    sections.push(outcome.section(&format!("kimech mode {path}"))?);
     super::finish(&outcome.failures, outcome.total, "compounds")
 }
 
@@ -180,14 +153,15 @@ fn dose_response_stage_into(sections: &mut Vec<Section>) -> Result<(String, Resu
     println!("\nStage 4 — dose-response plates → IC50, Hill coefficient, quality flags (Z′ per plate)");
     println!("  $ kimech ic50 {name} --normalise");
     println!("  $ kimech ic50 {name} --normalise --format csv -o {IC50_CSV}\n");
-    let mut args = ic50::Args::new(name, Format::Table);
-    args.normalise = true;
-    let (human, summary, pictures) = ic50::run_bytes_with_pictures(name, DOSE_RESPONSE.as_bytes(), &args)?;
+    let mut settings = ic50::Settings::defaults(Format::Table);
+    settings.read.normalise = true;
+    let mut pictures = ic50::Pictures::new(name, None, None);
+    let (human, summary) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &settings, Some(&mut pictures))?;
     print!("{}", String::from_utf8_lossy(&human));
     sections.push(pictures.section(&format!("kimech ic50 {name} --normalise"))?);
-    args.output.format = Format::Csv;
-    let (csv, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &args)?;
-    println!("{}", raw_and_normalised_agree(name, &args)?);
+    settings.format = Format::Csv;
+    let (csv, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), &settings, None)?;
+    println!("{}", raw_and_normalised_agree(name, &settings)?);
     Ok((String::from_utf8_lossy(&csv).into_owned(), summary.into_result()))
 }
 
@@ -195,18 +169,18 @@ fn dose_response_stage_into(sections: &mut Vec<Section>) -> Result<(String, Resu
 /// calls and IC50s agree with the % activity run: per plate, % activity is an
 /// affine map of the signal, which moves the asymptotes but not the IC50 or
 /// the call (the engine is scale-free).
-fn raw_and_normalised_agree(name: &str, normalised: &ic50::Args) -> Result<String> {
-    let results = |args: &ic50::Args| -> Result<Vec<serde_json::Value>> {
-        let (json, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), args)?;
+fn raw_and_normalised_agree(name: &str, normalised: &ic50::Settings) -> Result<String> {
+    let results = |settings: &ic50::Settings| -> Result<Vec<serde_json::Value>> {
+        let (json, _) = ic50::run_bytes(name, DOSE_RESPONSE.as_bytes(), settings, None)?;
         let doc: serde_json::Value =
             serde_json::from_slice(&json).map_err(|e| crate::error::Error::Serialise(e.to_string()))?;
         Ok(doc["results"].as_array().cloned().unwrap_or_default())
     };
-    let mut args = normalised.clone();
-    args.output.format = Format::Json;
-    let percent = results(&args)?;
-    args.normalise = false;
-    let raw = results(&args)?;
+    let mut settings = normalised.clone();
+    settings.format = Format::Json;
+    let percent = results(&settings)?;
+    settings.read.normalise = false;
+    let raw = results(&settings)?;
     let mut same_call = 0;
     let mut worst: f64 = 0.0;
     for (p, r) in percent.iter().zip(&raw) {
@@ -224,26 +198,4 @@ fn raw_and_normalised_agree(name: &str, normalised: &ic50::Args) -> Result<Strin
         percent.len(),
         crate::io::output::sig(worst, 2)
     ))
-}
-
-/// `kimech ki NAME` with every default: conditions come from the table.
-pub fn ki_args(name: &str) -> ki::Args {
-    ki::Args {
-        file: name.to_string(),
-        substrate: None,
-        km: None,
-        km_se: None,
-        enzyme: None,
-        mechanism: ki::MechanismArg::Unknown,
-        alpha: None,
-        assay: ki::AssayArg::Enzyme,
-        ligand: None,
-        kd: None,
-        unit: crate::units::ConcUnit::Nanomolar,
-        ic50_unit: None,
-        conc_unit: None,
-        hill_tolerance: 0.5,
-        confidence: crate::report::DEFAULT_CONFIDENCE,
-        output: stdout_table(),
-    }
 }

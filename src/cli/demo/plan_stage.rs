@@ -1,9 +1,8 @@
 //! The demo's plan stage: what `plan` predicts for the demo's rate-matrix
 //! design, next to what `mode` finds on the bundled matrix.
 
-use crate::analysis::plan::Noise;
-use crate::cli::OutputArgs;
-use crate::cli::plan::{Args, compute, parse_levels};
+use crate::analysis::plan::{Noise, Settings};
+use crate::batch::plan::{Request, compute, parse_levels};
 use crate::error::{Error, Result};
 use crate::units::{ConcUnit, ConcentrationArg};
 
@@ -19,7 +18,9 @@ pub fn plan_stage(matrix_csv: &str, sections: &mut Vec<crate::plot::html::Sectio
                    --sensitivity-simulations 0";
     println!("\nStage 3c — before the experiment: how often should `mode` name each mechanism on this design?");
     println!("  $ {command}\n");
-    let args = Args {
+    let mode = crate::analysis::mode::Options::default();
+    let settings = Settings { simulations: 40, sensitivity_simulations: 0, seed: 1, noise: Noise::Constant(1.5), mode };
+    let request = Request {
         km: ConcentrationArg { molar: 12e-6, unit: ConcUnit::Micromolar },
         ki: ConcentrationArg { molar: 40e-9, unit: ConcUnit::Nanomolar },
         alpha: 6.0,
@@ -28,29 +29,12 @@ pub fn plan_stage(matrix_csv: &str, sections: &mut Vec<crate::plot::html::Sectio
         substrate: parse_levels("2,4,7,12,20,35,60,100 uM").map_err(Error::Usage)?,
         inhibitor: parse_levels("0,20,40,80,160,320 nM").map_err(Error::Usage)?,
         replicates: 2,
-        noise: Noise::Constant(1.5),
-        simulations: 40,
-        sensitivity_simulations: Some(0),
-        seed: 1,
-        suggest: false,
-        wells: None,
-        screening: 30,
-        choice: crate::cli::ModelChoiceArgs::default(),
-        output: OutputArgs { format: crate::io::Format::Table, output: None },
-        pictures: crate::cli::PictureArgs::default(),
+        settings,
+        search: None,
     };
-    let outcome = compute(&args)?;
+    let outcome = compute(&request)?;
     let table = crate::io::Table::parse("demo-compounds/rate-matrix.csv", matrix_csv.as_bytes(), b',')?;
-    let mode_args = crate::cli::mode::Args {
-        file: "demo-compounds/rate-matrix.csv".into(),
-        substrate_unit: None,
-        inhibitor_unit: None,
-        weighting: crate::cli::km::WeightingArg::None,
-        choice: crate::cli::ModelChoiceArgs::default(),
-        output: OutputArgs { format: crate::io::Format::Table, output: None },
-        pictures: crate::cli::PictureArgs::default(),
-    };
-    let found = crate::cli::mode::analyse_with_matrices(&table, &mode_args)?;
+    let found = crate::batch::mode::process(&table, &crate::batch::mode::Settings::default())?;
     // The compounds of the demo matrix and the mechanism each was made with.
     let made = [
         ("KX-205", "none"),
