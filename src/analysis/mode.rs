@@ -258,7 +258,7 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
     let data = build_data(matrix, options)?;
     let i_max = matrix.inhibitor.iter().cloned().fold(0.0, f64::max);
     let fits = fit_all(&data, &options.settings);
-    let ext_fits = fit_extensions(&data, &fits[4], &options.settings);
+    let ext_fits = fit_extensions(&data, &fits[Mechanism::Mixed.index()], &options.settings);
     let fitted: Vec<Fitted> =
         Mechanism::ALL.iter().map(|&m| describe(m, &fits, &data, i_max, units, options)).collect();
     // A model at a limit (a constant → ∞) is the simpler model it reduces to: its SSE is taken as
@@ -277,8 +277,16 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
     };
     let adequacy = adequacy_of(matrix, &data, &fitted[picked].fit, fitted[picked].mechanism.name());
     let best_five = aiccs.iter().flatten().cloned().fold(f64::INFINITY, f64::min);
-    let (extensions, named) =
-        diagnose(matrix, &data, &ext_fits, &fits[4], best_five, adequacy.adequate, units, options);
+    let (extensions, named) = diagnose(
+        matrix,
+        &data,
+        &ext_fits,
+        &fits[Mechanism::Mixed.index()],
+        best_five,
+        adequacy.adequate,
+        units,
+        options,
+    );
     let mut warnings = Vec::new();
     // Range and spacing warnings come only from a model still standing.
     let standing = match named {
@@ -298,12 +306,15 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
             "no-model-adequate".to_string()
         }
     };
-    let alpha_interpretation = interpret_alpha(&fitted[4]);
+    let alpha_interpretation = interpret_alpha(&fitted[Mechanism::Mixed.index()]);
     let plain = named.is_none() && adequacy.adequate;
-    if plain && picked == 4 && fitted[4].params.alpha.as_ref().is_some_and(|a| a.low.is_none() || a.high.is_none()) {
+    if plain
+        && picked == Mechanism::Mixed.index()
+        && fitted[Mechanism::Mixed.index()].params.alpha.as_ref().is_some_and(|a| a.low.is_none() || a.high.is_none())
+    {
         warnings.push(Warning::new(Code::AlphaNotDetermined, alpha_interpretation.clone()));
     }
-    if plain && picked == 0 {
+    if plain && picked == Mechanism::None.index() {
         warnings.push(Warning::new(
             Code::NoInhibitionDetected,
             "the rates do not depend on the inhibitor clearly enough to prefer any inhibition model over none; \
@@ -338,12 +349,16 @@ pub fn analyse(matrix: &Matrix, units: &Units, options: &Options) -> Result<Mode
     if plain {
         warnings.extend(uncertain(&models, picked));
         // Partial inhibition acts through ESI: a call in which no ESI forms (competitive) cannot hide it.
-        let esi = match picked {
-            2 | 3 => true,
-            4 => models[4].limit != Some(Mechanism::Competitive),
+        let esi = match Mechanism::at(picked) {
+            Some(Mechanism::Uncompetitive | Mechanism::Noncompetitive) => true,
+            Some(Mechanism::Mixed) => models[picked].limit != Some(Mechanism::Competitive),
             _ => false,
         };
-        let residual_p = if esi { residual_activity_p(&data, &ext_fits[0], &fits[4], &options.settings) } else { None };
+        let residual_p = if esi {
+            residual_activity_p(&data, &ext_fits[0], &fits[Mechanism::Mixed.index()], &options.settings)
+        } else {
+            None
+        };
         warnings.extend(partial_hint(&extensions, residual_p));
     }
     let headline = match named {

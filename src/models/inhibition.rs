@@ -55,6 +55,17 @@ impl Mechanism {
         Mechanism::Mixed,
     ];
 
+    /// The position of the mechanism in [`Mechanism::ALL`], which is also its
+    /// place in every per-model list of a result (fits, model results).
+    pub const fn index(self) -> usize {
+        self as usize
+    }
+
+    /// The mechanism at `index` in [`Mechanism::ALL`].
+    pub fn at(index: usize) -> Option<Mechanism> {
+        Mechanism::ALL.get(index).copied()
+    }
+
     /// The model's name as printed and serialised.
     pub fn name(self) -> &'static str {
         match self {
@@ -475,6 +486,14 @@ impl Model for ExtensionLaw {
 
 #[cfg(test)]
 mod tests {
+
+    #[test]
+    fn each_mechanism_knows_its_place_in_the_list() {
+        for (i, m) in Mechanism::ALL.iter().enumerate() {
+            assert_eq!((m.index(), Mechanism::at(i)), (i, Some(*m)));
+        }
+        assert_eq!(Mechanism::at(Mechanism::ALL.len()), None);
+    }
     use super::*;
     use approx::assert_relative_eq;
 

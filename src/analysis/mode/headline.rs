@@ -16,6 +16,7 @@
 //!   the most-weighted plausible model that has it).
 //! * `mechanism-uncertain`: see [`uncertain`].
 
+use crate::models::inhibition::Mechanism;
 use crate::report::Code;
 use serde::Serialize;
 
@@ -198,20 +199,22 @@ pub fn from_five(models: &[ModelResult], chosen: usize) -> Headline {
 /// choice the data do not make. Rates of firing on right and wrong calls are
 /// measured in tests/mode_uncertainty.rs and stated in the README.
 pub fn uncertain(models: &[ModelResult], chosen: usize) -> Option<Warning> {
-    let (simpler, fuller) = match chosen {
-        0 => return None,
-        4 => {
-            let one = (1..4).max_by(|&a, &b| models[a].weight.total_cmp(&models[b].weight))?;
-            (one, 4)
+    let mixed = Mechanism::Mixed.index();
+    let (simpler, fuller) = match Mechanism::at(chosen) {
+        None | Some(Mechanism::None) => return None,
+        Some(Mechanism::Mixed) => {
+            let one_constant = Mechanism::Competitive.index()..mixed;
+            let one = one_constant.max_by(|&a, &b| models[a].weight.total_cmp(&models[b].weight))?;
+            (one, mixed)
         }
-        k => (k, 4),
+        Some(_) => (chosen, mixed),
     };
     let (s, f) = (&models[simpler], &models[fuller]);
     let (_, p) = extra_sum_of_squares(s.sse, s.df, f.sse, f.df)?;
     if !(GREY_ZONE.0..GREY_ZONE.1).contains(&p) {
         return None;
     }
-    let lean = if chosen == 4 {
+    let lean = if chosen == mixed {
         format!("mixed improves on {} only modestly (F test p = {})", s.model, sig(p, 2))
     } else {
         format!("mixed improves on {} more than chance would usually allow (F test p = {})", s.model, sig(p, 2))
@@ -226,8 +229,8 @@ pub fn uncertain(models: &[ModelResult], chosen: usize) -> Option<Warning> {
             GREY_ZONE.1,
             models[chosen].model,
             sig(models[chosen].weight, 2),
-            models[if chosen == 4 { simpler } else { fuller }].model,
-            sig(models[if chosen == 4 { simpler } else { fuller }].weight, 2)
+            models[if chosen == mixed { simpler } else { fuller }].model,
+            sig(models[if chosen == mixed { simpler } else { fuller }].weight, 2)
         ),
     ))
 }
