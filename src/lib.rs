@@ -16,6 +16,7 @@ pub mod error;
 pub mod fit;
 pub mod io;
 pub mod models;
+pub mod page;
 pub mod plot;
 pub mod report;
 pub mod units;

@@ -221,7 +221,7 @@ fn km_report_holds_tables_warnings_and_one_figure_per_series() {
     assert!(html.contains("Michaelis–Menten fit — series treated"));
     assert!(html.contains("kcat/Km"));
     assert!(html.contains("<table>\n<thead>") && html.contains("Km") && html.contains("profile"));
-    assert!(html.contains(&kimech::plot::html::escape(kimech::cli::CAUTION)));
+    assert!(html.contains(&kimech::page::escape(kimech::cli::CAUTION)));
     assert!(html.contains("for display only"));
 }
 

@@ -181,20 +181,20 @@ impl Pictures {
         }
         if let Some(path) = &self.report {
             let input = &self.input;
-            let page = crate::plot::html::Page {
+            let page = crate::page::Page {
                 title: format!("kimech ic50 — {input}"),
                 intro: vec![format!("Dose-response fits of {} compound(s) from {input}.", self.gallery.total)],
                 sections: vec![self.section(&format!("kimech ic50 {input}"))?],
                 caution: crate::view::CAUTION.to_string(),
             };
-            crate::io::write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[input])?;
+            crate::io::write_output(Some(path), crate::page::render(&page).as_bytes(), &[input])?;
         }
         Ok(())
     }
 
     /// The report section of what was collected.
-    pub fn section(&self, command: &str) -> Result<crate::plot::html::Section> {
-        crate::plot::ic50::section(&self.gallery, self.plates.as_ref(), &self.failures, command)
+    pub fn section(&self, command: &str) -> Result<crate::page::Section> {
+        crate::page::ic50::section(&self.gallery, self.plates.as_ref(), &self.failures, command)
     }
 
     /// Hands a fitted batch over (the curves only when kept).

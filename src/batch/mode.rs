@@ -38,10 +38,10 @@ impl Outcome {
         self.pairs.iter().map(|(r, _)| r.clone()).collect()
     }
 
-    /// The report section of the run ([`crate::plot::mode::section`]): per compound its text block and figure.
-    pub fn section(&self, command: &str) -> Result<crate::plot::html::Section> {
+    /// The report section of the run ([`crate::page::mode::section`]): per compound its text block and figure.
+    pub fn section(&self, command: &str) -> Result<crate::page::Section> {
         let pairs: Vec<(&ModeResult, &Matrix)> = self.pairs.iter().map(|(r, m)| (r, m)).collect();
-        crate::plot::mode::section(&pairs, &self.units, &self.failures, command)
+        crate::page::mode::section(&pairs, &self.units, &self.failures, command)
     }
 }
 

@@ -30,10 +30,10 @@ impl Outcome {
         self.pairs.iter().map(|(_, r)| r.clone()).collect()
     }
 
-    /// The report section of the run ([`crate::plot::onset::section`]).
-    pub fn section(&self, command: &str) -> Result<crate::plot::html::Section> {
+    /// The report section of the run ([`crate::page::onset::section`]).
+    pub fn section(&self, command: &str) -> Result<crate::page::Section> {
         let pairs: Vec<(&Compound, &OnsetResult)> = self.pairs.iter().map(|(c, r)| (c, r)).collect();
-        crate::plot::onset::section(&pairs, &self.failures, command)
+        crate::page::onset::section(&pairs, &self.failures, command)
     }
 }
 

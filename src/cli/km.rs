@@ -78,14 +78,14 @@ fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
     }
     if let Some(path) = &args.pictures.report {
         let section =
-            crate::plot::km::section(&outcome.results, &outcome.failures, &command_line(&args.file, &settings(args)))?;
-        let page = crate::plot::html::Page {
+            crate::page::km::section(&outcome.results, &outcome.failures, &command_line(&args.file, &settings(args)))?;
+        let page = crate::page::Page {
             title: format!("kimech km — {}", args.file),
             intro: vec![format!("Michaelis–Menten fits of {} series from {}.", outcome.total, args.file)],
             sections: vec![section],
             caution: CAUTION.to_string(),
         };
-        write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[&args.file])?;
+        write_output(Some(path), crate::page::render(&page).as_bytes(), &[&args.file])?;
     }
     Ok(())
 }

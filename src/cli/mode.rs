@@ -85,13 +85,13 @@ fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
         crate::plot::files::write_plots(dir, &files, &[&args.file])?;
     }
     if let Some(path) = &args.pictures.report {
-        let page = crate::plot::html::Page {
+        let page = crate::page::Page {
             title: format!("kimech mode — {}", args.file),
             intro: vec![format!("Inhibition mechanism of {} compound(s) from {}.", outcome.total, args.file)],
             sections: vec![outcome.section(&format!("kimech mode {}", args.file))?],
             caution: CAUTION.to_string(),
         };
-        write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[&args.file])?;
+        write_output(Some(path), crate::page::render(&page).as_bytes(), &[&args.file])?;
     }
     Ok(())
 }

@@ -142,7 +142,7 @@ fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
     }
     if let Some(path) = &args.pictures.report {
         let command = std::env::args().collect::<Vec<_>>().join(" ");
-        let page = crate::plot::html::Page {
+        let page = crate::page::Page {
             title: format!("kimech onset — {}", args.file),
             intro: vec![format!(
                 "Time-dependent inhibition of {} compound(s) from {}.",
@@ -152,7 +152,7 @@ fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
             sections: vec![outcome.section(&command)?],
             caution: crate::view::CAUTION.to_string(),
         };
-        write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[&args.file])?;
+        write_output(Some(path), crate::page::render(&page).as_bytes(), &[&args.file])?;
     }
     Ok(())
 }

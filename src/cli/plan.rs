@@ -161,13 +161,13 @@ fn write_pictures(outcome: &Outcome, args: &Args) -> Result<()> {
     }
     if let Some(path) = &args.pictures.report {
         let command = std::env::args().collect::<Vec<_>>().join(" ");
-        let page = crate::plot::html::Page {
+        let page = crate::page::Page {
             title: "kimech plan — chance of naming the mechanism".into(),
             intro: vec![crate::view::plan::GUESS_CAUTION.to_string()],
-            sections: vec![crate::plot::plan::section(&view, &command)?],
+            sections: vec![crate::page::plan::section(&view, &command)?],
             caution: crate::view::CAUTION.to_string(),
         };
-        write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[])?;
+        write_output(Some(path), crate::page::render(&page).as_bytes(), &[])?;
     }
     Ok(())
 }

@@ -117,13 +117,13 @@ fn write_pictures(rows: &[RankRow], failures: &[Error], args: &Args, inputs: &[&
         if let Some(v) = &args.versus {
             command.push_str(&format!(" --versus {v}"));
         }
-        let page = crate::plot::html::Page {
+        let page = crate::page::Page {
             title: format!("kimech rank — {}", args.files.join(", ")),
             intro: vec![format!("{} ranked rows from {}.", rows.len(), args.files.join(", "))],
-            sections: vec![crate::plot::rank::section(rows, args.unit, failures, &command)?],
+            sections: vec![crate::page::rank::section(rows, args.unit, failures, &command)?],
             caution: crate::view::CAUTION.to_string(),
         };
-        write_output(Some(path), crate::plot::html::render(&page).as_bytes(), inputs)?;
+        write_output(Some(path), crate::page::render(&page).as_bytes(), inputs)?;
     }
     Ok(())
 }

@@ -15,9 +15,7 @@
 pub mod axis;
 pub mod charts;
 pub mod files;
-pub mod html;
 pub mod ic50;
-pub mod ki;
 pub mod km;
 pub mod mode;
 pub mod onset;

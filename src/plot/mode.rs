@@ -10,7 +10,6 @@
 use std::rc::Rc;
 
 use super::charts::{RatePoint, RateUnits, View, evidence_panel, linear_view, rate_family, residual_panel};
-use super::html::{Block, Section, blocks_of};
 use super::xy::{Layer, XyChart};
 use super::{PANEL, Svg};
 use crate::analysis::mode::{Matrix, ModeResult, ModelResult, Units};
@@ -56,13 +55,14 @@ fn units(u: &Units) -> RateUnits {
     RateUnits { s: u.substrate.clone(), i: u.inhibitor.clone(), v: u.rate.clone() }
 }
 
-fn compound_name(r: &ModeResult) -> String {
+/// How a compound is named in captions: `compound KX-1`, or `all rows`.
+pub fn compound_name(r: &ModeResult) -> String {
     r.compound.clone().map_or("all rows".into(), |c| format!("compound {c}"))
 }
 
 /// The model the curves are drawn with: the chosen one, or the one the
 /// criterion picked when none was adequate.
-fn drawn(r: &ModeResult) -> Option<&ModelResult> {
+pub fn drawn(r: &ModeResult) -> Option<&ModelResult> {
     r.models.iter().find(|m| m.model == r.chosen).or_else(|| r.models.iter().find(|m| m.model == r.adequacy.model))
 }
 
@@ -205,30 +205,6 @@ fn residuals(r: &ModeResult, pts: &[RatePoint], ru: &RateUnits) -> Vec<XyChart> 
 pub fn figure(r: &ModeResult, matrix: &Matrix, u: &Units) -> Result<Svg> {
     let panels = panels(r, matrix, u)?;
     super::figure(&panels, 3, PANEL, &format!("the mode plots of {}", compound_name(r)))
-}
-
-/// The report section of a mode run: per compound the view's parts (the
-/// terminal's lines and model table, as HTML) and its figure.
-pub fn section(results: &[(&ModeResult, &Matrix)], u: &Units, failures: &[Error], command: &str) -> Result<Section> {
-    let all: Vec<&ModeResult> = results.iter().map(|(r, _)| *r).collect();
-    let mut blocks = vec![
-        Block::Paragraph(crate::view::mode::summary_text(&all)),
-        Block::Heading("Summary (compounds with a warning first)".into()),
-        Block::Table(crate::view::mode::summary_grid(&all)),
-    ];
-    for (r, matrix) in results {
-        blocks.extend(blocks_of(&crate::view::mode::parts(r)));
-        blocks.push(Block::Figure {
-            svg: figure(r, matrix, u)?.text,
-            caption: format!(
-                "{}: rates with the {} model's global curves; double-reciprocal, Dixon and Cornish-Bowden views with lines from that model (for reading the mechanism only); Akaike weights; residuals of every model on one scale.",
-                compound_name(r),
-                drawn(r).map_or("chosen", |m| m.model)
-            ),
-        });
-    }
-    blocks.push(Block::Failures(failures.iter().map(|e| e.to_string()).collect()));
-    Ok(Section { heading: "Mechanism".into(), command: Some(command.to_string()), blocks })
 }
 
 #[cfg(test)]

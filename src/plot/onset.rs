@@ -10,7 +10,8 @@ use crate::analysis::onset::{Compound, Onset, OnsetResult};
 use crate::error::Result;
 use crate::io::output::sig;
 
-fn name(r: &OnsetResult) -> String {
+/// How a compound is named in captions and headings.
+pub fn name(r: &OnsetResult) -> String {
     r.compound.clone().unwrap_or_else(|| "all rows".into())
 }
 
@@ -89,34 +90,4 @@ pub fn kobs_panel(r: &OnsetResult) -> XyChart {
 pub fn compound_figure(compound: &Compound, r: &OnsetResult) -> Result<Svg> {
     let panels = [curves_panel(compound, r), kobs_panel(r)];
     super::figure(&panels, 2, PANEL, &format!("the onset plots of {}", name(r)))
-}
-
-/// The report section of an onset run: per compound the constants, the
-/// evidence, warnings and the figure; then the compounds that failed.
-pub fn section(
-    pairs: &[(&Compound, &OnsetResult)],
-    failures: &[crate::error::Error],
-    command: &str,
-) -> Result<super::html::Section> {
-    use super::html::{Block, Section, Table};
-    let mut blocks = Vec::new();
-    for (compound, r) in pairs {
-        blocks.push(Block::Heading(format!("Time-dependent inhibition — {}", name(r))));
-        let (header, rows) = crate::view::onset::constant_table(r);
-        if !rows.is_empty() {
-            blocks.push(Block::Table(Table { header, rows }));
-        }
-        blocks.push(Block::Paragraph(format!("Onset {}; chosen by {}.", r.onset.name(), r.evidence)));
-        blocks.push(Block::Paragraph(format!("Substrate correction: {}.", r.substrate_correction)));
-        blocks.push(Block::Warnings(r.warnings.iter().map(|w| (w.code.to_string(), w.message.clone())).collect()));
-        blocks.push(Block::Figure {
-            svg: compound_figure(compound, r)?.text,
-            caption: format!(
-                "{}: progress curves with the chosen global fit; kobs of each curve's own fit against [I] with the one-step line and the two-step hyperbola (chosen scheme solid).",
-                name(r)
-            ),
-        });
-    }
-    blocks.push(Block::Failures(failures.iter().map(|e| e.to_string()).collect()));
-    Ok(Section { heading: "Time-dependent inhibition".into(), command: Some(command.to_string()), blocks })
 }

@@ -7,12 +7,11 @@
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
-use super::html::{Block, Section, Table};
 use super::style::{self, FONT, INK, MUTED};
 use super::{Axis, Layer, Svg, XyChart};
 use crate::analysis::plan::{Call, PowerRow};
 use crate::error::{Error, Result};
-use crate::view::plan::{PlanView, power_table, sensitivity_text};
+use crate::view::plan::PlanView;
 
 /// Cell size of the heatmap in pixels.
 const CELL: (i32, i32) = (92, 38);
@@ -131,52 +130,4 @@ pub fn figures(view: &PlanView) -> Result<Vec<(String, String)>> {
         files.push(("plan-grid.svg".into(), super::chart(&chart, super::PANEL)?.text));
     }
     Ok(files)
-}
-
-fn table(rows: &[PowerRow]) -> Block {
-    let (header, rows) = power_table(rows);
-    Block::Table(Table { header, rows })
-}
-
-/// The report section of a plan.
-pub fn section(view: &PlanView, command: &str) -> Result<Section> {
-    let p = view.plan;
-    let mut blocks = vec![
-        Block::Paragraph(format!(
-            "{} simulated matrices per mechanism (seed {}), each analysed exactly as `kimech mode` analyses a file. \
-             Mean chance of naming the right mechanism: {:.2}.",
-            p.simulations, p.seed, p.mean_right
-        )),
-        table(&p.power),
-        Block::Figure {
-            svg: heatmap(&p.power, "grid given: share of calls")?.text,
-            caption: "Rows: the mechanism the rates were drawn from; columns: what mode named; outlined: right.".into(),
-        },
-    ];
-    if !p.sensitivity.is_empty() {
-        blocks.push(Block::Heading("If Ki is 3× lower or higher than expected".into()));
-        blocks.push(Block::Paragraph(p.sensitivity.iter().map(sensitivity_text).collect::<Vec<_>>().join("; ")));
-    }
-    if let Some(search) = view.search {
-        blocks.push(Block::Heading(format!("Suggested grids within {} wells", search.wells)));
-        for (k, s) in search.suggestions.iter().enumerate() {
-            blocks.push(Block::Paragraph(format!(
-                "{}. substrate {:?}, inhibitor {:?}, {} replicate(s), {} wells — {}",
-                k + 1,
-                s.substrate,
-                s.inhibitor,
-                s.replicates,
-                s.wells,
-                s.reasons.join("; ")
-            )));
-            blocks.push(table(&s.power));
-        }
-        if let Some(chart) = grids(view) {
-            blocks.push(Block::Figure {
-                svg: super::chart(&chart, super::PANEL)?.text,
-                caption: "The grid given and the best proposal, on log axes.".into(),
-            });
-        }
-    }
-    Ok(Section { heading: "Plan: chance of naming the mechanism".into(), command: Some(command.to_string()), blocks })
 }

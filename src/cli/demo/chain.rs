@@ -28,7 +28,7 @@ fn ki_and_rank_into(tables: &[(&str, &str)], sections: &mut Vec<Section>) -> Res
         let (rows, carried, row_failures) = ki::convert_table(&table, &ki::Settings::default())?;
         let human = crate::view::ki::human(&rows);
         print!("{human}");
-        sections.push(crate::plot::ki::section(&format!("Ki from {name}"), &rows, &format!("kimech ki {name}")));
+        sections.push(crate::page::ki::section(&format!("Ki from {name}"), &rows, &format!("kimech ki {name}")));
         total += rows.len();
         failures.extend(row_failures);
         ki_csv.push((
@@ -55,7 +55,7 @@ fn ki_and_rank_into(tables: &[(&str, &str)], sections: &mut Vec<Section>) -> Res
     let unit = crate::units::ConcUnit::Nanomolar;
     print!("{}", String::from_utf8_lossy(&crate::view::rank::render(&ranked, unit, crate::io::Format::Table)?));
     let command = format!("kimech rank {} --versus VRD3", names.join(" "));
-    sections.push(crate::plot::rank::section(&ranked, unit, &failures, &command)?);
+    sections.push(crate::page::rank::section(&ranked, unit, &failures, &command)?);
     print_registry_excerpt(&ranked, unit)?;
     expected_failures_only(&failures, total)
 }

@@ -13,7 +13,7 @@ use crate::batch::ic50;
 use crate::batch::{km, mode};
 use crate::error::Result;
 use crate::io::{Format, Table};
-use crate::plot::html::{Page, Section};
+use crate::page::{Page, Section};
 
 /// Invented progress curves (see demo-compounds/README.md).
 const PROGRESS_CURVES: &str = include_str!("../../../demo-compounds/progress-curves.csv");
@@ -87,7 +87,7 @@ fn write_report(path: &std::path::Path, sections: Vec<Section>) -> Result<()> {
         sections,
         caution: crate::view::CAUTION.to_string(),
     };
-    crate::io::write_output(Some(path), crate::plot::html::render(&page).as_bytes(), &[])
+    crate::io::write_output(Some(path), crate::page::render(&page).as_bytes(), &[])
 }
 
 /// Stage 1: progress curves → initial rates; returns the rates as the table `km` reads.
@@ -102,7 +102,7 @@ fn rates_stage(sections: &mut Vec<Section>) -> Result<Table> {
     sections.push(Section {
         heading: "Initial rates".into(),
         command: Some("kimech rates demo-compounds/progress-curves.csv --format csv -o rates.csv".into()),
-        blocks: crate::plot::html::blocks_of(&crate::view::rates::parts(&outcome.table)),
+        blocks: crate::page::blocks_of(&crate::view::rates::parts(&outcome.table)),
     });
     super::finish(&outcome.failures, outcome.total, "curves")?;
     Table::parse("rates.csv", &crate::view::rates::render(&outcome.table, Format::Csv)?, b',')
@@ -117,7 +117,7 @@ fn km_stage(rate_table: &Table, sections: &mut Vec<Section>) -> Result<()> {
     let outcome = km::process(rate_table, &settings)?;
     print!("{}", crate::view::km::human(&outcome.results));
     let command = km::command_line("rates.csv", &settings);
-    sections.push(crate::plot::km::section(&outcome.results, &outcome.failures, &command)?);
+    sections.push(crate::page::km::section(&outcome.results, &outcome.failures, &command)?);
     super::finish(&outcome.failures, outcome.total, "series")
 }
 

@@ -12,7 +12,7 @@ use crate::units::{ConcUnit, ConcentrationArg};
 /// printed next to what `mode` finds on the bundled matrix. The noise there is
 /// 4 % of the rate plus 0.3 nM/min and `mode` runs unweighted, so the plan
 /// takes a constant SD of 1.5 nM/min (≈ 4 % of a mid-range rate).
-pub fn plan_stage(matrix_csv: &str, sections: &mut Vec<crate::plot::html::Section>) -> Result<()> {
+pub fn plan_stage(matrix_csv: &str, sections: &mut Vec<crate::page::Section>) -> Result<()> {
     let command = "kimech plan --km \"12 uM\" --ki \"40 nM\" --alpha 6 --vmax 85 --substrate \"2,4,7,12,20,35,60,100 uM\" \
                    --inhibitor \"0,20,40,80,160,320 nM\" --replicates 2 --noise 1.5 --simulations 40 \
                    --sensitivity-simulations 0";
@@ -66,8 +66,8 @@ pub fn plan_stage(matrix_csv: &str, sections: &mut Vec<crate::plot::html::Sectio
         "  (KX-202…204 were measured on this grid scaled to their own constant, α = 6 as KX-204; \
          KX-205 at 0–10 uM, where Ki plays no part.)"
     );
-    let mut section = crate::plot::plan::section(&outcome.view(), command)?;
-    section.blocks.push(crate::plot::html::Block::Table(grid));
+    let mut section = crate::page::plan::section(&outcome.view(), command)?;
+    section.blocks.push(crate::page::Block::Table(grid));
     sections.push(section);
     Ok(())
 }

@@ -3,7 +3,7 @@
 //! row, the relations as footnotes and the notes in words — the same cells as
 //! the terminal table ([`crate::view::ki::ki_table`]).
 
-use super::html::{Block, Section, Table};
+use super::{Block, Section, Table};
 use crate::view::ki::{KiRow, ki_table};
 
 /// The section for one `ki` run over `rows`.

@@ -6,6 +6,17 @@
 //! HTML implies), the fonts are whatever the reader's system has, and there
 //! is no script. Every piece of text from the input (series ids, labels) is
 //! escaped, so an id such as `<b>` shows as written.
+//!
+//! Each command's section is in its own file here, assembled from the views' tables and
+//! text (`crate::view`) and the charts (`crate::plot`, which draws charts only).
+
+pub mod ic50;
+pub mod ki;
+pub mod km;
+pub mod mode;
+pub mod onset;
+pub mod plan;
+pub mod rank;
 
 /// A whole report page.
 #[derive(Debug, Clone, Default)]
@@ -233,7 +244,7 @@ fn render_block(out: &mut String, block: &Block) {
         Block::Warnings(_) | Block::Failures(_) | Block::Notes(_) => {}
         Block::Figure { svg, caption } => {
             out.push_str("<figure>\n");
-            out.push_str(&super::inline(svg));
+            out.push_str(&crate::plot::inline(svg));
             out.push_str(&format!("<figcaption>{}</figcaption>\n</figure>\n", escape(caption)));
         }
     }
