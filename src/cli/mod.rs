@@ -147,7 +147,5 @@ pub fn finish(failures: &[Error], total: usize, what: &'static str) -> Result<()
     if failures.is_empty() { Ok(()) } else { Err(Error::Partial { failed: failures.len(), total, what }) }
 }
 
-pub use crate::io::input::rows_origin;
-
 /// The sentence every human-readable report ends with (held by the views).
 pub use crate::view::CAUTION;

@@ -378,14 +378,6 @@ pub fn rows_source(table: &Table, rows: &[&Record]) -> crate::report::Origin {
     crate::report::Origin::new(&table.source, rows.iter().map(|r| r.line))
 }
 
-/// "line 4" or "lines 4-9": where a group's rows are, for messages.
-pub fn rows_origin(rows: &[&Record]) -> String {
-    match (rows.first(), rows.last()) {
-        (Some(a), Some(b)) => line_span(a.line, b.line),
-        _ => "no rows".into(),
-    }
-}
-
 /// "line 4" or "lines 4-9", from a group's first and last line (for readers
 /// that stream and keep no rows).
 pub fn line_span(first: u64, last: u64) -> String {

@@ -190,7 +190,7 @@ fn read_compound(
         last_line[k] = (t, row.line);
         curves[k].time.push(t);
         curves[k].signal.push(table.number(row, cols.signal)?);
-        curves[k].origin = lines(first_line[k], row.line);
+        curves[k].origin = crate::io::input::line_span(first_line[k], row.line);
     }
     same_on_every_row(table, rows, &[cols.substrate, cols.km, cols.enzyme])?;
     let conditions = conditions(table, cols, rows[0], inhibitor_unit, options)?;
@@ -213,11 +213,6 @@ fn same_on_every_row(table: &Table, rows: &[&Record], cols: &[Option<usize>]) ->
         }
     }
     Ok(())
-}
-
-/// "line 4" or "lines 4-9".
-fn lines(first: u64, last: u64) -> String {
-    if first == last { format!("line {first}") } else { format!("lines {first}-{last}") }
 }
 
 /// The unit of the time column: the header's, else the flag's, else that of

@@ -30,21 +30,14 @@ pub fn section(heading: &str, rows: &[KiRow], command: &str) -> Section {
 fn summary(rows: &[KiRow]) -> String {
     let errors = rows.iter().filter(|r| r.error.is_some()).count();
     let bounds = rows.iter().filter(|r| r.ki.qualifier.is_bound()).count();
-    let mut flags: Vec<(crate::report::Code, usize)> = Vec::new();
-    for code in rows.iter().flat_map(|r| r.flags.iter().copied()) {
-        match flags.iter_mut().find(|(c, _)| *c == code) {
-            Some((_, n)) => *n += 1,
-            None => flags.push((code, 1)),
-        }
-    }
+    let flags = crate::view::tally(rows.iter().flat_map(|r| r.flags.iter().map(|c| c.as_str())));
     let mut text = format!(
         "{} rows: {} converted ({bounds} of them bounds), {errors} without a value.",
         rows.len(),
         rows.len() - errors
     );
     if !flags.is_empty() {
-        let listed: Vec<String> = flags.iter().map(|(c, n)| format!("{c} × {n}")).collect();
-        text.push_str(&format!(" Flags: {}.", listed.join(", ")));
+        text.push_str(&format!(" Flags: {flags}."));
     }
     text
 }

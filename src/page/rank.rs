@@ -51,17 +51,10 @@ fn summary(rows: &[RankRow]) -> String {
     let ranked = rows.iter().filter(|r| r.rank.is_some()).count();
     let bounds = rows.iter().filter(|r| r.qualifier.is_bound()).count();
     let errors = rows.iter().filter(|r| r.error.is_some()).count();
-    let mut flags: Vec<(String, usize)> = Vec::new();
-    for code in rows.iter().flat_map(|r| r.flags.iter().map(|f| f.code.clone())) {
-        match flags.iter_mut().find(|(c, _)| *c == code) {
-            Some((_, n)) => *n += 1,
-            None => flags.push((code, 1)),
-        }
-    }
+    let flags = crate::view::tally(rows.iter().flat_map(|r| r.flags.iter().map(|f| f.code.as_str())));
     let mut text = format!("{} rows: {ranked} ranked, {bounds} bounds, {errors} without a value.", rows.len());
     if !flags.is_empty() {
-        let listed: Vec<String> = flags.iter().map(|(c, n)| format!("{c} × {n}")).collect();
-        text.push_str(&format!(" Flags: {}.", listed.join(", ")));
+        text.push_str(&format!(" Flags: {flags}."));
     }
     text
 }

@@ -39,7 +39,7 @@ macro_rules! codes {
 codes! {
     // rates
     /// The smallest window already curves.
-    CurvedFromStart = "curved-from-start", "the smallest window of points already curves: the initial rate is likely underestimated", "t² term test on the first points (Cornish-Bowden 2012, ch. 1)";
+    CurvedFromStart = "curved-from-start", "the smallest window of points already curves: the initial rate is likely underestimated", "t² term test on the first points (common practice)";
     /// Too much substrate used within the window.
     HighConversion = "high-conversion", "more than the allowed share of the substrate is converted within the smallest window", "common practice (about 10 %)";
     /// Upward curvature.

@@ -16,6 +16,19 @@ pub mod registry;
 pub const CAUTION: &str = "These are research estimates whose validity rests on the stated assumptions \
 (model, weighting, mechanism); follow your laboratory's validated procedures before acting on them.";
 
+/// How often each key occurs, in order of first appearance, written for a
+/// report's summary line: `competitive × 2, mixed × 1` (empty for no keys).
+pub fn tally<'a>(keys: impl IntoIterator<Item = &'a str>) -> String {
+    let mut counts: Vec<(&str, usize)> = Vec::new();
+    for key in keys {
+        match counts.iter_mut().find(|(k, _)| *k == key) {
+            Some((_, n)) => *n += 1,
+            None => counts.push((key, 1)),
+        }
+    }
+    counts.iter().map(|(k, n)| format!("{k} × {n}")).collect::<Vec<_>>().join(", ")
+}
+
 /// A table as text cells: the one builder behind a result's terminal table
 /// and its HTML report table, so the two always show the same thing.
 #[derive(Debug, Clone, Default)]

@@ -346,27 +346,13 @@ pub fn parts(r: &ModeResult) -> Vec<Part> {
 
 /// Counts for the top of a report: compounds, calls and warnings.
 pub fn summary_text(results: &[&ModeResult]) -> String {
-    let mut calls: Vec<(&str, usize)> = Vec::new();
-    let mut codes: Vec<(&str, usize)> = Vec::new();
-    for r in results {
-        count(&mut calls, &r.chosen);
-        for w in &r.warnings {
-            count(&mut codes, w.code.as_str());
-        }
-    }
-    let listed = |v: &[(&str, usize)]| v.iter().map(|(c, n)| format!("{c} × {n}")).collect::<Vec<_>>().join(", ");
-    let mut text = format!("{} compounds. Calls: {}.", results.len(), listed(&calls));
+    let calls = super::tally(results.iter().map(|r| r.chosen.as_str()));
+    let codes = super::tally(results.iter().flat_map(|r| r.warnings.iter().map(|w| w.code.as_str())));
+    let mut text = format!("{} compounds. Calls: {calls}.", results.len());
     if !codes.is_empty() {
-        text.push_str(&format!(" Warnings: {}.", listed(&codes)));
+        text.push_str(&format!(" Warnings: {codes}."));
     }
     text
-}
-
-fn count<'a>(tally: &mut Vec<(&'a str, usize)>, key: &'a str) {
-    match tally.iter_mut().find(|(k, _)| *k == key) {
-        Some((_, n)) => *n += 1,
-        None => tally.push((key, 1)),
-    }
 }
 
 /// One row per compound — call, headline constants, warnings — the compounds
