@@ -255,9 +255,27 @@ pub fn run_bytes(
 /// A fitted compound and its line in the output format.
 type Fitted = (Result<Ic50Result>, Line);
 
+/// A fitted batch on its way from the fitting threads to the writer, with
+/// what the writer needs to know about it.
+struct Done {
+    results: Vec<Fitted>,
+    /// Copies of the curves, when pictures are drawn.
+    kept: Vec<Option<Curve>>,
+    unit: ConcUnit,
+    options: Options,
+    /// Input bytes read once this batch was read (for progress).
+    bytes_read: u64,
+}
+
 /// Reads, fits and writes everything from `input` to `out`; messages about
 /// failed compounds go to stderr as they are met (in input order), and a
 /// progress bar when `progress` and stderr is a terminal.
+///
+/// Three stages overlap: while the thread pool fits batch k and reads batch
+/// k + 1 (one `rayon::join`, on a thread of its own), the calling thread
+/// writes batch k − 1 and frees it. Batches travel in input order through a
+/// channel of depth one, so the output and the messages come out in input
+/// order whatever the thread count, and at most a few batches are in memory.
 pub fn run(
     input: &Input,
     settings: &Settings,
@@ -286,24 +304,69 @@ pub fn run(
     let response_unit =
         if settings.read.normalise { Some("%".to_string()) } else { reader.response_unit().map(str::to_string) };
     let mut bar = Progress::new(progress, input.size());
+    let keep_curves = pictures.is_some();
+    let (sender, receiver) = std::sync::mpsc::sync_channel::<Done>(1);
+    let read = std::thread::scope(|scope| -> Result<()> {
+        let producer = scope.spawn(|| read_and_fit(&mut reader, settings, response_unit, keep_curves, sender));
+        let written = write_all(receiver, &mut writer, &mut summary, &mut bar, &mut pictures);
+        // On a write error the receiver is gone, so the producer stops at its next send.
+        let read = producer.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic));
+        written.and(read)
+    });
+    read?;
+    bar.finish();
+    summary.unused_controls = reader.unused_controls();
+    writer.finish(plates.as_ref().map(|p| p.qc.as_slice()))?;
+    Ok(summary)
+}
+
+/// The reading and fitting stage: batch k + 1 is read while batch k is
+/// fitted; each fitted batch goes to `sender`. Stops at the end of the
+/// input, on a read error (returned), or when the writer has hung up.
+fn read_and_fit(
+    reader: &mut CurveReader,
+    settings: &Settings,
+    response_unit: Option<String>,
+    keep_curves: bool,
+    sender: std::sync::mpsc::SyncSender<Done>,
+) -> Result<()> {
     let batch_size = settings.batch_size.max(1);
     let mut current = reader.next_batch(batch_size)?;
     while !current.is_empty() {
         let unit = reader.unit().unwrap_or(ConcUnit::Molar);
         let options = options(settings, unit, response_unit.clone());
         // Pictures need the curves after the fit: keep a copy only when asked.
-        let kept: Vec<Option<Curve>> = match pictures {
-            Some(_) => current.iter().map(|c| c.as_ref().ok().cloned()).collect(),
-            None => Vec::new(),
+        let kept: Vec<Option<Curve>> = match keep_curves {
+            true => current.iter().map(|c| c.as_ref().ok().cloned()).collect(),
+            false => Vec::new(),
         };
+        let bytes_read = reader.bytes_read();
         let (next, results) =
             rayon::join(|| reader.next_batch(batch_size), || fit_batch(current, &options, settings.format));
-        summary.total += results.len();
-        writer.batch(&results, unit)?;
-        if let Some(pics) = pictures.as_deref_mut() {
-            pics.batch(kept, &results, &options)?;
+        if sender.send(Done { results, kept, unit, options, bytes_read }).is_err() {
+            return Ok(());
         }
-        for (result, _) in results {
+        current = next?;
+    }
+    Ok(())
+}
+
+/// The writing stage: every batch from `receiver`, in order, to the writer,
+/// the pictures and stderr.
+fn write_all(
+    receiver: std::sync::mpsc::Receiver<Done>,
+    writer: &mut StreamWriter,
+    summary: &mut Summary,
+    bar: &mut Progress,
+    pictures: &mut Option<&mut Pictures>,
+) -> Result<()> {
+    for done in receiver {
+        summary.total += done.results.len();
+        writer.batch(&done.results, done.unit)?;
+        if let Some(pics) = pictures.as_deref_mut() {
+            pics.batch(done.kept, &done.results, &done.options)?;
+        }
+        for (result, _) in done.results {
             match result {
                 // A missing unit is a property of the input, not of one compound: stop once.
                 Err(e @ Error::NoUnit { .. }) => return Err(e),
@@ -314,13 +377,9 @@ pub fn run(
                 Ok(_) => {}
             }
         }
-        bar.update(reader.bytes_read());
-        current = next?;
+        bar.update(done.bytes_read);
     }
-    bar.finish();
-    summary.unused_controls = reader.unused_controls();
-    writer.finish(plates.as_ref().map(|p| p.qc.as_slice()))?;
-    Ok(summary)
+    Ok(())
 }
 
 /// The core's options for a batch whose concentrations are in `unit`.
