@@ -43,9 +43,13 @@ const STEP_TOLERANCE: f64 = 1e-11;
 const SLOPE_RANGE: (f64, f64) = (1e-3, 100.0);
 /// IC50 further than this factor outside the tested range is left to the engine.
 const RANGE_FACTOR: f64 = 1e3;
-/// The damped iteration hands over to [`polish`] once the Gauss–Newton step is this small.
-const POLISH_FROM: f64 = 1e-6;
-/// Gauss–Newton steps allowed in [`polish`].
+/// The damped iteration hands over to [`polish`] once the Gauss–Newton step
+/// is this small (Newton converges quadratically from here on nearly every
+/// curve, which saves the damped steps' slow approach)...
+const POLISH_FROM: f64 = 1e-3;
+/// ...and, where Newton could not finish from there, once more at this size.
+const POLISH_RETRY: f64 = 1e-6;
+/// Newton steps allowed in [`polish`].
 const POLISH_STEPS: usize = 8;
 
 /// The linear part for one (ln IC50, h): asymptotes and the projected SSE.
@@ -162,6 +166,73 @@ impl Wells<'_> {
         }
         (Matrix2::new(m00, m01, m01, m11), Vector2::new(g0, g1))
     }
+
+    /// Newton's equations of the projected problem at (a, h): the exact
+    /// Hessian of ½·SSE(a, h) with the asymptotes at their optimum, and the
+    /// gradient −∇ = Jᵀr.
+    ///
+    /// With the model written y = L + D·s (D = upper − lower), the Hessian of
+    /// ½Σw·r² in (a, h, L, D) is Σw(∇f∇fᵀ − r∇²f); eliminating L and D (the
+    /// Schur complement, which is the Hessian of the projected function
+    /// since ∂/∂L = ∂/∂D = 0 at the projection) leaves
+    /// S = A − (P − R)(P − R)ᵀ/Σw(s − s̄)², where A is the centred Gram
+    /// matrix of (∂f/∂a, ∂f/∂h) less Σw·r·D·∂²s, P the centred products of
+    /// those derivatives with s, and R = Σw·r·∂s/∂(a, h). Without the r terms
+    /// this is Kaufman's matrix ([`Self::normal_equations`]); with them the
+    /// iteration converges quadratically rather than linearly, which is what
+    /// the last digits need. Derivatives of s = 1/(1 + e^u), u = h(ln x − a),
+    /// q = s(1 − s): ∂s/∂a = q·h, ∂s/∂h = −q(ln x − a), ∂²s/∂a² = q(1 − 2s)h²,
+    /// ∂²s/∂h² = q(1 − 2s)(ln x − a)², ∂²s/∂a∂h = q − q(1 − 2s)h(ln x − a).
+    fn newton_equations(&self, a: f64, h: f64, s: &[f64], lin: &Linear) -> (Matrix2<f64>, Vector2<f64>) {
+        let n = self.y.len();
+        let (w, y, s, ln_x, positive) = (&self.w[..n], &self.y[..n], &s[..n], &self.ln_x[..n], &self.positive[..n]);
+        let d = lin.upper - lin.lower;
+        let mut sa = [0.0; MAX_POINTS];
+        let mut sh = [0.0; MAX_POINTS];
+        let (sa, sh) = (&mut sa[..n], &mut sh[..n]);
+        let (mut s_sum, mut a_sum, mut h_sum) = (0.0, 0.0, 0.0);
+        let (mut r_a, mut r_h, mut c_aa, mut c_ah, mut c_hh) = (0.0, 0.0, 0.0, 0.0, 0.0);
+        for i in 0..n {
+            if positive[i] {
+                let q = s[i] * (1.0 - s[i]);
+                let t = ln_x[i] - a;
+                let bend = q * (1.0 - 2.0 * s[i]);
+                sa[i] = q * h;
+                sh[i] = -q * t;
+                let wr = w[i] * (y[i] - lin.lower - d * s[i]);
+                r_a += wr * sa[i];
+                r_h += wr * sh[i];
+                c_aa += wr * d * bend * h * h;
+                c_hh += wr * d * bend * t * t;
+                c_ah += wr * d * (q - bend * h * t);
+            } else {
+                (sa[i], sh[i]) = (0.0, 0.0);
+            }
+            s_sum += w[i] * s[i];
+            a_sum += w[i] * sa[i];
+            h_sum += w[i] * sh[i];
+        }
+        let (s_mean, a_mean, h_mean) = (s_sum / self.weight_sum, a_sum / self.weight_sum, h_sum / self.weight_sum);
+        let (mut sss, mut p_a, mut p_h, mut g_aa, mut g_ah, mut g_hh) = (0.0, 0.0, 0.0, 0.0, 0.0, 0.0);
+        for i in 0..n {
+            let ds = s[i] - s_mean;
+            let (fa, fh) = (d * (sa[i] - a_mean), d * (sh[i] - h_mean));
+            sss += w[i] * ds * ds;
+            p_a += w[i] * fa * ds;
+            p_h += w[i] * fh * ds;
+            g_aa += w[i] * fa * fa;
+            g_ah += w[i] * fa * fh;
+            g_hh += w[i] * fh * fh;
+        }
+        let (u_a, u_h) = (p_a - r_a, p_h - r_h);
+        let hessian = Matrix2::new(
+            g_aa - c_aa - u_a * u_a / sss,
+            g_ah - c_ah - u_a * u_h / sss,
+            g_ah - c_ah - u_a * u_h / sss,
+            g_hh - c_hh - u_h * u_h / sss,
+        );
+        (hessian, Vector2::new(d * r_a, d * r_h))
+    }
 }
 
 /// The best (ln IC50, h) of a small grid over the tested range and the
@@ -243,14 +314,24 @@ fn minimise(wells: &Wells, start: (f64, f64), s: &mut [f64]) -> Option<(f64, f64
     let mut lambda = 1e-3;
     let mut trial = [0.0; MAX_POINTS];
     let trial = &mut trial[..s.len()];
+    let mut handover = POLISH_FROM;
     for iteration in 1..=MAX_ITERATIONS {
         let (m, g) = wells.normal_equations(a, h, s, &lin);
         // Converged when the undamped Gauss–Newton step (not the damped one,
         // which is short whenever λ is large) is below tolerance; the
         // gradient gᵀ = Jᵀr is exact with Kaufman's Jacobian.
         let newton = m.try_inverse().map(|inv| inv * g)?;
-        if newton[0].abs() <= POLISH_FROM && newton[1].abs() <= POLISH_FROM * h.abs().max(1.0) {
-            return polish(wells, (a, h, lin), newton, s, trial).map(|(a, h, lin)| (a, h, lin, iteration));
+        if newton[0].abs() <= handover && newton[1].abs() <= handover * h.abs().max(1.0) {
+            match polish(wells, (a, h, lin), s, trial) {
+                Ok((a, h, lin)) => return Some((a, h, lin, iteration)),
+                Err(_) if handover == POLISH_RETRY => return None,
+                // Carry on damped from where Newton stopped (its fractions are in `s`).
+                Err(reached) => {
+                    (a, h, lin) = reached;
+                    handover = POLISH_RETRY;
+                    continue;
+                }
+            }
         }
         loop {
             let mut damped = m;
@@ -278,42 +359,48 @@ fn minimise(wells: &Wells, start: (f64, f64), s: &mut [f64]) -> Option<(f64, f64
 }
 
 /// Near the optimum the SSE changes by less than its rounding error, so the
-/// damped iteration cannot finish the last digits; plain Gauss–Newton steps
-/// can (the engine's polish, likewise). Steps are taken while they shrink
-/// and the SSE stays within rounding; converged once a step is below
-/// [`STEP_TOLERANCE`], declined if the steps stop shrinking before that.
+/// damped iteration cannot finish the last digits; Newton steps on the
+/// projected function ([`Wells::newton_equations`]) can, and converge
+/// quadratically: from the hand-over (a Gauss–Newton step below
+/// [`POLISH_FROM`]) two or three steps reach [`STEP_TOLERANCE`]. Steps are
+/// taken while the Hessian is positive definite, they shrink and the SSE
+/// stays within rounding; otherwise `Err` with the last point reached
+/// (whose fractions are in `s`), for the damped iteration to go on from.
 fn polish(
     wells: &Wells,
     (mut a, mut h, mut lin): (f64, f64, Linear),
-    mut newton: Vector2<f64>,
     s: &mut [f64],
     trial: &mut [f64],
-) -> Option<(f64, f64, Linear)> {
+) -> std::result::Result<(f64, f64, Linear), (f64, f64, Linear)> {
     let tiny =
         |v: &Vector2<f64>, h: f64| v[0].abs() <= STEP_TOLERANCE && v[1].abs() <= STEP_TOLERANCE * h.abs().max(1.0);
+    let mut previous = f64::INFINITY;
     for _ in 0..POLISH_STEPS {
-        if tiny(&newton, h) {
-            return Some((a, h, lin));
+        let (hessian, g) = wells.newton_equations(a, h, s, &lin);
+        let positive_definite = hessian[(0, 0)] > 0.0 && hessian.determinant() > 0.0;
+        let Some(step) = hessian.try_inverse().filter(|_| positive_definite).map(|inv| inv * g) else {
+            return Err((a, h, lin));
+        };
+        if tiny(&step, h) {
+            return Ok((a, h, lin));
         }
-        let (na, nh) = (a + newton[0], h + newton[1]);
-        wells.fractions(na, nh, trial);
-        let c = wells.project(trial)?;
-        if !(c.sse <= lin.sse * (1.0 + 1e-12)) {
-            return None;
-        }
-        (a, h, lin) = (na, nh, c);
-        s.copy_from_slice(trial);
-        let (m, g) = wells.normal_equations(a, h, s, &lin);
-        let next = m.try_inverse().map(|inv| inv * g)?;
-        if !(next.norm() < newton.norm()) {
+        let size = step[0].abs().max(step[1].abs() / h.abs().max(1.0));
+        if !(size < previous) {
             // Stagnated: the steps are at the level of rounding.
-            let close =
-                next[0].abs() <= 1e2 * STEP_TOLERANCE && next[1].abs() <= 1e2 * STEP_TOLERANCE * h.abs().max(1.0);
-            return close.then_some((a, h, lin));
+            return if size <= 1e2 * STEP_TOLERANCE { Ok((a, h, lin)) } else { Err((a, h, lin)) };
         }
-        newton = next;
+        previous = size;
+        let (na, nh) = (a + step[0], h + step[1]);
+        wells.fractions(na, nh, trial);
+        match wells.project(trial) {
+            Some(c) if c.sse <= lin.sse * (1.0 + 1e-12) => {
+                (a, h, lin) = (na, nh, c);
+                s.copy_from_slice(trial);
+            }
+            _ => return Err((a, h, lin)),
+        }
     }
-    tiny(&newton, h).then_some((a, h, lin))
+    Err((a, h, lin))
 }
 
 /// The free four-parameter logistic fit of `data` by variable projection,
@@ -438,7 +525,27 @@ mod tests {
                 assert!((k.sse - e.sse).abs() <= 1e-10 * e.sse);
             }
         }
-        assert!(answered * 100 >= total * 95, "kernel answered {answered} of {total}");
+        assert!(answered * 100 >= total * 99, "kernel answered {answered} of {total}");
+    }
+
+    /// Screening curves — ten 3-fold dilutions, IC50 inside the range, Hill
+    /// 0.7–1.5, noise SD 3 % — are the kernel's job: it must answer nearly
+    /// all of them itself. (Before the Newton polish, about 1 curve in 20 of
+    /// this kind stopped converging linearly short of the tolerance and went
+    /// to the much slower general engine.)
+    #[test]
+    fn answers_nearly_every_screening_curve() {
+        let mut rng = rand::rngs::StdRng::seed_from_u64(13);
+        let dilution: Vec<f64> = (0..10).map(|k| 10000.0 / 3f64.powi(k)).collect();
+        let total = 1000;
+        let answered = (0..total)
+            .filter(|_| {
+                let ic50 = (rng.random_range(3f64.ln()..3000f64.ln())).exp();
+                let (hill, lower) = (rng.random_range(0.7..1.5), rng.random_range(-5.0..10.0));
+                fit_logistic_projected(&curve(&dilution, ic50, hill, lower, 100.0, 3.0, &mut rng)).is_some()
+            })
+            .count();
+        assert!(answered * 1000 >= total * 995, "kernel answered {answered} of {total}");
     }
 
     /// The kernel's one data-driven start is the model's first start, on
