@@ -67,6 +67,8 @@ struct Wells<'a> {
     y: &'a [f64],
     w: &'a [f64],
     weight_sum: f64,
+    /// Every weight is 1 (an unweighted fit).
+    unit_weights: bool,
 }
 
 impl Wells<'_> {
@@ -88,20 +90,33 @@ impl Wells<'_> {
     /// Weighted regression of y on (1, s), centred for accuracy. `None` when
     /// s is (numerically) constant over the wells: the asymptotes are then
     /// not separable.
+    ///
+    /// The projection runs some thirty times per fit, and a screening curve
+    /// is unweighted: that case gets its own copy of the loops without the
+    /// weights (multiplying by 1 is exact, so the two agree to the bit).
     fn project(&self, s: &[f64]) -> Option<Linear> {
+        match self.unit_weights {
+            true => self.project_with::<true>(s),
+            false => self.project_with::<false>(s),
+        }
+    }
+
+    #[inline(always)]
+    fn project_with<const UNIT: bool>(&self, s: &[f64]) -> Option<Linear> {
         let n = self.y.len();
         let (w, y, s) = (&self.w[..n], &self.y[..n], &s[..n]);
+        let weight = |i: usize| if UNIT { 1.0 } else { w[i] };
         let (mut sw, mut yw) = (0.0, 0.0);
         for i in 0..n {
-            sw += w[i] * s[i];
-            yw += w[i] * y[i];
+            sw += weight(i) * s[i];
+            yw += weight(i) * y[i];
         }
         let (s_mean, y_mean) = (sw / self.weight_sum, yw / self.weight_sum);
         let (mut sss, mut ssy) = (0.0, 0.0);
         for i in 0..n {
             let ds = s[i] - s_mean;
-            sss += w[i] * ds * ds;
-            ssy += w[i] * ds * (y[i] - y_mean);
+            sss += weight(i) * ds * ds;
+            ssy += weight(i) * ds * (y[i] - y_mean);
         }
         // s lies in [0, 1], so this bound does not depend on the response scale.
         if !(sss > 1e-20 * self.weight_sum) {
@@ -112,7 +127,7 @@ impl Wells<'_> {
         let mut sse = 0.0;
         for i in 0..n {
             let r = y[i] - lower - span * s[i];
-            sse += w[i] * r * r;
+            sse += weight(i) * r * r;
         }
         sse.is_finite().then_some(Linear { lower, upper: lower + span, sse })
     }
@@ -422,7 +437,11 @@ pub fn fit_logistic_projected(data: &Data<Dose>) -> Option<Fit> {
     if !(weight_sum > 0.0) || data.y.iter().any(|y| !y.is_finite()) {
         return None;
     }
-    let wells = Wells { ln_x: &ln_x[..n], positive: &positive[..n], y: &data.y, w: &data.weights, weight_sum };
+    // Exactly 1, not nearly: only then is leaving the weight out bit-for-bit the same.
+    #[allow(clippy::float_cmp)]
+    let unit_weights = data.weights.iter().all(|&w| w == 1.0);
+    let wells =
+        Wells { ln_x: &ln_x[..n], positive: &positive[..n], y: &data.y, w: &data.weights, weight_sum, unit_weights };
     let mut s = [0.0; MAX_POINTS];
     let s = &mut s[..n];
     let start = best_start(&wells, data, s)?;
@@ -470,7 +489,14 @@ mod tests {
             positive[i] = d.x > 0.0;
             ln_x[i] = if positive[i] { d.ln_x } else { 0.0 };
         }
-        let wells = Wells { ln_x: &ln_x, positive: &positive, y: &data.y, w: &data.weights, weight_sum: n as f64 };
+        let wells = Wells {
+            ln_x: &ln_x,
+            positive: &positive,
+            y: &data.y,
+            w: &data.weights,
+            weight_sum: n as f64,
+            unit_weights: false,
+        };
         let mut s = vec![0.0; n];
         if let Some((a, h)) = best_start(&wells, data, &mut s) {
             wells.fractions(a, h, &mut s);
