@@ -342,29 +342,98 @@ pub struct RenderedRow(Vec<u8>);
 impl RenderedRow {
     /// Renders `cells`.
     pub fn new(cells: &[Cell]) -> RenderedRow {
-        let mut row = Vec::with_capacity(64 + 24 * cells.len());
-        let mut cell = Vec::with_capacity(64);
-        let mut count = 0;
+        let mut row = RowBuilder::with_capacity(64 + 24 * cells.len());
         for c in cells {
-            if count > 0 {
-                row.push(b',');
-            }
-            count += 1;
-            cell.clear();
-            match c {
-                // Digits, sign, point: never quoted.
-                Cell::Number(_) | Cell::Full(_) | Cell::Count(_) => c.write_to(&mut row),
-                Cell::Text(_) => {
-                    c.write_to(&mut cell);
-                    encode_field(&cell, &mut row);
-                }
-            }
+            row.cell(c);
         }
-        if count == 1 && cell.is_empty() {
-            row.extend_from_slice(b"\"\"");
+        row.finish()
+    }
+}
+
+/// Builds a [`RenderedRow`] a cell at a time, each cell written straight
+/// into the row's one buffer (no cell is built and rendered apart): the same
+/// bytes as [`RenderedRow::new`] on the same cells.
+#[derive(Debug, Default)]
+pub struct RowBuilder {
+    row: Vec<u8>,
+    count: usize,
+}
+
+impl RowBuilder {
+    /// An empty row with room for `bytes`.
+    pub fn with_capacity(bytes: usize) -> RowBuilder {
+        RowBuilder { row: Vec::with_capacity(bytes), count: 0 }
+    }
+
+    fn next(&mut self) {
+        if self.count > 0 {
+            self.row.push(b',');
         }
-        row.push(b'\n');
-        RenderedRow(row)
+        self.count += 1;
+    }
+
+    /// A [`Cell`].
+    pub fn cell(&mut self, cell: &Cell) {
+        match cell {
+            Cell::Text(t) => self.text(t),
+            Cell::Number(v) => {
+                self.next();
+                self.row.extend_from_slice(export_number(*v).as_bytes());
+            }
+            Cell::Full(v) => self.full(*v),
+            Cell::Count(n) => self.count(*n),
+        }
+    }
+
+    /// A text cell: guarded against formulas, quoted when it must be.
+    pub fn text(&mut self, text: &str) {
+        self.text_with(|out| out.extend_from_slice(text.as_bytes()));
+    }
+
+    /// A text cell whose bytes `write` appends (UTF-8), guarded and quoted
+    /// as [`RowBuilder::text`] would guard and quote them.
+    pub fn text_with(&mut self, write: impl FnOnce(&mut Vec<u8>)) {
+        self.next();
+        let start = self.row.len();
+        write(&mut self.row);
+        let written = &self.row[start..];
+        let guard = matches!(written.first(), Some(b'=' | b'+' | b'-' | b'@' | b'\t' | b'\r'))
+            && !std::str::from_utf8(written).is_ok_and(is_plain_number);
+        let quote = written.iter().any(|&b| matches!(b, b',' | b'"' | b'\r' | b'\n'));
+        if guard || quote {
+            let mut cell = Vec::with_capacity(written.len() + 1);
+            if guard {
+                cell.push(b'\'');
+            }
+            cell.extend_from_slice(written);
+            self.row.truncate(start);
+            encode_field(&cell, &mut self.row);
+        }
+    }
+
+    /// A number with every digit it has (empty when absent or not finite): never quoted.
+    pub fn full(&mut self, v: Option<f64>) {
+        self.next();
+        if let Some(x) = v.filter(|x| x.is_finite()) {
+            write_shortest(x, &mut self.row);
+        }
+    }
+
+    /// A count (empty when absent).
+    pub fn count(&mut self, n: Option<usize>) {
+        self.next();
+        if let Some(n) = n {
+            self.row.extend_from_slice(itoa::Buffer::new().format(n).as_bytes());
+        }
+    }
+
+    /// The row, with its line end.
+    pub fn finish(mut self) -> RenderedRow {
+        if self.count == 1 && self.row.is_empty() {
+            self.row.extend_from_slice(b"\"\"");
+        }
+        self.row.push(b'\n');
+        RenderedRow(self.row)
     }
 }
 
@@ -593,6 +662,27 @@ mod tests {
             assert_eq!(ours, theirs.into_inner().unwrap());
             assert_eq!(RenderedRow::new(&[Cell::Text(String::from_utf8(one.to_vec()).unwrap())]).0, ours);
         }
+    }
+
+    /// Cells written straight into the row are the cells the csv crate
+    /// writes once guarded: quoting, the guard, and both together.
+    #[test]
+    fn cells_written_in_place_are_guarded_and_quoted_as_the_csv_crate_quotes_them() {
+        let texts = ["plain", "", "=1+2", "-1.5", "-x,y", "a\"b", "@a\nb", "\tcmd", "+3", "é,ü", "-inf"];
+        let mut row = RowBuilder::with_capacity(0);
+        for t in texts {
+            row.text_with(|out| out.extend_from_slice(t.as_bytes()));
+        }
+        row.full(Some(-0.25));
+        row.count(None);
+        let mut theirs = csv::Writer::from_writer(Vec::new());
+        let mut fields: Vec<String> = texts.iter().map(|t| neutralise_formula(t)).collect();
+        fields.extend(["-0.25".to_string(), String::new()]);
+        theirs.write_record(&fields).unwrap();
+        assert_eq!(
+            String::from_utf8(row.finish().0).unwrap(),
+            String::from_utf8(theirs.into_inner().unwrap()).unwrap()
+        );
     }
 
     #[test]
