@@ -110,20 +110,23 @@ pub fn export_number(v: Option<f64>) -> String {
 /// Appends the shortest decimal text that reads back as `x` (finite), laid
 /// out as the standard library's `{}` lays it out — plain digits, never an
 /// exponent (`0.0000001`, `100000000000000000000`, `-0`) — so that every
-/// export prints the same text as before. The digits come from `ryu`
-/// (Adams, PLDI 2018), a tenth of the work of the standard formatter; both
-/// give the shortest round-trip digits, the closest to the value when
-/// several are as short (a test compares them on a million values).
+/// export prints the same text as before. The digits come from `zmij`
+/// (Schubfach: Giulietti, 2020), a small fraction of the work of the
+/// standard formatter; both give the shortest round-trip digits, the
+/// closest to the value when several are as short (a test compares them on
+/// three million values).
 pub fn write_shortest(x: f64, out: &mut Vec<u8>) {
-    let mut buffer = ryu::Buffer::new();
+    let mut buffer = zmij::Buffer::new();
     let text = buffer.format_finite(x).as_bytes();
     if may_tie(x) && tie_in(x, text) {
-        // At an exact tie between two shortest candidates ryu rounds to even
-        // and the standard library rounds up: print those values its way.
+        // At an exact tie between two shortest candidates the formatter may round to even
+        // where the standard library rounds up: print those values its way.
         out.extend_from_slice(format!("{x}").as_bytes());
         return;
     }
-    if !text.contains(&b'e') {
+    // An exponent (`e-7`, `e+300`) is among the last five bytes, if anywhere.
+    let tail = &text[text.len().saturating_sub(5)..];
+    if !tail.iter().fold(false, |e, &b| e | (b == b'e')) {
         // `123.45`, `0.00012` as they are; `100.0` without its `.0`.
         out.extend_from_slice(text.strip_suffix(b".0").unwrap_or(text));
         return;
@@ -148,8 +151,8 @@ pub fn write_shortest(x: f64, out: &mut Vec<u8>) {
     }
 }
 
-/// The significant digits of ryu's text (`d.ddd`, `0.000ddd`, `ddd00.0`,
-/// `d.ddde±k`, with or without a sign), how many, and the place of the
+/// The significant digits of the formatter's text (`d.ddd`, `0.000ddd`, `ddd00.0`,
+/// `d.ddde-k`, `d.ddde+k`, with or without a sign), how many, and the place of the
 /// decimal point: the value is 0.d₁…dₙ × 10^point (no digits for zero).
 fn significant(text: &[u8]) -> ([u8; 32], usize, i32) {
     let text = text.strip_prefix(b"-").unwrap_or(text);
@@ -194,7 +197,7 @@ fn may_tie(x: f64) -> bool {
     m != 0 && -(e + m.trailing_zeros() as i32) <= 25
 }
 
-/// Whether ryu's `text` for `x` rounded an exact tie to even: its last
+/// Whether the formatter's `text` for `x` rounded an exact tie to even: its last
 /// digit is even and x is exactly half-way to the next number of as many
 /// digits. Ties need 16 or more significant digits.
 fn tie_in(x: f64, text: &[u8]) -> bool {
@@ -240,6 +243,7 @@ fn is_tie(x: f64, d: &[u8], point: i32) -> bool {
 fn parse_exponent(text: &[u8]) -> i32 {
     let (sign, digits) = match text.split_first() {
         Some((b'-', rest)) => (-1, rest),
+        Some((b'+', rest)) => (1, rest),
         _ => (1, text),
     };
     sign * digits.iter().fold(0i32, |e, &d| 10 * e + i32::from(d - b'0'))
