@@ -156,11 +156,25 @@ pub fn write_shortest(x: f64, out: &mut Vec<u8>) {
 /// decimal point: the value is 0.d₁…dₙ × 10^point (no digits for zero).
 fn significant(text: &[u8]) -> ([u8; 32], usize, i32) {
     let text = text.strip_prefix(b"-").unwrap_or(text);
+    let mut digits = [0u8; 32];
+    // The scientific form, `d.ddde-k` or `de+k` (d ≠ 0): the digits are there in a row.
+    if let Some(e) = text.iter().rposition(|&b| b == b'e')
+        && (b'1'..=b'9').contains(&text[0])
+        && (e == 1 || (text[1] == b'.' && e - 2 < digits.len() && text[2..e].iter().all(u8::is_ascii_digit)))
+    {
+        let rest = &text[e.min(2)..e];
+        digits[0] = text[0];
+        digits[1..=rest.len()].copy_from_slice(rest);
+        let mut n = 1 + rest.len();
+        while n > 0 && digits[n - 1] == b'0' {
+            n -= 1;
+        }
+        return (digits, n, 1 + parse_exponent(&text[e + 1..]));
+    }
     let (mantissa, exponent) = match text.iter().position(|&b| b == b'e') {
         Some(e) => (&text[..e], parse_exponent(&text[e + 1..])),
         None => (text, 0),
     };
-    let mut digits = [0u8; 32];
     let (mut n, mut point, mut seen_point) = (0usize, 0i32, false);
     for &b in mantissa {
         if b == b'.' {
