@@ -262,28 +262,33 @@ pub fn parse_written(cell: &str) -> Result<Written, CellProblem> {
 /// correctly rounded division gives the correctly rounded value — the same
 /// double `str::parse` gives. Anything else (exponents, units,
 /// qualifiers, spaces, long mantissas) returns `None` for the general parser.
-fn plain_decimal(cell: &str) -> Option<f64> {
+pub(crate) fn plain_decimal(cell: &str) -> Option<f64> {
     const POWERS: [f64; 16] = [1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15];
     let bytes = cell.as_bytes();
     let (negative, bytes) = match bytes.split_first() {
         Some((b'-', rest)) => (true, rest),
         _ => (false, bytes),
     };
-    let (mut mantissa, mut digits, mut decimals, mut point) = (0u64, 0usize, 0usize, false);
-    for &b in bytes {
-        match b {
-            b'0'..=b'9' if digits < 15 => {
-                mantissa = 10 * mantissa + u64::from(b - b'0');
-                digits += 1;
-                decimals += usize::from(point);
-            }
-            b'.' if !point => point = true,
-            _ => return None,
-        }
-    }
-    if digits == 0 {
+    // At most 15 digits and one point; the mantissa then stays below 10^15.
+    if bytes.is_empty() || bytes.len() > 16 {
         return None;
     }
+    let (mut mantissa, mut point) = (0u64, None);
+    for (i, &b) in bytes.iter().enumerate() {
+        let digit = b.wrapping_sub(b'0');
+        if digit < 10 {
+            mantissa = 10 * mantissa + u64::from(digit);
+        } else if b == b'.' && point.is_none() {
+            point = Some(i);
+        } else {
+            return None;
+        }
+    }
+    let digits = bytes.len() - usize::from(point.is_some());
+    if digits == 0 || digits > 15 {
+        return None;
+    }
+    let decimals = point.map_or(0, |p| bytes.len() - 1 - p);
     let value = mantissa as f64 / POWERS[decimals];
     Some(if negative { -value } else { value })
 }

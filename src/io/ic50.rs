@@ -16,7 +16,7 @@ use std::path::PathBuf;
 
 use crate::analysis::ic50::{Carried, Curve, Location, PlateQc, Wells};
 use crate::error::{Error, Result};
-use crate::io::input::{ColumnSpec, Record, Table, line_span};
+use crate::io::input::{ColumnSpec, Record, Row, Table};
 use crate::io::stream::RowStream;
 use crate::units::ConcUnit;
 
@@ -146,7 +146,7 @@ enum Kind {
     Inhibited,
 }
 
-fn kind(table: &Table, row: &Record, col: Option<usize>) -> Result<Kind> {
+fn kind<R: Row + ?Sized>(table: &Table, row: &R, col: Option<usize>) -> Result<Kind> {
     let Some(c) = col else { return Ok(Kind::Sample) };
     let text = table.text(row, c);
     if text.is_empty() {
@@ -217,7 +217,7 @@ pub struct CurveReader<'a> {
     options: ReadOptions,
     /// The reporting unit: header or flag, else that of the first concentration read.
     unit: Option<ConcUnit>,
-    row: Record,
+    /// The stream's current row starts the next block: read it again.
     pending: bool,
     done: bool,
     seen: HashSet<String>,
@@ -251,7 +251,6 @@ impl<'a> CurveReader<'a> {
             layout,
             plates,
             options,
-            row: Record { line: 0, cells: Vec::new() },
             pending: false,
             done: false,
             seen: HashSet::new(),
@@ -291,20 +290,20 @@ impl<'a> CurveReader<'a> {
         let mut batch = Vec::with_capacity(max.min(4096));
         let mut block: Option<Block> = None;
         while batch.len() < max {
-            if !self.pending && (self.done || !self.stream.next_into(&mut self.row)?) {
+            if !self.pending && (self.done || !self.stream.advance()?) {
                 self.done = true;
                 break;
             }
             self.pending = false;
             let table = self.stream.table();
-            let kind = kind(table, &self.row, self.layout.control);
+            let kind = kind(table, &self.stream, self.layout.control);
             if let Ok(Kind::Uninhibited | Kind::Inhibited) = kind {
                 if self.plates.is_none() {
                     self.unused_controls += 1;
                 }
                 continue;
             }
-            let name = table.text(&self.row, self.layout.compound);
+            let name = table.text(&self.stream, self.layout.compound);
             if block.as_ref().is_some_and(|b| b.compound != name) {
                 // This row starts the next block: finish the current one, keep the row.
                 self.pending = true;
@@ -323,7 +322,7 @@ impl<'a> CurveReader<'a> {
                     plates: self.plates,
                     options: &self.options,
                     unit: &mut self.unit,
-                    row: &self.row,
+                    row: &self.stream,
                 };
                 row.add_to(b, kind.err());
             }
@@ -337,7 +336,7 @@ impl<'a> CurveReader<'a> {
     }
 
     fn start(&mut self, compound: String) -> Block {
-        let line = self.row.line;
+        let line = self.stream.line();
         let mut b = Block {
             compound,
             first: line,
@@ -352,7 +351,7 @@ impl<'a> CurveReader<'a> {
         };
         if b.compound.is_empty() {
             b.error = Some(self.stream.table().cell_error(
-                &self.row,
+                &self.stream,
                 self.layout.compound,
                 "empty compound identifier",
                 "every compound well needs a compound; control wells need 'uninhibited' or 'inhibited' in the control column",
@@ -393,11 +392,7 @@ impl<'a> CurveReader<'a> {
             .collect();
         Ok(Curve {
             compound: b.compound,
-            location: Location {
-                file: self.file.clone(),
-                span: format!("{}, {}", self.file, line_span(b.first, b.last)),
-                lines: b.lines,
-            },
+            location: Location { file: self.file.clone(), span: span(&self.file, b.first, b.last), lines: b.lines },
             x: b.x,
             y: b.y,
             carried: Carried(carried),
@@ -413,13 +408,13 @@ struct RowContext<'r> {
     plates: Option<&'r Plates>,
     options: &'r ReadOptions,
     unit: &'r mut Option<ConcUnit>,
-    row: &'r Record,
+    row: &'r RowStream,
 }
 
 impl RowContext<'_> {
     /// Carries its other columns and, unless the block already failed, adds its well.
     fn add_to(&mut self, b: &mut Block, row_error: Option<Error>) {
-        b.last = self.row.line;
+        b.last = self.row.line();
         for (k, column) in self.layout.carried.iter().enumerate() {
             let v = self.table.text(self.row, column.index);
             if !b.carried[k].iter().any(|s| s == v) {
@@ -437,8 +432,8 @@ impl RowContext<'_> {
 
     fn well(&mut self, b: &mut Block) -> Result<()> {
         let (table, layout, row) = (self.table, self.layout, self.row);
-        let c =
-            table.concentration(row, layout.concentration, self.options.concentration_unit, self.options.unit_flag)?;
+        // The header's unit, else the flag's: looked up once, in the layout.
+        let c = table.concentration_in(row, layout.concentration, layout.header_unit, self.options.unit_flag)?;
         if c.qualifier.is_bound() {
             return Err(table.cell_error(
                 row,
@@ -471,7 +466,7 @@ impl RowContext<'_> {
                             "compound '{}' ({}, line {})",
                             crate::report::short_id(&b.compound),
                             self.table.source,
-                            row.line
+                            row.line()
                         ),
                         problem: format!(
                             "plate '{plate}' has {u} uninhibited and {i} inhibited control wells (or no signal window between them)"
@@ -486,9 +481,24 @@ impl RowContext<'_> {
         let reporting = *self.unit.get_or_insert(c.unit);
         b.x.push(reporting.from_molar(c.molar));
         b.y.push(y);
-        b.lines.push(row.line);
+        b.lines.push(row.line());
         Ok(())
     }
+}
+
+/// `file, line 4` or `file, lines 4-9`, as `format!("{file}, {}",
+/// line_span(first, last))` writes it, without the formatting machinery.
+fn span(file: &str, first: u64, last: u64) -> String {
+    let mut digits = itoa::Buffer::new();
+    let mut out = String::with_capacity(file.len() + 32);
+    out.push_str(file);
+    out.push_str(if first == last { ", line " } else { ", lines " });
+    out.push_str(digits.format(first));
+    if first != last {
+        out.push('-');
+        out.push_str(digits.format(last));
+    }
+    out
 }
 
 /// Puts the compound into a cell error's message, so it names compound and line.
@@ -499,5 +509,17 @@ fn with_compound(e: Error, compound: &str) -> Error {
             Error::Cell(cell)
         }
         other => other,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn spans_read_as_line_span_writes_them() {
+        for (first, last) in [(1, 1), (2, 11), (9, 10), (99_999, 1_000_000), (u64::MAX, u64::MAX)] {
+            assert_eq!(span("a.csv", first, last), format!("a.csv, {}", crate::io::input::line_span(first, last)));
+        }
     }
 }

@@ -7,7 +7,7 @@ use std::io::Read;
 
 use super::line_endings::{LineLog, UnifiedLineEndings};
 use crate::error::{CellError, Error, Result};
-use crate::units::{ACCEPTED_UNITS, CellProblem, ConcUnit, Qualifier, parse_written};
+use crate::units::{ACCEPTED_UNITS, CellProblem, ConcUnit, Qualifier, Written, parse_written, plain_decimal};
 
 /// A column a command looks for: its name and other accepted spellings.
 #[derive(Debug, Clone, Copy)]
@@ -61,6 +61,34 @@ pub struct Record {
     pub line: u64,
     /// Cells, trimmed, one per column.
     pub cells: Vec<String>,
+}
+
+/// A data row as the cell accessors read it: its line and its cells, trimmed.
+pub trait Row {
+    /// 1-based line number in the file.
+    fn line(&self) -> u64;
+    /// The text of cell `col` ("" past the end).
+    fn cell(&self, col: usize) -> &str;
+}
+
+impl Row for Record {
+    fn line(&self) -> u64 {
+        self.line
+    }
+
+    fn cell(&self, col: usize) -> &str {
+        self.cells.get(col).map_or("", String::as_str)
+    }
+}
+
+impl<R: Row + ?Sized> Row for &R {
+    fn line(&self) -> u64 {
+        (**self).line()
+    }
+
+    fn cell(&self, col: usize) -> &str {
+        (**self).cell(col)
+    }
 }
 
 /// A whole table in memory.
@@ -187,21 +215,21 @@ impl Table {
     }
 
     /// The raw text of a cell.
-    pub fn text<'a>(&self, row: &'a Record, col: usize) -> &'a str {
-        row.cells.get(col).map_or("", String::as_str)
+    pub fn text<'a, R: Row + ?Sized>(&self, row: &'a R, col: usize) -> &'a str {
+        row.cell(col)
     }
 
     /// A cell error at `row`, `col`.
-    pub fn cell_error(
+    pub fn cell_error<R: Row + ?Sized>(
         &self,
-        row: &Record,
+        row: &R,
         col: usize,
         problem: impl Into<String>,
         expected: impl Into<String>,
     ) -> Error {
         Error::Cell(Box::new(CellError {
             path: self.source.clone(),
-            line: row.line,
+            line: row.line(),
             column: self.columns[col].header.clone(),
             value: self.text(row, col).to_string(),
             problem: problem.into(),
@@ -210,9 +238,13 @@ impl Table {
     }
 
     /// A plain finite number (no qualifier, no unit).
-    pub fn number(&self, row: &Record, col: usize) -> Result<f64> {
+    pub fn number<R: Row + ?Sized>(&self, row: &R, col: usize) -> Result<f64> {
+        let text = self.text(row, col);
+        if let Some(value) = plain_decimal(text) {
+            return Ok(value); // the usual cell, as parse_written reads it, without its Result
+        }
         let expected = "expected a plain number such as 12.5 or 1.2e-3";
-        match parse_written(self.text(row, col)) {
+        match parse_written(text) {
             Ok(w) if w.qualifier == Qualifier::Equal && w.unit.is_none() => Ok(w.value),
             Ok(w) if w.unit.is_some() => Err(self.cell_error(row, col, "a unit is not expected here", expected)),
             Ok(_) => Err(self.cell_error(row, col, "a qualifier is not expected here", expected)),
@@ -221,7 +253,7 @@ impl Table {
     }
 
     /// A number, or `None` for an empty cell.
-    pub fn optional_number(&self, row: &Record, col: usize) -> Result<Option<f64>> {
+    pub fn optional_number<R: Row + ?Sized>(&self, row: &R, col: usize) -> Result<Option<f64>> {
         if self.text(row, col).is_empty() { Ok(None) } else { self.number(row, col).map(Some) }
     }
 
@@ -244,9 +276,9 @@ impl Table {
 
     /// An inhibitor concentration, as every reader of inhibitor levels wants it:
     /// exact (no `<` or `>`) and zero (the uninhibited series) or positive.
-    pub fn inhibitor_concentration(
+    pub fn inhibitor_concentration<R: Row + ?Sized>(
         &self,
-        row: &Record,
+        row: &R,
         col: usize,
         default: Option<ConcUnit>,
         flag: &str,
@@ -266,23 +298,50 @@ impl Table {
     /// A concentration with optional qualifier, in mol/L. The unit comes from
     /// the cell, else the header, else `default` (a command-line flag named
     /// `flag`); with none of these it is an error naming the column.
-    pub fn concentration(
+    pub fn concentration<R: Row + ?Sized>(
         &self,
-        row: &Record,
+        row: &R,
         col: usize,
         default: Option<ConcUnit>,
         flag: &str,
     ) -> Result<Concentration> {
+        self.concentration_or(row, col, || Ok(self.header_unit(col)?.or(default)), flag)
+    }
+
+    /// [`Table::concentration`] for a reader that has already looked up the
+    /// unit of cells without one (`header_unit(col)?.or(default)`), so that
+    /// the header is not parsed again for every row.
+    pub fn concentration_in<R: Row + ?Sized>(
+        &self,
+        row: &R,
+        col: usize,
+        unit: Option<ConcUnit>,
+        flag: &str,
+    ) -> Result<Concentration> {
+        self.concentration_or(row, col, || Ok(unit), flag)
+    }
+
+    fn concentration_or<R: Row + ?Sized>(
+        &self,
+        row: &R,
+        col: usize,
+        unit_if_none: impl FnOnce() -> Result<Option<ConcUnit>>,
+        flag: &str,
+    ) -> Result<Concentration> {
         let expected = || format!("expected a concentration such as '150 nM' or '> 10 uM' (units: {ACCEPTED_UNITS})");
-        let written = parse_written(self.text(row, col)).map_err(|p| match p {
-            CellProblem::UnknownUnit(_) => {
-                self.cell_error(row, col, p.describe(), format!("use one of {ACCEPTED_UNITS}"))
-            }
-            _ => self.cell_error(row, col, p.describe(), expected()),
-        })?;
+        let text = self.text(row, col);
+        let written = match plain_decimal(text) {
+            Some(value) => Written { qualifier: Qualifier::Equal, value, unit: None },
+            None => parse_written(text).map_err(|p| match p {
+                CellProblem::UnknownUnit(_) => {
+                    self.cell_error(row, col, p.describe(), format!("use one of {ACCEPTED_UNITS}"))
+                }
+                _ => self.cell_error(row, col, p.describe(), expected()),
+            })?,
+        };
         let unit = match written.unit {
             Some(u) => u,
-            None => match self.header_unit(col)?.or(default) {
+            None => match unit_if_none()? {
                 Some(u) => u,
                 None => {
                     return Err(Error::NoUnit {

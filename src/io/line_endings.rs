@@ -29,22 +29,29 @@ pub struct UnifiedLineEndings<R> {
     after_cr: bool,
     /// Bytes handed out so far.
     offset: u64,
-    log: LineLog,
+    /// Where the line ends go, for a parser that does not count lines itself.
+    log: Option<LineLog>,
 }
 
 impl<R: Read> UnifiedLineEndings<R> {
     /// Wraps `inner`; `log` learns where the lines end.
     pub fn new(inner: R, log: LineLog) -> Self {
-        UnifiedLineEndings { inner, after_cr: false, offset: 0, log }
+        UnifiedLineEndings { inner, after_cr: false, offset: 0, log: Some(log) }
+    }
+
+    /// Wraps `inner` for a reader that counts its lines itself (no log kept).
+    pub fn unlogged(inner: R) -> Self {
+        UnifiedLineEndings { inner, after_cr: false, offset: 0, log: None }
     }
 
     /// Rewrites `buf` in place, returning how many bytes remain.
     fn unify(&mut self, buf: &mut [u8]) -> usize {
         if !self.after_cr && memchr::memchr(b'\r', buf).is_none() {
             // Nothing to rewrite (the usual case, LF files): only log the line ends.
-            let ends = memchr::memchr_iter(b'\n', buf).map(|i| self.offset + i as u64).collect();
+            if let Some(log) = &self.log {
+                log.push(memchr::memchr_iter(b'\n', buf).map(|i| self.offset + i as u64).collect());
+            }
             self.offset += buf.len() as u64;
-            self.log.push(ends);
             return buf.len();
         }
         let mut kept = 0;
@@ -55,7 +62,7 @@ impl<R: Read> UnifiedLineEndings<R> {
             self.after_cr = byte == b'\r';
             if !dropped {
                 let unified = if byte == b'\r' { b'\n' } else { byte };
-                if unified == b'\n' {
+                if unified == b'\n' && self.log.is_some() {
                     ends.push(self.offset + kept as u64);
                 }
                 buf[kept] = unified;
@@ -63,7 +70,9 @@ impl<R: Read> UnifiedLineEndings<R> {
             }
         }
         self.offset += kept as u64;
-        self.log.push(ends);
+        if let Some(log) = &self.log {
+            log.push(ends);
+        }
         kept
     }
 }

@@ -17,7 +17,7 @@ use crate::analysis::ic50::{Ic50Result, PlateQc};
 use crate::error::{Error, Result};
 use crate::io::Format;
 use crate::io::ic50::CarriedColumn;
-use crate::io::output::{Cell, CsvExport, RenderedRow, new_grid, qualifier_cell, sig};
+use crate::io::output::{Cell, CsvExport, RenderedRow, RowBuilder, new_grid, sig, write_shortest};
 use crate::report::Param;
 use crate::report::code::{Code, joined};
 use crate::units::{ConcUnit, Qualifier, for_people, potency};
@@ -64,11 +64,68 @@ pub enum Part {
     High,
 }
 
+/// A CSV cell of a result, borrowing what it can from it, so that a row is
+/// written straight into its buffer with nothing allocated per cell.
+pub enum Piece<'r> {
+    /// Text (guarded against formulas, quoted when it must be).
+    Text(&'r str),
+    /// Text made for the cell.
+    Made(String),
+    /// Flag codes joined by `;` (a text cell).
+    Codes(&'r [Code]),
+    /// A number with every digit it has; empty when absent or not finite.
+    Full(Option<f64>),
+    /// A count.
+    Count(usize),
+    /// An IC50 (or Ki,app): the number, or its bound as written (`>10000`).
+    Qualified(Qualifier, f64),
+}
+
+impl Piece<'_> {
+    /// Appends the cell to `row`.
+    pub fn write_to(&self, row: &mut RowBuilder) {
+        match self {
+            Piece::Text(t) => row.text(t),
+            Piece::Made(t) => row.text(t),
+            Piece::Codes(codes) => row.text_with(|out| {
+                for (k, c) in codes.iter().enumerate() {
+                    if k > 0 {
+                        out.push(b';');
+                    }
+                    out.extend_from_slice(c.as_str().as_bytes());
+                }
+            }),
+            Piece::Full(v) => row.full(*v),
+            Piece::Count(n) => row.count(Some(*n)),
+            Piece::Qualified(Qualifier::Equal, v) => row.full(Some(*v)),
+            Piece::Qualified(q, v) => row.text_with(|out| {
+                out.extend_from_slice(q.symbol().as_bytes());
+                if v.is_finite() {
+                    write_shortest(*v, out);
+                }
+            }),
+        }
+    }
+
+    /// The cell as a [`Cell`] (for writers of whole rows).
+    pub fn cell(&self) -> Cell {
+        match self {
+            Piece::Text(t) => Cell::Text(t.to_string()),
+            Piece::Made(t) => Cell::Text(t.clone()),
+            Piece::Codes(codes) => Cell::Text(joined(codes, ";")),
+            Piece::Full(v) => Cell::Full(*v),
+            Piece::Count(n) => Cell::Count(Some(*n)),
+            Piece::Qualified(Qualifier::Equal, v) => Cell::Full(Some(*v)),
+            Piece::Qualified(q, v) => Cell::Text(format!("{}{}", q.symbol(), Cell::Full(Some(*v)).render())),
+        }
+    }
+}
+
 /// How a row fills a column.
 #[derive(Clone, Copy)]
 pub enum Value {
     /// A cell made from the result.
-    Cell(fn(&Ic50Result) -> Cell),
+    Cell(for<'r> fn(&'r Ic50Result) -> Piece<'r>),
     /// One number of a parameter (empty when the parameter is absent).
     Param(fn(&Ic50Result) -> Option<&Param>, Part),
 }
@@ -107,7 +164,7 @@ pub struct Column {
 }
 
 impl Column {
-    const fn cell(name: &'static str, value: fn(&Ic50Result) -> Cell) -> Column {
+    const fn cell(name: &'static str, value: for<'r> fn(&'r Ic50Result) -> Piece<'r>) -> Column {
         Column { name, unit: Unit::None, models: Models::All, value: Value::Cell(value), shown: None }
     }
 
@@ -144,10 +201,10 @@ impl Column {
     }
 
     /// Its CSV cell for `r`.
-    pub fn cell_of(&self, r: &Ic50Result) -> Cell {
+    pub fn piece_of<'r>(&self, r: &'r Ic50Result) -> Piece<'r> {
         match self.value {
             Value::Cell(f) => f(r),
-            Value::Param(get, part) => Cell::Full(get(r).and_then(|p| match part {
+            Value::Param(get, part) => Piece::Full(get(r).and_then(|p| match part {
                 Part::Value => Some(p.value),
                 Part::Se => p.se,
                 Part::Low => p.low,
@@ -155,17 +212,10 @@ impl Column {
             })),
         }
     }
-}
 
-fn text(s: impl Into<String>) -> Cell {
-    Cell::Text(s.into())
-}
-
-/// An IC50 (or Ki,app) cell: the number, or its bound as written (`>10000`).
-fn qualified(q: Qualifier, v: f64) -> Cell {
-    match q {
-        Qualifier::Equal => Cell::Full(Some(v)),
-        q => text(format!("{}{}", q.symbol(), Cell::Full(Some(v)).render())),
+    /// Its CSV cell for `r`, as a [`Cell`].
+    pub fn cell_of(&self, r: &Ic50Result) -> Cell {
+        self.piece_of(r).cell()
     }
 }
 
@@ -207,30 +257,33 @@ fn slope_text(r: &Ic50Result, c: &Context) -> String {
 
 /// The columns before the carried ones, in order.
 pub const COLUMNS: &[Column] = &[
-    Column::cell("compound", |r| text(r.compound.clone())).shown(Label::Fixed("compound"), |r, _| r.compound.clone()),
-    Column::cell("n", |r| Cell::Count(Some(r.n))).shown(Label::Fixed("n"), |r, _| match r.outliers.len() {
+    Column::cell("compound", |r| Piece::Text(&r.compound)).shown(Label::Fixed("compound"), |r, _| r.compound.clone()),
+    Column::cell("n", |r| Piece::Count(r.n)).shown(Label::Fixed("n"), |r, _| match r.outliers.len() {
         0 => r.n.to_string(),
         k => format!("{} (+{k} out)", r.n),
     }),
-    Column::cell("converged", |r| text(r.converged.to_string())),
-    Column::cell("call", |r| text(r.call.word())).shown(Label::Fixed("call"), |r, _| r.call.word().to_string()),
-    Column::cell("qualifier", |r| text(qualifier_cell(r.qualifier))),
-    Column::cell("ic50", |r| qualified(r.qualifier, r.ic50.value))
+    Column::cell("converged", |r| Piece::Text(if r.converged { "true" } else { "false" })),
+    Column::cell("call", |r| Piece::Text(r.call.word())).shown(Label::Fixed("call"), |r, _| r.call.word().to_string()),
+    Column::cell("qualifier", |r| match r.qualifier {
+        Qualifier::Equal => Piece::Text(""),
+        q => Piece::Text(q.symbol()),
+    }),
+    Column::cell("ic50", |r| Piece::Qualified(r.qualifier, r.ic50.value))
         .concentration()
         .shown(Label::Made(|c| format!("IC50 ({})", for_people(c.unit.symbol()))), |r, _| {
             people(r.qualifier, potency(r.ic50.value))
         }),
-    Column::cell("ic50_se", |r| Cell::Full(r.ic50.se)).concentration(),
-    Column::cell("ic50_low", |r| Cell::Full(r.ic50.low)).concentration().shown(
+    Column::cell("ic50_se", |r| Piece::Full(r.ic50.se)).concentration(),
+    Column::cell("ic50_low", |r| Piece::Full(r.ic50.low)).concentration().shown(
         Label::Made(|c| format!("{:.0}% interval", 100.0 * c.confidence)),
         |r, _| match r.qualifier.is_bound() {
             true => "(bound)".into(),
             false => interval_text(r.ic50.low, r.ic50.high),
         },
     ),
-    Column::cell("ic50_high", |r| Cell::Full(r.ic50.high)).concentration(),
-    Column::cell("ic50_interval", |r| text(r.ic50.interval)),
-    Column::cell("pic50", |r| Cell::Full(Some(r.pic50)))
+    Column::cell("ic50_high", |r| Piece::Full(r.ic50.high)).concentration(),
+    Column::cell("ic50_interval", |r| Piece::Text(r.ic50.interval)),
+    Column::cell("pic50", |r| Piece::Full(Some(r.pic50)))
         .shown(Label::Fixed("pIC50"), |r, _| people(r.qualifier.reversed(), format!("{:.2}", r.pic50))),
     Column::param("hill", measured_hill, Part::Value).shown(
         Label::Made(|c| if c.morrison { format!("Ki,app ({})", for_people(c.unit.symbol())) } else { "Hill".into() }),
@@ -247,18 +300,18 @@ pub const COLUMNS: &[Column] = &[
     Column::param("lower_se", lower, Part::Se),
     Column::param("lower_low", lower, Part::Low),
     Column::param("lower_high", lower, Part::High),
-    Column::cell("residual_sd", |r| Cell::Full(Some(r.residual_sd))),
-    Column::cell("r2", |r| Cell::Full(Some(r.r2))).shown(Label::Fixed("R²"), |r, _| sig(r.r2, 3)),
-    Column::cell("model", |r| text(r.model)),
-    Column::cell("flat_p", |r| Cell::Full(r.flat_p)),
-    Column::cell("outliers", |r| Cell::Count(Some(r.outliers.len()))),
-    Column::cell("ki_app", |r| ki_app(r).map_or(Cell::Full(None), |k| qualified(r.qualifier, k.value)))
+    Column::cell("residual_sd", |r| Piece::Full(Some(r.residual_sd))),
+    Column::cell("r2", |r| Piece::Full(Some(r.r2))).shown(Label::Fixed("R²"), |r, _| sig(r.r2, 3)),
+    Column::cell("model", |r| Piece::Text(r.model)),
+    Column::cell("flat_p", |r| Piece::Full(r.flat_p)),
+    Column::cell("outliers", |r| Piece::Count(r.outliers.len())),
+    Column::cell("ki_app", |r| ki_app(r).map_or(Piece::Full(None), |k| Piece::Qualified(r.qualifier, k.value)))
         .concentration()
         .morrison(),
     Column::param("ki_app_low", ki_app, Part::Low).morrison(),
     Column::param("ki_app_high", ki_app, Part::High).morrison(),
-    Column::cell("flags", |r| text(joined(&r.flags, ";"))).shown(Label::Fixed("flags"), |r, _| joined(&r.flags, ", ")),
-    Column::cell("source", |r| text(r.source.cell())),
+    Column::cell("flags", |r| Piece::Codes(&r.flags)).shown(Label::Fixed("flags"), |r, _| joined(&r.flags, ", ")),
+    Column::cell("source", |r| Piece::Made(r.source.cell())),
 ];
 
 /// The command-line option that sets a flag's limit, for the legend.
@@ -294,9 +347,15 @@ fn csv_header(carried: &[String], context: &Context) -> Vec<String> {
 
 /// A result's CSV row, rendered (on a worker thread).
 pub fn csv_row(r: &Ic50Result, morrison: bool) -> RenderedRow {
-    let mut cells: Vec<Cell> = COLUMNS.iter().filter(|c| c.present(morrison)).map(|c| c.cell_of(r)).collect();
-    cells.extend(r.carried.0.iter().map(|(_, v)| Cell::Text(v.clone())));
-    RenderedRow::new(&cells)
+    // About 20 bytes a column; one allocation for the row, none per cell.
+    let mut row = RowBuilder::with_capacity(640 + 32 * r.carried.0.len());
+    for column in COLUMNS.iter().filter(|c| c.present(morrison)) {
+        column.piece_of(r).write_to(&mut row);
+    }
+    for (_, v) in &r.carried.0 {
+        row.text(v);
+    }
+    row.finish()
 }
 
 /// A result as written in the chosen format, rendered on the worker thread
