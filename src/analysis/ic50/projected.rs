@@ -132,6 +132,32 @@ impl Wells<'_> {
         sse.is_finite().then_some(Linear { lower, upper: lower + span, sse })
     }
 
+    /// The projected SSE in one pass over the wells, for judging the start
+    /// grid: SSE = Σw·ỹ² − (Σw·s·ỹ)²/Σw(s − s̄)² with ỹ the centred
+    /// responses (`centred`, and `total` = Σw·ỹ², computed once per curve)
+    /// and Σw(s − s̄)² = Σw·s² − (Σw·s)²/Σw. The last difference cancels
+    /// when s barely varies over the wells, so below a relative spread of
+    /// 1e-6 the exact three-pass [`Self::project`] answers instead; above
+    /// it the two agree to ~1e-10 of the SSE, which can only matter for
+    /// starts that tie.
+    fn grid_sse(&self, s: &[f64], centred: &[f64], total: f64) -> f64 {
+        let n = self.y.len();
+        let (w, s, c) = (&self.w[..n], &s[..n], &centred[..n]);
+        let (mut s1, mut s2, mut sy) = (0.0, 0.0, 0.0);
+        for i in 0..n {
+            let ws = w[i] * s[i];
+            s1 += ws;
+            s2 += ws * s[i];
+            sy += ws * c[i];
+        }
+        let sss = s2 - s1 * s1 / self.weight_sum;
+        if !(sss > 1e-6 * self.weight_sum) {
+            return self.project(s).map_or(f64::INFINITY, |l| l.sse);
+        }
+        let sse = total - sy * sy / sss;
+        if sse.is_finite() { sse.max(0.0) } else { f64::INFINITY }
+    }
+
     fn projected_sse(&self, a: f64, h: f64, s: &mut [f64]) -> f64 {
         self.fractions(a, h, s);
         self.project(s).map_or(f64::INFINITY, |l| l.sse)
@@ -280,6 +306,14 @@ fn best_start(wells: &Wells, data: &Data<Dose>, s: &mut [f64]) -> Option<(f64, f
     // next. (The few ulps this drifts by can only matter for starts whose
     // SSEs tie to rounding; the points and their order are as before.)
     let step = (hi - lo) / (GRID - 1) as f64;
+    let mut centred = [0.0; MAX_POINTS];
+    let centred = &mut centred[..s.len()];
+    let mean = wells.y.iter().zip(wells.w).map(|(y, w)| w * y).sum::<f64>() / wells.weight_sum;
+    let mut total = 0.0;
+    for ((c, &y), &w) in centred.iter_mut().zip(wells.y).zip(wells.w) {
+        *c = y - mean;
+        total += w * *c * *c;
+    }
     let mut sse = [[f64::INFINITY; SLOPES.len()]; GRID];
     for (j, &h) in SLOPES.iter().enumerate() {
         if !(h * (hi - lo) < 600.0) {
@@ -300,7 +334,7 @@ fn best_start(wells: &Wells, data: &Data<Dose>, s: &mut [f64]) -> Option<(f64, f
                 *si = if pos { 1.0 / (1.0 + *ei) } else { 1.0 };
                 *ei *= ratio;
             }
-            row[j] = wells.project(s).map_or(f64::INFINITY, |l| l.sse);
+            row[j] = wells.grid_sse(s, centred, total);
         }
     }
     for (k, row) in sse.iter().enumerate() {
