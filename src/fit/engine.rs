@@ -456,6 +456,15 @@ fn covariance4<M: Model>(
             }
         }
     }
+    covariance_of_information4(&information, sse, df)
+}
+
+/// s²(JᵀWJ)⁻¹ of a four-parameter fit from its information matrix JᵀWJ,
+/// inverted after scaling to unit diagonal (as [`invert_information`]);
+/// `None` when it is singular or conditioned beyond 1e14. Shared by the
+/// engine and the dose-response kernel, which builds JᵀWJ from its own
+/// fractions.
+pub(crate) fn covariance_of_information4(information: &Matrix4<f64>, sse: f64, df: usize) -> Option<DMatrix<f64>> {
     let d: [f64; 4] = std::array::from_fn(|k| information[(k, k)].sqrt());
     if d.iter().any(|v| !(v.is_finite() && *v > 0.0)) {
         return None;
@@ -489,7 +498,8 @@ fn invert_information(information: DMatrix<f64>) -> Option<DMatrix<f64>> {
     Some(DMatrix::from_fn(p, p, |i, j| inverse[(i, j)] / (d[i] * d[j])))
 }
 
-fn r_squared<P>(data: &Data<P>, sse: f64) -> f64 {
+/// 1 − SSE/SST, weighted; NaN when the responses do not vary.
+pub(crate) fn r_squared<P>(data: &Data<P>, sse: f64) -> f64 {
     let wsum: f64 = data.weights.iter().sum();
     let mean = data.y.iter().zip(&data.weights).map(|(y, w)| w * y).sum::<f64>() / wsum;
     let sst: f64 = data.y.iter().zip(&data.weights).map(|(y, w)| w * (y - mean) * (y - mean)).sum();

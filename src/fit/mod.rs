@@ -15,6 +15,7 @@ mod small;
 pub mod stats;
 
 pub use engine::{Fit, FitSettings, Termination, fit, fit_from, summarise};
+pub(crate) use engine::{covariance_of_information4, r_squared};
 pub use small::fit_small;
 
 /// Largest response magnitude whose squares, summed over a million rows,
