@@ -438,6 +438,11 @@ fn polish(
             // Stagnated: the steps are at the level of rounding.
             return if size <= 1e2 * STEP_TOLERANCE { Ok((a, h, lin)) } else { Err((a, h, lin)) };
         }
+        // Quadratic convergence, e(k+1) ≈ C·e(k)², with C estimated from the
+        // last two steps: when the step after this one is predicted a
+        // hundred times below the tolerance, this step lands on the answer
+        // and the Newton equations need not be built again to confirm it.
+        let lands = previous.is_finite() && size * size * size / (previous * previous) <= 1e-2 * STEP_TOLERANCE;
         previous = size;
         let (na, nh) = (a + step[0], h + step[1]);
         wells.fractions(na, nh, trial);
@@ -447,6 +452,9 @@ fn polish(
                 s.copy_from_slice(trial);
             }
             _ => return Err((a, h, lin)),
+        }
+        if lands {
+            return Ok((a, h, lin));
         }
     }
     Err((a, h, lin))
