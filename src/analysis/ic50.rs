@@ -492,7 +492,16 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     } else {
         options
     };
-    let mut ic50_param = ic50_param(&model, data, fit, Logistic::IC50, qualifier, min_pos, max, 0.0, interval_options);
+    // The kernel profiles a free fit's IC50 itself (one-dimensional refits);
+    // the engine's profile stays the reference and the fallback.
+    let profiled_here = match interval_options.intervals {
+        IntervalMethod::Profile if qualifier == Qualifier::Equal && fit.converged() => {
+            projected::profile_ic50(data, fit, options.confidence)
+        }
+        _ => None,
+    };
+    let mut ic50_param =
+        ic50_param(&model, data, fit, Logistic::IC50, qualifier, min_pos, max, (0.0, profiled_here), interval_options);
     if qualifier == Qualifier::About {
         ic50_param.note = Some(HELD_SLOPE.into());
     }
@@ -1086,7 +1095,8 @@ fn common_flags(fit: &Fit, levels: usize, t: &Thresholds, curve: &Curve, flags: 
 }
 
 /// IC50 (or Ki,app for Morrison, `offset` = Et/2 between them) as reported:
-/// the bound when out of range, else the estimate with its interval.
+/// the bound when out of range, else the estimate with its interval — for a
+/// profile interval, `profiled` when the kernel already found it.
 #[allow(clippy::too_many_arguments)]
 fn ic50_param<M: Model>(
     model: &M,
@@ -1096,7 +1106,7 @@ fn ic50_param<M: Model>(
     qualifier: Qualifier,
     min_pos: f64,
     max: f64,
-    offset: f64,
+    (offset, profiled): (f64, Option<Interval>),
     options: &Options,
 ) -> Param {
     let unit = Some(options.unit.symbol().to_string());
@@ -1119,9 +1129,10 @@ fn ic50_param<M: Model>(
         Qualifier::Less => bound(min_pos, "below the lowest positive"),
         _ => {
             let (interval, method) = match options.intervals {
-                IntervalMethod::Profile if fit.converged() => {
-                    (profile(model, data, fit, j, options.confidence, &options.settings), "profile")
-                }
+                IntervalMethod::Profile if fit.converged() => (
+                    profiled.unwrap_or_else(|| profile(model, data, fit, j, options.confidence, &options.settings)),
+                    "profile",
+                ),
                 _ => (wald(fit, j, Scale::Log, options.confidence), "wald-log"),
             };
             let shift = |b: Bound| match b {
@@ -1169,7 +1180,7 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
     }
     pass.flags(&mut flags);
     common_flags(fit, levels, t, curve, &mut flags);
-    let ic50 = ic50_param(&model, data, fit, Morrison::KI_APP, qualifier, min_pos, max, et / 2.0, options);
+    let ic50 = ic50_param(&model, data, fit, Morrison::KI_APP, qualifier, min_pos, max, (et / 2.0, None), options);
     let unit = Some(options.unit.symbol().to_string());
     let ki_app = match qualifier {
         Qualifier::Equal => ic50.scaled(1.0, unit.clone()).shifted(-et / 2.0),
