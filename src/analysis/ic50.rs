@@ -123,7 +123,7 @@ pub struct Curve {
 impl Curve {
     /// `compound 'KX-101' (lines 5-16)`, for messages.
     pub fn group(&self) -> String {
-        format!("compound '{}' ({})", crate::report::short_id(&self.compound), self.location.span)
+        format!("compound '{}' ({})", crate::report::short_id(&self.compound), self.location.span())
     }
 }
 
@@ -135,8 +135,11 @@ impl Curve {
 pub struct Location {
     /// The input, as named on the command line (shared by every curve of a file).
     pub file: std::sync::Arc<str>,
-    /// The curve's place in the input, for messages: `plate.csv, lines 5-16`.
-    pub span: String,
+    /// The first and last input line of the curve's rows, which messages
+    /// name (`plate.csv, lines 5-16`, see [`Location::span`]); `None` when the
+    /// curve was not read from lines and `file` describes it. Only a message
+    /// needs the text, so it is made only then.
+    pub rows: Option<(u64, u64)>,
     /// The input line of each well, in the order of `x` and `y` (empty when unknown).
     pub lines: Vec<u64>,
 }
@@ -144,12 +147,30 @@ pub struct Location {
 impl Location {
     /// A curve that was not read from an input (a test, a simulation): `span` names it.
     pub fn described(span: &str) -> Location {
-        Location { file: std::sync::Arc::from(span), span: span.to_string(), lines: Vec::new() }
+        Location { file: std::sync::Arc::from(span), rows: None, lines: Vec::new() }
     }
 
-    /// The file and the wells' lines, as every output row names them.
+    /// The curve's place in the input, for messages: `plate.csv, lines 5-16`
+    /// (`plate.csv, line 5` for one row), or the description of a curve not
+    /// read from lines.
+    pub fn span(&self) -> String {
+        let Some((first, last)) = self.rows else { return self.file.to_string() };
+        let mut digits = itoa::Buffer::new();
+        let mut out = String::with_capacity(self.file.len() + 32);
+        out.push_str(&self.file);
+        out.push_str(if first == last { ", line " } else { ", lines " });
+        out.push_str(digits.format(first));
+        if first != last {
+            out.push('-');
+            out.push_str(digits.format(last));
+        }
+        out
+    }
+
+    /// The file and the wells' lines, as every output row names them (the
+    /// file name shared, not copied).
     pub fn origin(&self) -> crate::report::Origin {
-        crate::report::Origin::new(&self.file, self.lines.iter().copied())
+        crate::report::Origin::shared(self.file.clone(), self.lines.iter().copied())
     }
 }
 
@@ -369,10 +390,42 @@ pub fn analyse(curve: &Curve, options: &Options) -> Result<Ic50Result> {
 }
 
 /// The tested range: (distinct concentrations, smallest positive, largest).
+///
+/// A curve of a few dozen wells is sorted on the stack, and not at all when
+/// its concentrations come in order (either way, as dilution series do):
+/// values equal under `total_cmp` are the same bits, so the order found is
+/// the one sorting gives.
 fn tested_range(x: &[f64]) -> (usize, f64, f64) {
-    let mut sorted = x.to_vec();
-    sorted.sort_by(f64::total_cmp);
-    sorted.dedup_by(|a, b| (*a - *b).abs() <= 1e-12 * b.abs());
+    let mut stack = [0.0; 32];
+    let mut heap;
+    let sorted: &mut [f64] = match stack.get_mut(..x.len()) {
+        Some(s) => {
+            s.copy_from_slice(x);
+            s
+        }
+        None => {
+            heap = x.to_vec();
+            &mut heap
+        }
+    };
+    if !sorted.is_sorted_by(|a, b| a.total_cmp(b).is_le()) {
+        if sorted.is_sorted_by(|a, b| a.total_cmp(b).is_ge()) {
+            sorted.reverse();
+        } else {
+            sorted.sort_by(f64::total_cmp);
+        }
+    }
+    // `Vec::dedup_by` by hand: a value within 1e-12 (relative) of the last one kept is dropped.
+    let mut len = 0;
+    for i in 0..sorted.len() {
+        let v = sorted[i];
+        if len > 0 && (v - sorted[len - 1]).abs() <= 1e-12 * sorted[len - 1].abs() {
+            continue;
+        }
+        sorted[len] = v;
+        len += 1;
+    }
+    let sorted = &sorted[..len];
     let min_pos = sorted.iter().copied().find(|v| *v > 0.0).unwrap_or(f64::NAN);
     (sorted.len(), min_pos, sorted.last().copied().unwrap_or(f64::NAN))
 }
@@ -441,7 +494,7 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     let (levels, min_pos, max) = check(curve, n_free)?;
     let t = &options.thresholds;
     let model = Logistic;
-    let pass = exclude_outliers(curve.y.len(), n_free, options, |kept| {
+    let mut pass = exclude_outliers(curve.y.len(), n_free, options, |kept| {
         let lf = fit_logistic(&subset(&curve.x, kept), &subset(&curve.y, kept), options, min_pos, max);
         let worst = match options.outliers {
             OutlierMode::Keep => None,
@@ -518,7 +571,7 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     let held_by = |option: &'static str, flag: Code| {
         if flags.contains(&flag) { "the plausible window (the free fit fell outside it)" } else { option }
     };
-    Ok(Ic50Result {
+    let mut result = Ic50Result {
         compound: curve.compound.clone(),
         source: curve.location.origin(),
         confidence: options.confidence,
@@ -545,9 +598,12 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
         carried: curve.carried.clone(),
         model: "logistic",
         ki_app: None,
-        fitted: fit.theta.clone(),
-    }
-    .with_missing_se_explained(fit))
+        // Moved out of the final fit below, once nothing reads the fit any more.
+        fitted: Vec::new(),
+    };
+    result.explain_missing_se(fit);
+    result.fitted = std::mem::take(&mut pass.result.fit.theta);
+    Ok(result)
 }
 
 impl Ic50Result {
@@ -556,7 +612,7 @@ impl Ic50Result {
     /// covariance by; the Hill slope of a curve that steps between two
     /// concentrations is not determined) or the information matrix JᵀJ is
     /// singular at the fit (the data do not fix that parameter).
-    fn with_missing_se_explained(mut self, fit: &Fit) -> Ic50Result {
+    fn explain_missing_se(&mut self, fit: &Fit) {
         let span = (self.upper.value - self.lower.value).abs();
         let why = if fit.residual_sd <= 1e-12 * span || fit.sse < f64::MIN_POSITIVE {
             "the curve passes through every well exactly (zero residuals), so no scatter is left to measure its uncertainty by; a curve that steps between two concentrations fixes neither its Hill slope nor its IC50 inside that step"
@@ -580,7 +636,6 @@ impl Ic50Result {
         }
         explain(&mut self.upper, "upper asymptote", Logistic::UPPER);
         explain(&mut self.lower, "lower asymptote", Logistic::LOWER);
-        self
     }
 }
 
@@ -597,9 +652,14 @@ struct LogisticFit {
     window_flags: Vec<Code>,
 }
 
-/// The values of `v` at the indices `kept`.
-fn subset(v: &[f64], kept: &[usize]) -> Vec<f64> {
-    kept.iter().map(|&i| v[i]).collect()
+/// The values of `v` at the indices `kept` (ascending, as
+/// [`exclude_outliers`] keeps them): `v` itself, not a copy, when every
+/// well is kept.
+fn subset<'v>(v: &'v [f64], kept: &[usize]) -> std::borrow::Cow<'v, [f64]> {
+    match kept.len() == v.len() {
+        true => std::borrow::Cow::Borrowed(v),
+        false => std::borrow::Cow::Owned(kept.iter().map(|&i| v[i]).collect()),
+    }
 }
 
 /// The logistic fit of one set of wells: the free fit (with its fallbacks
@@ -732,12 +792,29 @@ fn exclude_outliers<T>(
     options: &Options,
     mut fit_on: impl FnMut(&[usize]) -> (T, Option<usize>),
 ) -> Pass<T> {
-    let all: Vec<usize> = (0..n).collect();
+    // Most curves have no outlier: their one fit needs the indices of every
+    // well, and nothing more is allocated unless a well is marked.
+    const FIRST: [usize; 64] = {
+        let mut all = [0; 64];
+        let mut i = 0;
+        while i < all.len() {
+            all[i] = i;
+            i += 1;
+        }
+        all
+    };
+    let all: std::borrow::Cow<[usize]> = match FIRST.get(..n) {
+        Some(first) => std::borrow::Cow::Borrowed(first),
+        None => std::borrow::Cow::Owned((0..n).collect()),
+    };
     let (mut result, mut worst) = fit_on(&all);
-    let mut kept = all.clone();
+    let mut kept = Vec::new();
     let mut marked = Vec::new();
     let mut too_many = false;
     while let Some(k) = worst {
+        if marked.is_empty() {
+            kept = all.to_vec();
+        }
         // The rule needs two residual degrees of freedom after a deletion.
         if marked.len() >= options.thresholds.max_outliers || kept.len() <= n_free + 3 {
             too_many = true;
@@ -767,12 +844,27 @@ fn worst_well<M: Model>(model: &M, data: &Data<M::Point>, fit: &Fit, alpha: f64)
     if fit.df < 3 || !fit.converged() || fit.sse.is_nan() || fit.sse <= 0.0 {
         return None;
     }
-    let free: Vec<usize> = (0..fit.theta.len()).filter(|&j| !fit.fixed[j]).collect();
+    // The models have a handful of parameters: indices and gradient on the stack.
+    let p = fit.theta.len();
+    let (mut free_stack, mut grad_stack) = ([0usize; 8], [0.0; 8]);
+    let (mut free_heap, mut grad_heap);
+    let (free_all, grad): (&mut [usize], &mut [f64]) = match p <= 8 {
+        true => (&mut free_stack[..p], &mut grad_stack[..p]),
+        false => {
+            (free_heap, grad_heap) = (vec![0usize; p], vec![0.0; p]);
+            (&mut free_heap[..], &mut grad_heap[..])
+        }
+    };
+    let mut n_free = 0;
+    for j in (0..p).filter(|&j| !fit.fixed[j]) {
+        free_all[n_free] = j;
+        n_free += 1;
+    }
+    let free = &free_all[..n_free];
     let s2 = fit.sse / fit.df as f64;
-    let mut grad = vec![0.0; fit.theta.len()];
     let mut worst: Option<(usize, f64)> = None;
     for (i, (x, &e)) in data.x.iter().zip(&fit.residuals).enumerate() {
-        model.gradient(&fit.theta, x, &mut grad);
+        model.gradient(&fit.theta, x, grad);
         let mut h = 0.0;
         for (a, &ja) in free.iter().enumerate() {
             for (b, &jb) in free.iter().enumerate() {
@@ -1152,7 +1244,7 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
     let t = &options.thresholds;
     let model = Morrison { et };
     let pass = exclude_outliers(curve.y.len(), n_free, options, |kept| {
-        let data = Data::unweighted(subset(&curve.x, kept), subset(&curve.y, kept));
+        let data = Data::unweighted(subset(&curve.x, kept).into_owned(), subset(&curve.y, kept).into_owned());
         let fit = fit_curve(&model, &data, &fixed, &options.settings, |f| f.r2 >= t.min_r2);
         let worst = match options.outliers {
             OutlierMode::Keep => None,

@@ -366,10 +366,16 @@ fn write_all(
         if let Some(pics) = pictures.as_deref_mut() {
             pics.batch(done.kept, &done.results, &done.options)?;
         }
-        for (result, _) in done.results {
-            match result {
+        // Looked at in place: moving each result out of the batch copied it whole.
+        let mut results = done.results;
+        for k in 0..results.len() {
+            match &results[k].0 {
                 // A missing unit is a property of the input, not of one compound: stop once.
-                Err(e @ Error::NoUnit { .. }) => return Err(e),
+                Err(Error::NoUnit { .. }) => {
+                    if let (Err(e), _) = results.swap_remove(k) {
+                        return Err(e);
+                    }
+                }
                 Err(e) => {
                     eprintln!("kimech: {e}");
                     summary.failed += 1;

@@ -392,7 +392,7 @@ impl<'a> CurveReader<'a> {
             .collect();
         Ok(Curve {
             compound: b.compound,
-            location: Location { file: self.file.clone(), span: span(&self.file, b.first, b.last), lines: b.lines },
+            location: Location { file: self.file.clone(), rows: Some((b.first, b.last)), lines: b.lines },
             x: b.x,
             y: b.y,
             carried: Carried(carried),
@@ -486,21 +486,6 @@ impl RowContext<'_> {
     }
 }
 
-/// `file, line 4` or `file, lines 4-9`, as `format!("{file}, {}",
-/// line_span(first, last))` writes it, without the formatting machinery.
-fn span(file: &str, first: u64, last: u64) -> String {
-    let mut digits = itoa::Buffer::new();
-    let mut out = String::with_capacity(file.len() + 32);
-    out.push_str(file);
-    out.push_str(if first == last { ", line " } else { ", lines " });
-    out.push_str(digits.format(first));
-    if first != last {
-        out.push('-');
-        out.push_str(digits.format(last));
-    }
-    out
-}
-
 /// Puts the compound into a cell error's message, so it names compound and line.
 fn with_compound(e: Error, compound: &str) -> Error {
     match e {
@@ -519,7 +504,8 @@ mod tests {
     #[test]
     fn spans_read_as_line_span_writes_them() {
         for (first, last) in [(1, 1), (2, 11), (9, 10), (99_999, 1_000_000), (u64::MAX, u64::MAX)] {
-            assert_eq!(span("a.csv", first, last), format!("a.csv, {}", crate::io::input::line_span(first, last)));
+            let location = Location { file: "a.csv".into(), rows: Some((first, last)), lines: Vec::new() };
+            assert_eq!(location.span(), format!("a.csv, {}", crate::io::input::line_span(first, last)));
         }
     }
 }

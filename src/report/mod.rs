@@ -20,8 +20,9 @@ pub const DEFAULT_CONFIDENCE: f64 = 0.95;
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
 pub struct Origin {
     /// The input, as named on the command line (`<stdin>` for `-`), or what
-    /// made the data (`simulation 3 of competitive`).
-    pub file: String,
+    /// made the data (`simulation 3 of competitive`); shared with every
+    /// other origin of the same input rather than copied per result.
+    pub file: std::sync::Arc<str>,
     /// 1-based line numbers of the rows, ascending (empty for simulated data).
     pub lines: Vec<u64>,
 }
@@ -29,17 +30,27 @@ pub struct Origin {
 impl Origin {
     /// The origin of rows on these lines of `file` (sorted, duplicates dropped).
     pub fn new(file: &str, lines: impl IntoIterator<Item = u64>) -> Origin {
+        Origin::shared(std::sync::Arc::from(file), lines)
+    }
+
+    /// [`Origin::new`] for a file name held elsewhere already (every curve
+    /// of an `ic50` input shares its reader's): no copy of the name. Lines
+    /// already strictly ascending, as a reader meets them, are not sorted.
+    pub fn shared(file: std::sync::Arc<str>, lines: impl IntoIterator<Item = u64>) -> Origin {
         let mut lines: Vec<u64> = lines.into_iter().collect();
-        lines.sort_unstable();
-        lines.dedup();
-        Origin { file: file.to_string(), lines }
+        if !lines.windows(2).all(|w| w[0] < w[1]) {
+            lines.sort_unstable();
+            lines.dedup();
+        }
+        Origin { file, lines }
     }
 
     /// Runs of consecutive lines (`4-9,15` with `sep` ","), written onto
     /// `out` digit by digit: one row of a million-curve `ic50` run writes
     /// this cell, and the former `Vec` of runs, `String` per run and `join`
     /// cost more than the rest of the row's text.
-    fn write_runs(&self, out: &mut String, sep: &str) {
+    fn write_runs(&self, out: &mut Vec<u8>, sep: &str) {
+        let mut digits = itoa::Buffer::new();
         let mut i = 0;
         let mut first_run = true;
         while i < self.lines.len() {
@@ -51,21 +62,22 @@ impl Origin {
             }
             i += 1;
             if !first_run {
-                out.push_str(sep);
+                out.extend_from_slice(sep.as_bytes());
             }
             first_run = false;
-            push_decimal(out, first);
+            out.extend_from_slice(digits.format(first).as_bytes());
             if first != last {
-                out.push('-');
-                push_decimal(out, last);
+                out.push(b'-');
+                out.extend_from_slice(digits.format(last).as_bytes());
             }
         }
     }
 
     fn runs_text(&self, sep: &str) -> String {
-        let mut out = String::new();
+        let mut out = Vec::new();
         self.write_runs(&mut out, sep);
-        out
+        // Digits and `sep` only: always UTF-8.
+        String::from_utf8(out).unwrap_or_default()
     }
 
     /// `line 4`, `lines 4-9` or `lines 4-9, 15`.
@@ -79,30 +91,20 @@ impl Origin {
 
     /// The CSV cell: `file:4-9,15` (just the name when there are no lines).
     pub fn cell(&self) -> String {
-        let mut out = String::with_capacity(self.file.len() + 1 + 8 * self.lines.len().min(4));
-        out.push_str(&self.file);
-        if !self.lines.is_empty() {
-            out.push(':');
-            self.write_runs(&mut out, ",");
-        }
-        out
+        let mut out = Vec::with_capacity(self.file.len() + 1 + 8 * self.lines.len().min(4));
+        self.write_cell(&mut out);
+        // The file name is a `str`, the rest digits and punctuation: always UTF-8.
+        String::from_utf8(out).unwrap_or_default()
     }
-}
 
-/// `v` in decimal, as `v.to_string()` writes it.
-fn push_decimal(out: &mut String, mut v: u64) {
-    let mut digits = [0u8; 20];
-    let mut at = digits.len();
-    loop {
-        at -= 1;
-        digits[at] = b'0' + (v % 10) as u8;
-        v /= 10;
-        if v == 0 {
-            break;
+    /// [`Origin::cell`] appended to `out`: a CSV row writes it straight into
+    /// its own buffer, with no `String` per row.
+    pub fn write_cell(&self, out: &mut Vec<u8>) {
+        out.extend_from_slice(self.file.as_bytes());
+        if !self.lines.is_empty() {
+            out.push(b':');
+            self.write_runs(out, ",");
         }
-    }
-    for &d in &digits[at..] {
-        out.push(d as char);
     }
 }
 
@@ -169,6 +171,10 @@ impl Param {
 
 /// Words for interval ends that are not numbers.
 fn describe_missing(interval: Interval) -> Option<String> {
+    // Both ends, as nearly every fit has them: nothing to say, nothing to build.
+    if let (Bound::At(_), Bound::At(_)) = (interval.low, interval.high) {
+        return None;
+    }
     let side = |b: Bound, which: &str, meaning: &str| match b {
         Bound::At(_) => None,
         Bound::Unbounded => Some(format!("no {which} bound: {meaning}")),

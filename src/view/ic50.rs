@@ -18,8 +18,8 @@ use crate::error::{Error, Result};
 use crate::io::Format;
 use crate::io::ic50::CarriedColumn;
 use crate::io::output::{Cell, CsvExport, RenderedRow, RowBuilder, new_grid, sig, write_shortest};
-use crate::report::Param;
 use crate::report::code::{Code, joined};
+use crate::report::{Origin, Param};
 use crate::units::{ConcUnit, Qualifier, for_people, potency};
 
 /// What the header and the table need besides a result.
@@ -71,6 +71,8 @@ pub enum Piece<'r> {
     Text(&'r str),
     /// Text made for the cell.
     Made(String),
+    /// Where the wells came from (`file:2-11`), written into the row as it is made.
+    Source(&'r Origin),
     /// Flag codes joined by `;` (a text cell).
     Codes(&'r [Code]),
     /// A number with every digit it has; empty when absent or not finite.
@@ -87,6 +89,7 @@ impl Piece<'_> {
         match self {
             Piece::Text(t) => row.text(t),
             Piece::Made(t) => row.text(t),
+            Piece::Source(o) => row.text_with(|out| o.write_cell(out)),
             Piece::Codes(codes) => row.text_with(|out| {
                 for (k, c) in codes.iter().enumerate() {
                     if k > 0 {
@@ -112,6 +115,7 @@ impl Piece<'_> {
         match self {
             Piece::Text(t) => Cell::Text(t.to_string()),
             Piece::Made(t) => Cell::Text(t.clone()),
+            Piece::Source(o) => Cell::Text(o.cell()),
             Piece::Codes(codes) => Cell::Text(joined(codes, ";")),
             Piece::Full(v) => Cell::Full(*v),
             Piece::Count(n) => Cell::Count(Some(*n)),
@@ -311,7 +315,7 @@ pub const COLUMNS: &[Column] = &[
     Column::param("ki_app_low", ki_app, Part::Low).morrison(),
     Column::param("ki_app_high", ki_app, Part::High).morrison(),
     Column::cell("flags", |r| Piece::Codes(&r.flags)).shown(Label::Fixed("flags"), |r, _| joined(&r.flags, ", ")),
-    Column::cell("source", |r| Piece::Made(r.source.cell())),
+    Column::cell("source", |r| Piece::Source(&r.source)),
 ];
 
 /// The command-line option that sets a flag's limit, for the legend.
