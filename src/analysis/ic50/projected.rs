@@ -159,6 +159,14 @@ impl Wells<'_> {
         if sse.is_finite() { sse.max(0.0) } else { f64::INFINITY }
     }
 
+    /// Weights, responses, fractions, ln x and positivity over the wells, as
+    /// equal-length slices (so the loops index them without bounds checks).
+    #[allow(clippy::type_complexity)]
+    fn views<'s>(&'s self, s: &'s [f64]) -> (&'s [f64], &'s [f64], &'s [f64], &'s [f64], &'s [bool]) {
+        let n = self.y.len();
+        (&self.w[..n], &self.y[..n], &s[..n], &self.ln_x[..n], &self.positive[..n])
+    }
+
     fn projected_sse(&self, a: f64, h: f64, s: &mut [f64]) -> f64 {
         self.fractions(a, h, s);
         self.project(s).map_or(f64::INFINITY, |l| l.sse)
@@ -167,8 +175,8 @@ impl Wells<'_> {
     /// Normal matrix and gradient of the projected problem at (a, h)
     /// (Kaufman's Jacobian P⊥·∂f/∂α, weighted).
     fn normal_equations(&self, a: f64, h: f64, s: &[f64], lin: &Linear) -> (Matrix2<f64>, Vector2<f64>) {
-        let n = self.y.len();
-        let (w, y, s, ln_x, positive) = (&self.w[..n], &self.y[..n], &s[..n], &self.ln_x[..n], &self.positive[..n]);
+        let (w, y, s, ln_x, positive) = self.views(s);
+        let n = y.len();
         let span = lin.upper - lin.lower;
         let mut da = [0.0; MAX_POINTS];
         let mut dh = [0.0; MAX_POINTS];
@@ -226,8 +234,8 @@ impl Wells<'_> {
     /// q = s(1 − s): ∂s/∂a = q·h, ∂s/∂h = −q(ln x − a), ∂²s/∂a² = q(1 − 2s)h²,
     /// ∂²s/∂h² = q(1 − 2s)(ln x − a)², ∂²s/∂a∂h = q − q(1 − 2s)h(ln x − a).
     fn newton_equations(&self, a: f64, h: f64, s: &[f64], lin: &Linear) -> (Matrix2<f64>, Vector2<f64>) {
-        let n = self.y.len();
-        let (w, y, s, ln_x, positive) = (&self.w[..n], &self.y[..n], &s[..n], &self.ln_x[..n], &self.positive[..n]);
+        let (w, y, s, ln_x, positive) = self.views(s);
+        let n = y.len();
         let d = lin.upper - lin.lower;
         let mut sa = [0.0; MAX_POINTS];
         let mut sh = [0.0; MAX_POINTS];
