@@ -51,7 +51,8 @@ pub fn flags(m: &Measurement, c: &Conditions, settings: &Settings) -> Vec<Warnin
             out.push(Warning::new(
                 Code::HillFarFromOne,
                 format!(
-                    "Hill coefficient {h} is far from 1 (|log2 h| > {}): the Cheng–Prusoff relations assume simple 1:1 inhibition and do not strictly hold (Leff & Dougall 1993)",
+                    "Hill coefficient {} is far from 1 (|log2 h| > {}): the Cheng–Prusoff relations assume simple 1:1 inhibition and do not strictly hold (Leff & Dougall 1993)",
+                    crate::units::sig(h, 3),
                     settings.hill_tolerance
                 ),
             ));
