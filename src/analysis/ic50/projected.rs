@@ -72,7 +72,45 @@ struct Wells<'a> {
     unit_weights: bool,
 }
 
-impl Wells<'_> {
+/// ln x and whether x > 0 at every well, on the stack (at most
+/// [`MAX_POINTS`] wells; the callers check).
+struct Doses {
+    ln_x: [f64; MAX_POINTS],
+    positive: [bool; MAX_POINTS],
+}
+
+impl Doses {
+    fn of(data: &Data<Dose>) -> Doses {
+        let mut doses = Doses { ln_x: [0.0; MAX_POINTS], positive: [false; MAX_POINTS] };
+        for (i, d) in data.x.iter().enumerate() {
+            doses.positive[i] = d.x > 0.0;
+            doses.ln_x[i] = if doses.positive[i] { d.ln_x } else { 0.0 };
+        }
+        doses
+    }
+}
+
+impl<'a> Wells<'a> {
+    /// The wells of `data` for the kernel; `None` when the weights sum to
+    /// nothing or a response is not finite.
+    fn new(doses: &'a Doses, data: &'a Data<Dose>) -> Option<Wells<'a>> {
+        let n = data.len();
+        let weight_sum: f64 = data.weights.iter().sum();
+        if !(weight_sum > 0.0) || data.y.iter().any(|y| !y.is_finite()) {
+            return None;
+        }
+        // Exactly 1, not nearly: only then is leaving the weight out bit-for-bit the same.
+        #[allow(clippy::float_cmp)]
+        let unit_weights = data.weights.iter().all(|&w| w == 1.0);
+        Some(Wells {
+            ln_x: &doses.ln_x[..n],
+            positive: &doses.positive[..n],
+            y: &data.y,
+            w: &data.weights,
+            weight_sum,
+            unit_weights,
+        })
+    }
     /// s at every well for (a = ln IC50, h), with the model's limits at x = 0.
     fn fractions(&self, a: f64, h: f64, s: &mut [f64]) {
         for ((si, &lx), &pos) in s.iter_mut().zip(self.ln_x).zip(self.positive) {
@@ -478,21 +516,8 @@ pub fn fit_logistic_projected(data: &Data<Dose>) -> Option<Fit> {
     if !(5..=MAX_POINTS).contains(&n) {
         return None;
     }
-    let mut ln_x = [0.0; MAX_POINTS];
-    let mut positive = [false; MAX_POINTS];
-    for (i, d) in data.x.iter().enumerate() {
-        positive[i] = d.x > 0.0;
-        ln_x[i] = if positive[i] { d.ln_x } else { 0.0 };
-    }
-    let weight_sum: f64 = data.weights.iter().sum();
-    if !(weight_sum > 0.0) || data.y.iter().any(|y| !y.is_finite()) {
-        return None;
-    }
-    // Exactly 1, not nearly: only then is leaving the weight out bit-for-bit the same.
-    #[allow(clippy::float_cmp)]
-    let unit_weights = data.weights.iter().all(|&w| w == 1.0);
-    let wells =
-        Wells { ln_x: &ln_x[..n], positive: &positive[..n], y: &data.y, w: &data.weights, weight_sum, unit_weights };
+    let doses = Doses::of(data);
+    let wells = Wells::new(&doses, data)?;
     let mut s = [0.0; MAX_POINTS];
     let s = &mut s[..n];
     let start = best_start(&wells, data, s)?;
@@ -597,21 +622,8 @@ pub fn profile_ic50(data: &Data<Dose>, fit: &Fit, confidence: f64) -> Option<Int
     }
     let f = f_quantile(confidence, 1, fit.df)?;
     let threshold = fit.sse * (1.0 + f / fit.df as f64);
-    let mut ln_x = [0.0; MAX_POINTS];
-    let mut positive = [false; MAX_POINTS];
-    for (i, d) in data.x.iter().enumerate() {
-        positive[i] = d.x > 0.0;
-        ln_x[i] = if positive[i] { d.ln_x } else { 0.0 };
-    }
-    let weight_sum: f64 = data.weights.iter().sum();
-    let wells = Wells {
-        ln_x: &ln_x[..n],
-        positive: &positive[..n],
-        y: &data.y,
-        w: &data.weights,
-        weight_sum,
-        unit_weights: false,
-    };
+    let doses = Doses::of(data);
+    let wells = Wells::new(&doses, data)?;
     let (ic50, h) = (fit.theta[Logistic::IC50], fit.theta[Logistic::HILL]);
     let se_internal = fit.se[Logistic::IC50].map(|se| se / ic50);
     let first_step = match se_internal {
