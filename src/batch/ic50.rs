@@ -306,14 +306,14 @@ pub fn run(
     let mut bar = Progress::new(progress, input.size());
     let keep_curves = pictures.is_some();
     let (sender, receiver) = std::sync::mpsc::sync_channel::<Done>(1);
-    let read = std::thread::scope(|scope| -> Result<()> {
+    let streamed = std::thread::scope(|scope| -> Result<()> {
         let producer = scope.spawn(|| read_and_fit(&mut reader, settings, response_unit, keep_curves, sender));
         let written = write_all(receiver, &mut writer, &mut summary, &mut bar, &mut pictures);
         // On a write error the receiver is gone, so the producer stops at its next send.
-        let read = producer.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic));
-        written.and(read)
+        let read_and_fitted = producer.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic));
+        written.and(read_and_fitted)
     });
-    read?;
+    streamed?;
     bar.finish();
     summary.unused_controls = reader.unused_controls();
     writer.finish(plates.as_ref().map(|p| p.qc.as_slice()))?;
