@@ -18,7 +18,7 @@ use crate::error::{Error, Result};
 use crate::io::Format;
 use crate::io::ic50::{CurveReader, Input, ReadOptions, read_controls};
 use crate::units::ConcUnit;
-use crate::view::ic50::{Context, Line, StreamWriter, plates_grid, table_header, table_row};
+use crate::view::ic50::{Context, Rendered, StreamWriter, plates_grid, table_header, table_row};
 
 /// Everything a run needs besides its input and output.
 #[derive(Debug, Clone)]
@@ -197,8 +197,8 @@ impl Pictures {
         crate::page::ic50::section(&self.gallery, self.plates.as_ref(), &self.failures, command)
     }
 
-    /// Hands a fitted batch over (the curves only when kept).
-    fn batch(&mut self, kept: Vec<Option<Curve>>, results: &[Fitted], options: &Options) -> Result<()> {
+    /// Hands a fitted batch over (its chunks hold the curves and results).
+    fn batch(&mut self, chunks: Vec<Fitted>, options: &Options) -> Result<()> {
         self.gallery.unit = options.unit.symbol().to_string();
         self.gallery.et = options.enzyme;
         self.gallery.response = match &options.response_unit {
@@ -209,11 +209,10 @@ impl Pictures {
         let context =
             Context { unit: options.unit, morrison: options.enzyme.is_some(), confidence: options.confidence };
         self.gallery.header = table_header(&context);
-        for (curve, (r, _)) in kept.into_iter().zip(results) {
-            match (curve, r) {
-                (Some(c), Ok(r)) => self.add(c, r.clone(), &context)?,
-                (_, Err(e)) => self.failures.push(e.to_string()),
-                (None, Ok(_)) => {}
+        for chunk in chunks {
+            self.failures.extend(chunk.failures.iter().map(|e| e.to_string()));
+            for (curve, r) in chunk.curves.into_iter().zip(chunk.rendered.kept) {
+                self.add(curve, r, &context)?;
             }
         }
         Ok(())
@@ -252,15 +251,27 @@ pub fn run_bytes(
     Ok((out, summary))
 }
 
-/// A fitted compound and its line in the output format.
-type Fitted = (Result<Ic50Result>, Line);
+/// Curves fitted together on one worker thread (rayon splits a batch into
+/// chunks of this many): enough that a chunk's one output buffer saves
+/// allocations, few enough that both cores share a batch evenly.
+const CHUNK: usize = 64;
+
+/// A chunk of a batch, fitted and rendered on one worker thread.
+struct Fitted {
+    /// Curves in the chunk (fitted or failed).
+    total: usize,
+    /// The fitted ones in the output format (and the results, when kept).
+    rendered: Rendered,
+    /// The compounds that could not be fitted, in input order.
+    failures: Vec<Error>,
+    /// The fitted curves, when pictures are drawn (in the order of `rendered.kept`).
+    curves: Vec<Curve>,
+}
 
 /// A fitted batch on its way from the fitting threads to the writer, with
 /// what the writer needs to know about it.
 struct Done {
-    results: Vec<Fitted>,
-    /// Copies of the curves, when pictures are drawn.
-    kept: Vec<Option<Curve>>,
+    chunks: Vec<Fitted>,
     unit: ConcUnit,
     options: Options,
     /// Input bytes read once this batch was read (for progress).
@@ -335,15 +346,12 @@ fn read_and_fit(
     while !current.is_empty() {
         let unit = reader.unit().unwrap_or(ConcUnit::Molar);
         let options = options(settings, unit, response_unit.clone());
-        // Pictures need the curves after the fit: keep a copy only when asked.
-        let kept: Vec<Option<Curve>> = match keep_curves {
-            true => current.iter().map(|c| c.as_ref().ok().cloned()).collect(),
-            false => Vec::new(),
-        };
         let bytes_read = reader.bytes_read();
-        let (next, results) =
-            rayon::join(|| reader.next_batch(batch_size), || fit_batch(current, &options, settings.format));
-        if sender.send(Done { results, kept, unit, options, bytes_read }).is_err() {
+        let (next, chunks) = rayon::join(
+            || reader.next_batch(batch_size),
+            || fit_batch(current, &options, settings.format, keep_curves),
+        );
+        if sender.send(Done { chunks, unit, options, bytes_read }).is_err() {
             return Ok(());
         }
         current = next?;
@@ -360,28 +368,23 @@ fn write_all(
     bar: &mut Progress,
     pictures: &mut Option<&mut Pictures>,
 ) -> Result<()> {
-    for done in receiver {
-        summary.total += done.results.len();
-        writer.batch(&done.results, done.unit)?;
-        if let Some(pics) = pictures.as_deref_mut() {
-            pics.batch(done.kept, &done.results, &done.options)?;
-        }
-        // Looked at in place: moving each result out of the batch copied it whole.
-        let mut results = done.results;
-        for k in 0..results.len() {
-            match &results[k].0 {
+    for mut done in receiver {
+        let rendered: Vec<&Rendered> = done.chunks.iter().map(|c| &c.rendered).collect();
+        writer.batch(&rendered, done.unit)?;
+        for chunk in &mut done.chunks {
+            summary.total += chunk.total;
+            for e in std::mem::take(&mut chunk.failures) {
                 // A missing unit is a property of the input, not of one compound: stop once.
-                Err(Error::NoUnit { .. }) => {
-                    if let (Err(e), _) = results.swap_remove(k) {
-                        return Err(e);
-                    }
+                if let Error::NoUnit { .. } = e {
+                    return Err(e);
                 }
-                Err(e) => {
-                    eprintln!("kimech: {e}");
-                    summary.failed += 1;
-                }
-                Ok(_) => {}
+                eprintln!("kimech: {e}");
+                summary.failed += 1;
+                chunk.failures.push(e);
             }
+        }
+        if let Some(pics) = pictures.as_deref_mut() {
+            pics.batch(done.chunks, &done.options)?;
         }
         bar.update(done.bytes_read);
     }
@@ -405,17 +408,30 @@ fn options(settings: &Settings, unit: ConcUnit, response_unit: Option<String>) -
     }
 }
 
-fn fit_batch(batch: Vec<Result<Curve>>, options: &Options, format: Format) -> Vec<Fitted> {
-    let morrison = options.enzyme.is_some();
-    batch
-        .into_par_iter()
-        .map(|item| {
-            let result = item.and_then(|curve| analyse(&curve, options));
-            let line = match &result {
-                Ok(r) => Line::of(r, format, morrison),
-                Err(_) => Line::Nothing,
-            };
-            (result, line)
-        })
-        .collect()
+/// Fits and renders a batch in chunks of [`CHUNK`] curves on the thread
+/// pool, in input order; the results are kept (with their curves) only for
+/// the pictures.
+fn fit_batch(batch: Vec<Result<Curve>>, options: &Options, format: Format, pictures: bool) -> Vec<Fitted> {
+    batch.into_par_iter().chunks(CHUNK).map(|chunk| fit_chunk(chunk, options, format, pictures)).collect()
+}
+
+fn fit_chunk(items: Vec<Result<Curve>>, options: &Options, format: Format, pictures: bool) -> Fitted {
+    let mut fitted = Fitted {
+        total: items.len(),
+        rendered: Rendered::new(format, options.enzyme.is_some(), pictures),
+        failures: Vec::new(),
+        curves: Vec::new(),
+    };
+    for item in items {
+        match item.and_then(|curve| analyse(&curve, options).map(|r| (curve, r))) {
+            Ok((curve, r)) => {
+                fitted.rendered.add(r);
+                if pictures {
+                    fitted.curves.push(curve);
+                }
+            }
+            Err(e) => fitted.failures.push(e),
+        }
+    }
+    fitted
 }

@@ -353,7 +353,9 @@ fn encode_field(field: &[u8], out: &mut Vec<u8>) {
 /// A row whose cells are already rendered and CSV-encoded (guard applied,
 /// line ending included), so that a parallel pipeline can format its
 /// numbers on the worker threads and leave only the copying to
-/// [`CsvExport::rendered`]. Only [`Cell`]s make one.
+/// [`CsvExport::rendered`]. Only [`Cell`]s make one. It may hold several
+/// rows one after the other ([`RowBuilder::after`]), so that a worker
+/// renders a run of results into one buffer.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct RenderedRow(Vec<u8>);
 
@@ -374,13 +376,21 @@ impl RenderedRow {
 #[derive(Debug, Default)]
 pub struct RowBuilder {
     row: Vec<u8>,
+    /// Where this row begins in `row` (after the rows it continues).
+    start: usize,
     count: usize,
 }
 
 impl RowBuilder {
     /// An empty row with room for `bytes`.
     pub fn with_capacity(bytes: usize) -> RowBuilder {
-        RowBuilder { row: Vec::with_capacity(bytes), count: 0 }
+        RowBuilder { row: Vec::with_capacity(bytes), start: 0, count: 0 }
+    }
+
+    /// A row that follows `rows` in their buffer: [`RowBuilder::finish`]
+    /// returns them with it.
+    pub fn after(rows: RenderedRow) -> RowBuilder {
+        RowBuilder { start: rows.0.len(), row: rows.0, count: 0 }
     }
 
     fn next(&mut self) {
@@ -447,7 +457,7 @@ impl RowBuilder {
 
     /// The row, with its line end.
     pub fn finish(mut self) -> RenderedRow {
-        if self.count == 1 && self.row.is_empty() {
+        if self.count == 1 && self.row.len() == self.start {
             self.row.extend_from_slice(b"\"\"");
         }
         self.row.push(b'\n');

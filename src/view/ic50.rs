@@ -350,9 +350,9 @@ fn csv_header(carried: &[String], context: &Context) -> Vec<String> {
 }
 
 /// A result's CSV row, rendered (on a worker thread).
-pub fn csv_row(r: &Ic50Result, morrison: bool) -> RenderedRow {
-    // About 20 bytes a column; one allocation for the row, none per cell.
-    let mut row = RowBuilder::with_capacity(640 + 32 * r.carried.0.len());
+/// `r`'s CSV row after `rows` (in the same buffer).
+fn csv_row(rows: RenderedRow, r: &Ic50Result, morrison: bool) -> RenderedRow {
+    let mut row = RowBuilder::after(rows);
     for column in COLUMNS.iter().filter(|c| c.present(morrison)) {
         column.piece_of(r).write_to(&mut row);
     }
@@ -362,27 +362,61 @@ pub fn csv_row(r: &Ic50Result, morrison: bool) -> RenderedRow {
     row.finish()
 }
 
-/// A result as written in the chosen format, rendered on the worker thread
-/// that fitted it (formatting two dozen numbers per curve is too much to
-/// leave to the one thread that writes).
-#[derive(Debug, Clone)]
-pub enum Line {
-    /// Nothing: the terminal table is built from the results at the batch's
-    /// end, and a failed compound has no line.
-    Nothing,
-    /// A CSV row.
-    Csv(RenderedRow),
-    /// One compact JSON object.
-    Json(String),
+/// A run of results (a chunk of a batch) as written in the chosen format,
+/// rendered into one buffer on the worker thread that fitted them:
+/// formatting two dozen numbers per curve is too much to leave to the one
+/// thread that writes, and one buffer per chunk spares an allocation per
+/// row. The results themselves are kept only when something besides the
+/// text needs them (the terminal table, the pictures); otherwise they are
+/// dropped on the thread that made them.
+#[derive(Debug)]
+pub struct Rendered {
+    format: Format,
+    morrison: bool,
+    keep: bool,
+    /// CSV rows.
+    rows: RenderedRow,
+    /// JSON objects, separated by `,\n`.
+    json: Vec<u8>,
+    /// Results rendered.
+    count: usize,
+    /// The results, in order, when kept.
+    pub kept: Vec<Ic50Result>,
 }
 
-impl Line {
-    /// `r` in `format`.
-    pub fn of(r: &Ic50Result, format: Format, morrison: bool) -> Line {
-        match format {
-            Format::Csv => Line::Csv(csv_row(r, morrison)),
-            Format::Json => Line::Json(serde_json::to_string(r).unwrap_or_default()),
-            Format::Table => Line::Nothing,
+impl Rendered {
+    /// Nothing yet, for `format`; `keep` the results whatever the format
+    /// (the table always keeps them: it is built from them).
+    pub fn new(format: Format, morrison: bool, keep: bool) -> Rendered {
+        Rendered {
+            format,
+            morrison,
+            keep: keep || format == Format::Table,
+            rows: RenderedRow::default(),
+            json: Vec::new(),
+            count: 0,
+            kept: Vec::new(),
+        }
+    }
+
+    /// Renders `r` after the results before it.
+    pub fn add(&mut self, r: Ic50Result) {
+        match self.format {
+            Format::Csv => self.rows = csv_row(std::mem::take(&mut self.rows), &r, self.morrison),
+            Format::Json => {
+                if self.count > 0 {
+                    self.json.extend_from_slice(b",\n");
+                }
+                // Serialising plain data into memory cannot fail; an empty object would show if it did.
+                if serde_json::to_writer(&mut self.json, &r).is_err() {
+                    self.json.extend_from_slice(b"{}");
+                }
+            }
+            Format::Table => {}
+        }
+        self.count += 1;
+        if self.keep {
+            self.kept.push(r);
         }
     }
 }
@@ -459,48 +493,43 @@ impl<'a> StreamWriter<'a> {
         Ok(())
     }
 
-    /// Writes a batch; failed compounds are left out (their errors go elsewhere).
-    pub fn batch(&mut self, results: &[(Result<Ic50Result>, Line)], unit: ConcUnit) -> Result<()> {
-        let ok: Vec<&Ic50Result> = results.iter().filter_map(|r| r.0.as_ref().ok()).collect();
-        for r in &ok {
-            for f in &r.flags {
-                if !self.flags_seen.contains(f) {
-                    self.flags_seen.push(*f);
-                }
-            }
-        }
-        let lines = results.iter().filter(|r| r.0.is_ok()).map(|r| &r.1);
+    /// Writes a batch, rendered in chunks (failed compounds are not in
+    /// them: their errors go elsewhere).
+    pub fn batch(&mut self, chunks: &[&Rendered], unit: ConcUnit) -> Result<()> {
         match self.format {
             Format::Json => {
                 if !self.started {
                     self.raw(b"{\"results\": [\n")?;
                     self.started = true;
                 }
-                let mut text = String::new();
-                for line in lines {
-                    if let Line::Json(json) = line {
-                        if self.any_result {
-                            text.push_str(",\n");
-                        }
-                        self.any_result = true;
-                        text.push_str(json);
+                for chunk in chunks.iter().filter(|c| c.count > 0) {
+                    if self.any_result {
+                        self.raw(b",\n")?;
                     }
+                    self.any_result = true;
+                    self.raw(&chunk.json)?;
                 }
-                self.raw(text.as_bytes())
+                Ok(())
             }
             Format::Csv => {
                 if !self.started {
                     self.start_csv(unit)?;
                 }
                 let Sink::Csv(export) = &mut self.sink else { return Ok(()) };
-                for line in lines {
-                    if let Line::Csv(row) = line {
-                        export.rendered(row)?;
-                    }
+                for chunk in chunks {
+                    export.rendered(&chunk.rows)?;
                 }
                 Ok(())
             }
             Format::Table => {
+                let ok: Vec<&Ic50Result> = chunks.iter().flat_map(|c| &c.kept).collect();
+                for r in &ok {
+                    for f in &r.flags {
+                        if !self.flags_seen.contains(f) {
+                            self.flags_seen.push(*f);
+                        }
+                    }
+                }
                 if ok.is_empty() {
                     return Ok(());
                 }
