@@ -22,7 +22,7 @@ counts (valgrind's callgrind, one thread, on the first --callgrind-n curves,
 default 2000), which do not depend on the machine's load: reading and parsing
 is `CurveReader::next_batch` (including the SHA-256 of the input for the
 provenance record), fitting is `analysis::ic50::analyse` (fit, outlier rule,
-calls, intervals, flags), writing is formatting each row (`Line::of`) plus
+calls, intervals, flags), writing is formatting each row (`Rendered::add`) plus
 copying the rows out (`StreamWriter::batch`).
 
 Usage (from the repo root, after `cargo build --release`):
@@ -108,7 +108,7 @@ def run_kimech(kimech, data, out, threads=None):
 PHASES = {
     "read + parse": ["kimech::io::ic50::CurveReader::next_batch"],
     "fit (robust rules, calls, intervals)": ["kimech::analysis::ic50::analyse"],
-    "format + write": ["kimech::view::ic50::Line::of", "kimech::view::ic50::StreamWriter::batch"],
+    "format + write": ["kimech::view::ic50::Rendered::add", "kimech::view::ic50::StreamWriter::batch"],
 }
 
 
