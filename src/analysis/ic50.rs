@@ -863,15 +863,21 @@ fn worst_well<M: Model>(model: &M, data: &Data<M::Point>, fit: &Fit, alpha: f64)
     let free = &free_all[..n_free];
     let s2 = fit.sse / fit.df as f64;
     let mut worst: Option<(usize, f64)> = None;
+    let known = fit.leverage.as_deref().filter(|l| l.len() == data.len());
     for (i, (x, &e)) in data.x.iter().zip(&fit.residuals).enumerate() {
-        model.gradient(&fit.theta, x, grad);
-        let mut h = 0.0;
-        for (a, &ja) in free.iter().enumerate() {
-            for (b, &jb) in free.iter().enumerate() {
-                h += grad[ja] * cov[(a, b)] * grad[jb];
+        let h = match known {
+            Some(leverage) => leverage[i],
+            None => {
+                model.gradient(&fit.theta, x, grad);
+                let mut h = 0.0;
+                for (a, &ja) in free.iter().enumerate() {
+                    for (b, &jb) in free.iter().enumerate() {
+                        h += grad[ja] * cov[(a, b)] * grad[jb];
+                    }
+                }
+                h / s2
             }
-        }
-        let h = h / s2;
+        };
         if !(0.0..=0.99).contains(&h) {
             continue;
         }

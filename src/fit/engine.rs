@@ -138,6 +138,12 @@ pub struct Fit {
     pub termination: Termination,
     /// Residual evaluations spent over all starts.
     pub evaluations: usize,
+    /// The leverage of every point, gᵢᵀ(JᵀWJ)⁻¹gᵢ with gᵢ the model's
+    /// gradient there (the hat-matrix diagonal of an unweighted fit), when
+    /// the fitter had the gradients at hand as it built the covariance (the
+    /// dose-response kernel); `None` otherwise, and the outlier rule
+    /// evaluates the gradients itself.
+    pub leverage: Option<Vec<f64>>,
 }
 
 impl Fit {
@@ -395,6 +401,7 @@ pub fn summarise<M: Model>(
         residuals,
         termination,
         evaluations,
+        leverage: None,
     }
 }
 

@@ -557,6 +557,7 @@ fn summary(
     let span = lin.upper - lin.lower;
     let mut residuals = Vec::with_capacity(n);
     let mut information = Matrix4::<f64>::zeros();
+    let mut gradients = [[0.0; 4]; MAX_POINTS];
     for i in 0..n {
         let si = s[i];
         residuals.push(wells.y[i] - (lin.lower + span * si));
@@ -565,8 +566,9 @@ fn summary(
             true => (bend * h / ic50, -bend * (wells.ln_x[i] - a)),
             false => (0.0, 0.0),
         };
+        gradients[i] = [d_ic50, d_h, 1.0 - si, si];
         let root = wells.w[i].sqrt();
-        let row = [root * d_ic50, root * d_h, root * (1.0 - si), root * si];
+        let row = gradients[i].map(|g| root * g);
         for j in 0..4 {
             for k in 0..4 {
                 information[(j, k)] += row[j] * row[k];
@@ -575,6 +577,21 @@ fn summary(
     }
     let df = n - 4;
     let covariance = covariance_of_information4(&information, lin.sse, df)?;
+    // The outlier rule's leverages gᵀ(JᵀWJ)⁻¹g, from the gradients just made
+    // (it would otherwise evaluate the model at every well again).
+    let s2 = lin.sse / df as f64;
+    let leverage = gradients[..n]
+        .iter()
+        .map(|g| {
+            let mut q = 0.0;
+            for j in 0..4 {
+                for k in 0..4 {
+                    q += g[j] * covariance[(j, k)] * g[k];
+                }
+            }
+            q / s2
+        })
+        .collect();
     let se = (0..4)
         .map(|j| {
             let v = covariance[(j, j)];
@@ -596,6 +613,7 @@ fn summary(
         residuals,
         termination: Termination::Converged,
         evaluations: iterations,
+        leverage: Some(leverage),
     })
 }
 
@@ -868,6 +886,45 @@ mod tests {
             })
             .count();
         assert!(answered * 1000 >= total * 995, "kernel answered {answered} of {total}");
+    }
+
+    /// The leverages the kernel hands the outlier rule are the ones the
+    /// rule computes itself from the model's gradient and the covariance,
+    /// gᵀ(C/s²)g, on curves of every shape it answers (with and without a
+    /// zero-dose well).
+    #[test]
+    fn leverages_are_the_models() {
+        let mut rng = rand::rngs::StdRng::seed_from_u64(29);
+        let mut conc: Vec<f64> = (0..10).map(|k| 10000.0 / 3f64.powi(k)).collect();
+        let mut checked = 0;
+        for k in 0..200 {
+            if k == 100 {
+                conc[9] = 0.0;
+            }
+            let ic50 = (rng.random_range(1f64.ln()..10000f64.ln())).exp();
+            let (hill, lower) = (rng.random_range(0.4..3.0), rng.random_range(-5.0..30.0));
+            let data = curve(&conc, ic50, hill, lower, 100.0, 4.0, &mut rng);
+            let Some(fit) = fit_logistic_projected(&data) else { continue };
+            let (leverage, cov) = (fit.leverage.as_ref().unwrap(), fit.covariance.as_ref().unwrap());
+            let s2 = fit.sse / fit.df as f64;
+            let mut g = [0.0; 4];
+            for (i, x) in data.x.iter().enumerate() {
+                Logistic.gradient(&fit.theta, x, &mut g);
+                let q: f64 =
+                    (0..4).flat_map(|a| (0..4).map(move |b| (a, b))).map(|(a, b)| g[a] * cov[(a, b)] * g[b]).sum();
+                let h = q / s2;
+                assert!(
+                    (leverage[i] - h).abs() <= 1e-10 * h.abs().max(1e-3),
+                    "well {i}: kernel {} model {h}",
+                    leverage[i]
+                );
+            }
+            // Leverages of a four-parameter fit sum to four (the trace of the hat matrix).
+            let trace: f64 = leverage.iter().sum();
+            assert!((trace - 4.0).abs() < 1e-8, "sum of leverages {trace}");
+            checked += 1;
+        }
+        assert!(checked >= 150, "the kernel answered only {checked} of 200");
     }
 
     /// The kernel's one data-driven start is the model's first start, on
