@@ -556,7 +556,8 @@ fn summary(
     let ic50 = a.exp();
     let span = lin.upper - lin.lower;
     let mut residuals = Vec::with_capacity(n);
-    let mut information = Matrix4::<f64>::zeros();
+    // JᵀWJ is symmetric: its upper triangle is summed (on the stack) and mirrored.
+    let mut upper = [[0.0; 4]; 4];
     let mut gradients = [[0.0; 4]; MAX_POINTS];
     for i in 0..n {
         let si = s[i];
@@ -567,16 +568,18 @@ fn summary(
             false => (0.0, 0.0),
         };
         gradients[i] = [d_ic50, d_h, 1.0 - si, si];
-        let root = wells.w[i].sqrt();
+        let root = if wells.unit_weights { 1.0 } else { wells.w[i].sqrt() };
         let row = gradients[i].map(|g| root * g);
         for j in 0..4 {
-            for k in 0..4 {
-                information[(j, k)] += row[j] * row[k];
+            for k in j..4 {
+                upper[j][k] += row[j] * row[k];
             }
         }
     }
+    let information = Matrix4::from_fn(|j, k| upper[j.min(k)][j.max(k)]);
     let df = n - 4;
     let covariance = covariance_of_information4(&information, lin.sse, df)?;
+    let c: [[f64; 4]; 4] = std::array::from_fn(|j| std::array::from_fn(|k| covariance[(j, k)]));
     // The outlier rule's leverages gᵀ(JᵀWJ)⁻¹g, from the gradients just made
     // (it would otherwise evaluate the model at every well again).
     let s2 = lin.sse / df as f64;
@@ -586,7 +589,7 @@ fn summary(
             let mut q = 0.0;
             for j in 0..4 {
                 for k in 0..4 {
-                    q += g[j] * covariance[(j, k)] * g[k];
+                    q += g[j] * c[j][k] * g[k];
                 }
             }
             q / s2
