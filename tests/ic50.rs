@@ -368,6 +368,70 @@ fn output_is_the_same_whatever_the_threads_and_batches() {
     assert_eq!(names, (0..40).map(|i| format!("KX-{i:03}")).collect::<Vec<_>>());
 }
 
+/// Curves are fitted in chunks of a batch, each rendered into one buffer:
+/// across chunk and batch boundaries, with failures among the curves, the
+/// rows come out in input order, the failures are named in input order, and
+/// every format and the pictures see the same curves whatever the threads
+/// and batch size.
+#[test]
+fn chunked_batches_keep_order_failures_and_pictures() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut text = String::from("compound,concentration (nM),response\n");
+    let failing = |i: usize| i % 23 == 5;
+    for i in 0..150 {
+        let name = format!("KX-{i:03}");
+        match failing(i) {
+            // One concentration: refused with a message naming the compound.
+            true => text.push_str(&(0..4).map(|_| format!("{name},10,50\n")).collect::<String>()),
+            false => text.push_str(&good_rows(&name, 5.0 * (i + 1) as f64, "")),
+        }
+    }
+    let path = write(&dir, "chunks.csv", &text);
+    let run = |threads: &str, batch: &str, format: &str, plots: &str| {
+        let plot_dir = dir.path().join(plots);
+        let out = kimech()
+            .env("RAYON_NUM_THREADS", threads)
+            .args(["ic50", &path, "--format", format, "--batch-size", batch, "--plot", plot_dir.to_str().unwrap()])
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(3), "{}", String::from_utf8_lossy(&out.stderr));
+        let svgs = std::fs::read_dir(&plot_dir).unwrap().count();
+        (out.stdout, String::from_utf8(out.stderr).unwrap(), svgs)
+    };
+    let ok: Vec<String> = (0..150).filter(|&i| !failing(i)).map(|i| format!("KX-{i:03}")).collect();
+    let bad: Vec<String> = (0..150).filter(|&i| failing(i)).map(|i| format!("KX-{i:03}")).collect();
+    for format in ["csv", "json", "table"] {
+        let (reference, stderr, svgs) = run("1", "1000", format, &format!("{format}-a"));
+        // One SVG per fitted compound, and the overview grid.
+        assert_eq!(svgs, ok.len() + 1, "{format}");
+        let named: Vec<&str> =
+            stderr.lines().filter_map(|l| l.split("compound '").nth(1)?.split('\'').next()).collect();
+        assert_eq!(named, bad, "{format}: {stderr}");
+        for (threads, batch, tag) in [("2", "1000", "b"), ("2", "7", "c"), ("2", "100", "d")] {
+            // The table for people is laid out batch by batch (column widths), so only threads vary there.
+            if format == "table" && batch != "1000" {
+                continue;
+            }
+            let (out, err, svgs) = run(threads, batch, format, &format!("{format}-{tag}"));
+            // JSON ends with its provenance, which names the command line: compare the results.
+            let results = |bytes: &[u8]| match format {
+                "json" => {
+                    serde_json::from_slice::<serde_json::Value>(bytes).unwrap()["results"].to_string().into_bytes()
+                }
+                _ => bytes.to_vec(),
+            };
+            assert!(results(&out) == results(&reference), "{format}, {threads} threads, batch {batch}");
+            assert_eq!(err, stderr, "{format}, {threads} threads, batch {batch}");
+            assert_eq!(svgs, ok.len() + 1);
+        }
+        if format == "csv" {
+            let text = String::from_utf8(reference).unwrap();
+            let names: Vec<&str> = text.lines().skip(1).map(|l| l.split(',').next().unwrap()).collect();
+            assert_eq!(names, ok);
+        }
+    }
+}
+
 /// The CSV output is valid input for the next step: `ic50 (unit)` with the
 /// qualifier in the cell, interval and Hill columns, carried columns.
 #[test]
