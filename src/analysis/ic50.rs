@@ -396,6 +396,13 @@ pub fn analyse(curve: &Curve, options: &Options) -> Result<Ic50Result> {
 /// values equal under `total_cmp` are the same bits, so the order found is
 /// the one sorting gives.
 fn tested_range(x: &[f64]) -> (usize, f64, f64) {
+    // A dilution series comes in order: read in place, ascending or descending.
+    if x.is_sorted_by(|a, b| a.total_cmp(b).is_le()) {
+        return range_of_sorted(x.iter().copied());
+    }
+    if x.is_sorted_by(|a, b| a.total_cmp(b).is_ge()) {
+        return range_of_sorted(x.iter().rev().copied());
+    }
     let mut stack = [0.0; 32];
     let mut heap;
     let sorted: &mut [f64] = match stack.get_mut(..x.len()) {
@@ -408,26 +415,27 @@ fn tested_range(x: &[f64]) -> (usize, f64, f64) {
             &mut heap
         }
     };
-    if !sorted.is_sorted_by(|a, b| a.total_cmp(b).is_le()) {
-        if sorted.is_sorted_by(|a, b| a.total_cmp(b).is_ge()) {
-            sorted.reverse();
-        } else {
-            sorted.sort_by(f64::total_cmp);
-        }
-    }
-    // `Vec::dedup_by` by hand: a value within 1e-12 (relative) of the last one kept is dropped.
-    let mut len = 0;
-    for i in 0..sorted.len() {
-        let v = sorted[i];
-        if len > 0 && (v - sorted[len - 1]).abs() <= 1e-12 * sorted[len - 1].abs() {
+    sorted.sort_by(f64::total_cmp);
+    range_of_sorted(sorted.iter().copied())
+}
+
+/// [`tested_range`] of values in ascending order: a value within 1e-12
+/// (relative) of the last one kept is the same concentration.
+fn range_of_sorted(sorted: impl Iterator<Item = f64>) -> (usize, f64, f64) {
+    let (mut levels, mut min_pos, mut last) = (0, f64::NAN, None::<f64>);
+    for v in sorted {
+        if let Some(kept) = last
+            && (v - kept).abs() <= 1e-12 * kept.abs()
+        {
             continue;
         }
-        sorted[len] = v;
-        len += 1;
+        levels += 1;
+        if v > 0.0 && min_pos.is_nan() {
+            min_pos = v;
+        }
+        last = Some(v);
     }
-    let sorted = &sorted[..len];
-    let min_pos = sorted.iter().copied().find(|v| *v > 0.0).unwrap_or(f64::NAN);
-    (sorted.len(), min_pos, sorted.last().copied().unwrap_or(f64::NAN))
+    (levels, min_pos, last.unwrap_or(f64::NAN))
 }
 
 /// Rejects curves no fit can use.
