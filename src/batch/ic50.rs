@@ -373,14 +373,13 @@ fn write_all(
         writer.batch(&rendered, done.unit)?;
         for chunk in &mut done.chunks {
             summary.total += chunk.total;
-            for e in std::mem::take(&mut chunk.failures) {
+            for k in 0..chunk.failures.len() {
                 // A missing unit is a property of the input, not of one compound: stop once.
-                if let Error::NoUnit { .. } = e {
-                    return Err(e);
+                if let Error::NoUnit { .. } = chunk.failures[k] {
+                    return Err(chunk.failures.swap_remove(k));
                 }
-                eprintln!("kimech: {e}");
+                eprintln!("kimech: {}", chunk.failures[k]);
                 summary.failed += 1;
-                chunk.failures.push(e);
             }
         }
         if let Some(pics) = pictures.as_deref_mut() {

@@ -142,7 +142,10 @@ pub struct Fit {
     /// gradient there (the hat-matrix diagonal of an unweighted fit), when
     /// the fitter had the gradients at hand as it built the covariance (the
     /// dose-response kernel); `None` otherwise, and the outlier rule
-    /// evaluates the gradients itself.
+    /// evaluates the gradients itself. Valid only for the data and θ it was
+    /// computed with (and any reparametrisation of the same curve, such as
+    /// the logistic's mirror image): whatever refits or edits a fit must
+    /// set it to `None` or recompute it.
     pub leverage: Option<Vec<f64>>,
 }
 

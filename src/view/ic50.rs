@@ -349,8 +349,7 @@ fn csv_header(carried: &[String], context: &Context) -> Vec<String> {
     ours.chain(carried.iter().cloned()).collect()
 }
 
-/// A result's CSV row, rendered (on a worker thread).
-/// `r`'s CSV row after `rows` (in the same buffer).
+/// `r`'s CSV row after `rows` (in the same buffer, on the worker thread that fitted it).
 fn csv_row(rows: RenderedRow, r: &Ic50Result, morrison: bool) -> RenderedRow {
     let mut row = RowBuilder::after(rows);
     for column in COLUMNS.iter().filter(|c| c.present(morrison)) {
@@ -408,7 +407,9 @@ impl Rendered {
                     self.json.extend_from_slice(b",\n");
                 }
                 // Serialising plain data into memory cannot fail; an empty object would show if it did.
+                let before = self.json.len();
                 if serde_json::to_writer(&mut self.json, &r).is_err() {
+                    self.json.truncate(before);
                     self.json.extend_from_slice(b"{}");
                 }
             }
