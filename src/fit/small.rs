@@ -15,7 +15,7 @@
 use levenberg_marquardt::{LeastSquaresProblem, LevenbergMarquardt};
 use nalgebra::allocator::{Allocator, Reallocator};
 use nalgebra::{DefaultAllocator, Dim, DimMax, DimMaximum, DimMin, DimName, Dyn, OMatrix, OVector, Owned};
-use nalgebra::{U1, U2, U3, U4, U12, U24};
+use nalgebra::{U1, U2, U3, U4, U10, U12, U24};
 
 use super::engine::{Termination, admissible, summarise, weighted_sse};
 use super::{Data, Fit, FitSettings, Model, fit_from};
@@ -118,7 +118,10 @@ pub fn fit_small<M: Model>(
         };
     }
     let n = data.len();
-    let outcome = if n <= 12 {
+    let outcome = if n == 10 {
+        // Ten wells, the usual dose-response curve: no padding rows to carry.
+        by_free!(U10, 10)
+    } else if n <= 12 {
         by_free!(U12, 12)
     } else if n <= 24 {
         by_free!(U24, 24)
@@ -222,8 +225,8 @@ mod tests {
         }
         // NIST certified b1 = 437.36970754.
         assert!((b.theta[0] - 437.36970754).abs() < 1e-6);
-        // Padded (10 rows in 12) and dynamic (14 rows repeated to 28) layouts agree too.
-        for take in [10, 14] {
+        // Ten rows exactly, padded (11 rows in 12) and dynamic (14 rows repeated to 28) layouts agree too.
+        for take in [10, 11, 14] {
             let mut x: Vec<f64> = data.x[..take].to_vec();
             let mut y: Vec<f64> = data.y[..take].to_vec();
             if take == 14 {
