@@ -218,10 +218,12 @@ impl<M: Model> LeastSquaresProblem<f64, Dyn, Dyn> for Problem<'_, M> {
         let scales = self.model.scales();
         let mut grad = vec![0.0; self.theta.len()];
         let mut jac = DMatrix::zeros(self.data.len(), self.free.len());
+        // The chain-rule factor of each free parameter, once per Jacobian rather than per row.
+        let chain: Vec<f64> = self.free.iter().map(|&j| scales[j].derivative(self.theta[j])).collect();
         for (i, (x, sw)) in self.data.x.iter().zip(&self.sqrt_w).enumerate() {
             self.model.gradient(&self.theta, x, &mut grad);
             for (k, &j) in self.free.iter().enumerate() {
-                let d = -sw * grad[j] * scales[j].derivative(self.theta[j]);
+                let d = -sw * grad[j] * chain[k];
                 jac[(i, k)] = if d.is_finite() { d } else { 0.0 };
             }
         }

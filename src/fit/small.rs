@@ -77,10 +77,15 @@ where
         let theta = &self.theta[..self.p];
         let mut grad = [0.0; MAX_PARAMS];
         let mut jac = OMatrix::<f64, R, N>::zeros_generic(R::from_usize(self.rows), N::name());
+        // The chain-rule factor of each free parameter, once per Jacobian rather than per row.
+        let mut chain = [0.0; MAX_PARAMS];
+        for (k, &j) in self.free.iter().enumerate() {
+            chain[k] = scales[j].derivative(theta[j]);
+        }
         for (i, (x, sw)) in self.data.x.iter().zip(self.sqrt_w).enumerate() {
             self.model.gradient(theta, x, &mut grad[..self.p]);
             for (k, &j) in self.free.iter().enumerate() {
-                let d = -sw * grad[j] * scales[j].derivative(theta[j]);
+                let d = -sw * grad[j] * chain[k];
                 jac[(i, k)] = if d.is_finite() { d } else { 0.0 };
             }
         }
