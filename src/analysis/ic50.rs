@@ -154,17 +154,10 @@ impl Location {
     /// (`plate.csv, line 5` for one row), or the description of a curve not
     /// read from lines.
     pub fn span(&self) -> String {
-        let Some((first, last)) = self.rows else { return self.file.to_string() };
-        let mut digits = itoa::Buffer::new();
-        let mut out = String::with_capacity(self.file.len() + 32);
-        out.push_str(&self.file);
-        out.push_str(if first == last { ", line " } else { ", lines " });
-        out.push_str(digits.format(first));
-        if first != last {
-            out.push('-');
-            out.push_str(digits.format(last));
+        match self.rows {
+            Some((first, last)) => format!("{}, {}", self.file, crate::report::line_span(first, last)),
+            None => self.file.to_string(),
         }
-        out
     }
 
     /// The file and the wells' lines, as every output row names them (the
@@ -852,40 +845,18 @@ fn worst_well<M: Model>(model: &M, data: &Data<M::Point>, fit: &Fit, alpha: f64)
     if fit.df < 3 || !fit.converged() || fit.sse.is_nan() || fit.sse <= 0.0 {
         return None;
     }
-    // The models have a handful of parameters: indices and gradient on the stack.
-    let p = fit.theta.len();
-    let (mut free_stack, mut grad_stack) = ([0usize; 8], [0.0; 8]);
-    let (mut free_heap, mut grad_heap);
-    let (free_all, grad): (&mut [usize], &mut [f64]) = match p <= 8 {
-        true => (&mut free_stack[..p], &mut grad_stack[..p]),
-        false => {
-            (free_heap, grad_heap) = (vec![0usize; p], vec![0.0; p]);
-            (&mut free_heap[..], &mut grad_heap[..])
+    let s2 = fit.sse / fit.df as f64;
+    // The kernel hands its fits' leverages over; other fits' are computed here.
+    let computed;
+    let leverage = match fit.leverage.as_deref().filter(|l| l.len() == data.len()) {
+        Some(known) => known,
+        None => {
+            computed = leverages(model, data, fit, cov, s2);
+            &computed[..]
         }
     };
-    let mut n_free = 0;
-    for j in (0..p).filter(|&j| !fit.fixed[j]) {
-        free_all[n_free] = j;
-        n_free += 1;
-    }
-    let free = &free_all[..n_free];
-    let s2 = fit.sse / fit.df as f64;
     let mut worst: Option<(usize, f64)> = None;
-    let known = fit.leverage.as_deref().filter(|l| l.len() == data.len());
-    for (i, (x, &e)) in data.x.iter().zip(&fit.residuals).enumerate() {
-        let h = match known {
-            Some(leverage) => leverage[i],
-            None => {
-                model.gradient(&fit.theta, x, grad);
-                let mut h = 0.0;
-                for (a, &ja) in free.iter().enumerate() {
-                    for (b, &jb) in free.iter().enumerate() {
-                        h += grad[ja] * cov[(a, b)] * grad[jb];
-                    }
-                }
-                h / s2
-            }
-        };
+    for (i, (&h, &e)) in leverage.iter().zip(&fit.residuals).enumerate() {
         if !(0.0..=0.99).contains(&h) {
             continue;
         }
@@ -901,6 +872,26 @@ fn worst_well<M: Model>(model: &M, data: &Data<M::Point>, fit: &Fit, alpha: f64)
     let (i, t) = worst?;
     let bound = cached_t(1.0 - alpha / data.len() as f64, fit.df - 1)?;
     (t > bound).then_some(i)
+}
+
+/// The leverage gᵢᵀ(C/s²)gᵢ of every point, C the covariance of the free
+/// parameters and gᵢ the model's gradient there in them.
+fn leverages<M: Model>(model: &M, data: &Data<M::Point>, fit: &Fit, cov: &nalgebra::DMatrix<f64>, s2: f64) -> Vec<f64> {
+    let free: Vec<usize> = (0..fit.theta.len()).filter(|&j| !fit.fixed[j]).collect();
+    let mut grad = vec![0.0; fit.theta.len()];
+    data.x
+        .iter()
+        .map(|x| {
+            model.gradient(&fit.theta, x, &mut grad);
+            let mut h = 0.0;
+            for (a, &ja) in free.iter().enumerate() {
+                for (b, &jb) in free.iter().enumerate() {
+                    h += grad[ja] * cov[(a, b)] * grad[jb];
+                }
+            }
+            h / s2
+        })
+        .collect()
 }
 
 /// p of the extra-sum-of-squares F test of a flat line (the mean) against

@@ -7,6 +7,8 @@ use std::io::Read;
 
 use super::line_endings::{LineLog, UnifiedLineEndings};
 use crate::error::{CellError, Error, Result};
+/// "line 4" or "lines 4-9" (readers that stream name their groups by it).
+pub use crate::report::line_span;
 use crate::units::{ACCEPTED_UNITS, CellProblem, ConcUnit, Qualifier, Written, parse_written, plain_decimal};
 
 /// A column a command looks for: its name and other accepted spellings.
@@ -435,12 +437,6 @@ pub fn group_by_label(table: &Table, label_col: Option<usize>) -> Vec<(Option<St
 /// Where a group's rows are: the table's source and their lines.
 pub fn rows_source(table: &Table, rows: &[&Record]) -> crate::report::Origin {
     crate::report::Origin::new(&table.source, rows.iter().map(|r| r.line))
-}
-
-/// "line 4" or "lines 4-9", from a group's first and last line (for readers
-/// that stream and keep no rows).
-pub fn line_span(first: u64, last: u64) -> String {
-    if first == last { format!("line {first}") } else { format!("lines {first}-{last}") }
 }
 
 #[cfg(test)]

@@ -206,6 +206,12 @@ impl Warning {
     }
 }
 
+/// "line 4" or "lines 4-9", from a group's first and last line (for readers
+/// that stream and keep no rows, and the curves they make).
+pub fn line_span(first: u64, last: u64) -> String {
+    if first == last { format!("line {first}") } else { format!("lines {first}-{last}") }
+}
+
 /// A group's id as quoted in a message: at most 40 characters, the rest
 /// replaced by `…`, so that an id pasted by mistake (a whole row, a long
 /// string) cannot bury the message.

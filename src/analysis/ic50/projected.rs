@@ -611,7 +611,7 @@ fn summary(
         n_free: 4,
         df,
         sse: lin.sse,
-        residual_sd: (lin.sse / df as f64).sqrt(),
+        residual_sd: s2.sqrt(),
         r2: r_squared(data, lin.sse),
         residuals,
         termination: Termination::Converged,
@@ -800,20 +800,8 @@ mod tests {
     fn reference(data: &Data<Dose>) -> Fit {
         let mut starts = Logistic.starts(data);
         let n = data.len();
-        let mut ln_x = vec![0.0; n];
-        let mut positive = vec![false; n];
-        for (i, d) in data.x.iter().enumerate() {
-            positive[i] = d.x > 0.0;
-            ln_x[i] = if positive[i] { d.ln_x } else { 0.0 };
-        }
-        let wells = Wells {
-            ln_x: &ln_x,
-            positive: &positive,
-            y: &data.y,
-            w: &data.weights,
-            weight_sum: n as f64,
-            unit_weights: false,
-        };
+        let doses = Doses::of(data);
+        let wells = Wells::new(&doses, data).expect("test curves have finite responses");
         let mut s = vec![0.0; n];
         if let Some((a, h)) = best_start(&wells, data, &mut s) {
             wells.fractions(a, h, &mut s);
@@ -922,7 +910,8 @@ mod tests {
                     leverage[i]
                 );
             }
-            // Leverages of a four-parameter fit sum to four (the trace of the hat matrix).
+            // Leverages of a four-parameter fit sum to four: the trace of the hat matrix of a
+            // linearised fit is its number of parameters (Cook & Weisberg 1982, ch. 2).
             let trace: f64 = leverage.iter().sum();
             assert!((trace - 4.0).abs() < 1e-8, "sum of leverages {trace}");
             checked += 1;
@@ -953,20 +942,11 @@ mod tests {
     fn grid_sse_is_the_projected_sse() {
         let mut rng = rand::rngs::StdRng::seed_from_u64(5);
         let conc: Vec<f64> = (0..10).map(|k| 10000.0 / 3f64.powi(k)).collect();
-        let ln_x: Vec<f64> = conc.iter().map(|c| c.ln()).collect();
-        let positive = vec![true; conc.len()];
         for scale in [1.0, 1e7] {
             for _ in 0..50 {
                 let data = curve(&conc, 100.0, 1.0, 0.0, 100.0 * scale, 3.0 * scale, &mut rng);
-                let w = vec![1.0; conc.len()];
-                let wells = Wells {
-                    ln_x: &ln_x,
-                    positive: &positive,
-                    y: &data.y,
-                    w: &w,
-                    weight_sum: conc.len() as f64,
-                    unit_weights: true,
-                };
+                let doses = Doses::of(&data);
+                let wells = Wells::new(&doses, &data).expect("finite responses");
                 let mean = data.y.iter().sum::<f64>() / conc.len() as f64;
                 let centred: Vec<f64> = data.y.iter().map(|y| y - mean).collect();
                 let total: f64 = centred.iter().map(|c| c * c).sum();
