@@ -42,10 +42,14 @@ pub struct RowStream {
     consumed: u64,
     /// Whether a UTF-8 byte order mark at the very start was looked for.
     bom_checked: bool,
-    /// The current record's text (checked for UTF-8 once).
+    /// The current record's text (checked for UTF-8 once), unless it is
+    /// read in place (`in_buf`).
     text: String,
-    /// Where each trimmed field lies in `text`.
+    /// Where each trimmed field lies in `text`, or in `buf` when `in_buf`.
     fields: Vec<(usize, usize)>,
+    /// The current record is ASCII without a quote, and its fields lie in
+    /// `buf` (which only `fill` changes, and only once they are cleared).
+    in_buf: bool,
     /// The unescaped fields of a quoted record, and where each ends.
     unquoted: Vec<u8>,
     ends: Vec<usize>,
@@ -87,6 +91,7 @@ impl RowStream {
             bom_checked: false,
             text: String::new(),
             fields: Vec::new(),
+            in_buf: false,
             unquoted: Vec::new(),
             ends: Vec::new(),
             rows: 0,
@@ -159,6 +164,9 @@ impl RowStream {
 
     /// Splits the next record into `text` and `fields`; false at the end.
     fn next_record(&mut self) -> Result<bool> {
+        // The fields of the record before are gone (`fill` may move `buf`).
+        self.fields.clear();
+        self.in_buf = false;
         if !self.bom_checked {
             // As csv-core: a BOM is dropped when the first read holds all of it.
             while self.filled < 3 && self.fill()? {}
@@ -211,8 +219,17 @@ impl RowStream {
     /// when it has a quote.
     fn split_plain(&mut self, end: usize) -> Option<bool> {
         let start = self.pos;
-        let line = &self.buf[start..end];
+        let newline = end < self.filled;
         self.fields.clear();
+        if split_ascii(&self.buf[start..end], start, self.delimiter, &mut self.fields) {
+            // The usual line: its fields are read where they lie.
+            self.in_buf = true;
+            self.pos = end + usize::from(newline);
+            self.next_line += u64::from(newline);
+            return Some(true);
+        }
+        self.fields.clear();
+        let line = &self.buf[start..end];
         let (delimiter, mut from) = (self.delimiter, 0);
         for (at, &b) in line.iter().enumerate() {
             if b == delimiter {
@@ -223,7 +240,6 @@ impl RowStream {
             }
         }
         self.fields.push((from, line.len()));
-        let newline = end < self.filled;
         self.pos = end + usize::from(newline);
         self.next_line += u64::from(newline);
         self.text.clear();
@@ -302,7 +318,15 @@ impl RowStream {
 
     /// Field `k` of the current record, trimmed ("" past the end).
     fn field(&self, k: usize) -> &str {
-        self.fields.get(k).and_then(|&(a, b)| self.text.get(a..b)).unwrap_or("")
+        let Some(&(a, b)) = self.fields.get(k) else { return "" };
+        if self.in_buf {
+            // SAFETY: `split_ascii` found every byte of the record, which
+            // holds `buf[a..b]`, to be ASCII, hence UTF-8; `buf` has not
+            // changed since (`next_record` clears `fields` and `in_buf`
+            // before anything can move or overwrite it).
+            return self.buf.get(a..b).map_or("", |bytes| unsafe { std::str::from_utf8_unchecked(bytes) });
+        }
+        self.text.get(a..b).unwrap_or("")
     }
 
     /// The header (and file name) as a table without rows, for the cell accessors.
@@ -361,6 +385,60 @@ impl Row for RowStream {
     fn cell(&self, col: usize) -> &str {
         self.field(col)
     }
+}
+
+/// Splits `line`, which lies at `base` in the buffer, into its fields
+/// (trimmed, as offsets in the buffer) when it is ASCII without a quote,
+/// looking at eight bytes at a time; false, with `fields` to be cleared,
+/// for any other line (a quote or a byte that is not ASCII).
+#[inline]
+fn split_ascii(line: &[u8], base: usize, delimiter: u8, fields: &mut Vec<(usize, usize)>) -> bool {
+    const ONES: u64 = 0x0101_0101_0101_0101;
+    const HIGH: u64 = 0x8080_8080_8080_8080;
+    // The bytes of `word` equal to `b`, as their high bits (exactly: the
+    // addition cannot carry from one byte into the next).
+    let equal = |word: u64, b: u8| {
+        let t = word ^ (ONES * u64::from(b));
+        !(((t & !HIGH) + !HIGH) | t | !HIGH)
+    };
+    let space = |b: u8| matches!(b, b'\t' | b'\n' | 0x0b | 0x0c | b'\r' | b' ');
+    let mut from = 0;
+    let mut push = |from: usize, to: usize| {
+        // ASCII text: `str::trim` strips exactly these bytes.
+        let (mut a, mut b) = (from, to);
+        while a < b && space(line[a]) {
+            a += 1;
+        }
+        while b > a && space(line[b - 1]) {
+            b -= 1;
+        }
+        fields.push((base + a, base + b));
+    };
+    let mut at = 0;
+    while at < line.len() {
+        let rest = &line[at..];
+        let (word, valid) = match rest.first_chunk::<8>() {
+            Some(chunk) => (u64::from_le_bytes(*chunk), HIGH),
+            None => {
+                let mut padded = [0u8; 8];
+                padded[..rest.len()].copy_from_slice(rest);
+                (u64::from_le_bytes(padded), HIGH & ((1u64 << (8 * rest.len())) - 1))
+            }
+        };
+        if (word & HIGH) | (equal(word, b'"') & valid) != 0 {
+            return false;
+        }
+        let mut delimiters = equal(word, delimiter) & valid;
+        while delimiters != 0 {
+            let i = at + (delimiters.trailing_zeros() / 8) as usize;
+            push(from, i);
+            from = i + 1;
+            delimiters &= delimiters - 1;
+        }
+        at += 8;
+    }
+    push(from, line.len());
+    true
 }
 
 /// `text` without leading and trailing whitespace, as `str::trim` (ASCII
@@ -473,6 +551,37 @@ mod tests {
     fn trims_as_str_trim_does() {
         for text in ["", " ", "a", " a ", "\t12.5\x0b", "\u{a0}x\u{2003}", " é ", "\u{85}", "a b", " \u{a0} "] {
             assert_eq!(trim(text), text.trim(), "{text:?}");
+        }
+    }
+
+    /// The eight-bytes-at-a-time split of an ASCII line gives the fields
+    /// (trimmed) that splitting at every delimiter gives, on random lines of
+    /// every length around a word, and declines a line with a quote or a
+    /// byte that is not ASCII.
+    #[test]
+    fn ascii_lines_split_as_str_split_does() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand::rngs::StdRng::seed_from_u64(21);
+        let alphabet: &[u8] = b"ab1.,,\t\t \x0b\x0c\r\n#;";
+        for case in 0..100_000 {
+            let delimiter = if case % 2 == 0 { b',' } else { b'\t' };
+            let len = rng.random_range(0..40);
+            let mut line: Vec<u8> = (0..len).map(|_| alphabet[rng.random_range(0..alphabet.len())]).collect();
+            let declined = case % 5 == 0 && len > 0;
+            if declined {
+                let odd = [b'"', 0x80, 0xc3, 0xff][rng.random_range(0..4)];
+                line[rng.random_range(0..len)] = odd;
+            }
+            let base = rng.random_range(0..100);
+            let mut fields = Vec::new();
+            let split = split_ascii(&line, base, delimiter, &mut fields);
+            let text = String::from_utf8_lossy(&line);
+            assert_eq!(split, !declined, "{text:?}");
+            if split {
+                let expected: Vec<&str> = text.split(char::from(delimiter)).map(str::trim).collect();
+                let got: Vec<&str> = fields.iter().map(|&(a, b)| &text[a - base..b - base]).collect();
+                assert_eq!(got, expected, "{text:?}");
+            }
         }
     }
 
