@@ -273,22 +273,35 @@ pub(crate) fn plain_decimal(cell: &str) -> Option<f64> {
     if bytes.is_empty() || bytes.len() > 16 {
         return None;
     }
-    let (mut mantissa, mut point) = (0u64, None);
-    for (i, &b) in bytes.iter().enumerate() {
+    // The digits before the point, then (after it) the rest, which must all
+    // be digits: one test a byte in either loop.
+    let (mut mantissa, mut i) = (0u64, 0);
+    while let Some(&b) = bytes.get(i) {
         let digit = b.wrapping_sub(b'0');
-        if digit < 10 {
-            mantissa = 10 * mantissa + u64::from(digit);
-        } else if b == b'.' && point.is_none() {
-            point = Some(i);
-        } else {
+        if digit >= 10 {
+            break;
+        }
+        mantissa = 10 * mantissa + u64::from(digit);
+        i += 1;
+    }
+    let point = i < bytes.len();
+    if point {
+        if bytes[i] != b'.' {
             return None;
         }
+        for &b in &bytes[i + 1..] {
+            let digit = b.wrapping_sub(b'0');
+            if digit >= 10 {
+                return None;
+            }
+            mantissa = 10 * mantissa + u64::from(digit);
+        }
     }
-    let digits = bytes.len() - usize::from(point.is_some());
+    let digits = bytes.len() - usize::from(point);
     if digits == 0 || digits > 15 {
         return None;
     }
-    let decimals = point.map_or(0, |p| bytes.len() - 1 - p);
+    let decimals = if point { bytes.len() - 1 - i } else { 0 };
     let value = mantissa as f64 / POWERS[decimals];
     Some(if negative { -value } else { value })
 }

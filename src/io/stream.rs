@@ -404,13 +404,15 @@ fn split_ascii(line: &[u8], base: usize, delimiter: u8, fields: &mut Vec<(usize,
     let space = |b: u8| matches!(b, b'\t' | b'\n' | 0x0b | 0x0c | b'\r' | b' ');
     let mut from = 0;
     let mut push = |from: usize, to: usize| {
-        // ASCII text: `str::trim` strips exactly these bytes.
+        // ASCII text: `str::trim` strips exactly these bytes, all below '!'.
         let (mut a, mut b) = (from, to);
-        while a < b && space(line[a]) {
-            a += 1;
-        }
-        while b > a && space(line[b - 1]) {
-            b -= 1;
+        if line[a..b].first().is_some_and(|&c| c <= b' ') || line[a..b].last().is_some_and(|&c| c <= b' ') {
+            while a < b && space(line[a]) {
+                a += 1;
+            }
+            while b > a && space(line[b - 1]) {
+                b -= 1;
+            }
         }
         fields.push((base + a, base + b));
     };
