@@ -115,39 +115,74 @@ pub fn export_number(v: Option<f64>) -> String {
 /// standard formatter; both give the shortest round-trip digits, the
 /// closest to the value when several are as short (a test compares them on
 /// three million values).
+#[inline]
 pub fn write_shortest(x: f64, out: &mut Vec<u8>) {
     let mut buffer = zmij::Buffer::new();
     let text = buffer.format_finite(x).as_bytes();
     if may_tie(x) && tie_in(x, text) {
-        // At an exact tie between two shortest candidates the formatter may round to even
-        // where the standard library rounds up: print those values its way.
-        out.extend_from_slice(format!("{x}").as_bytes());
-        return;
+        return write_tie(x, out);
     }
-    // An exponent (`e-7`, `e+300`) is among the last five bytes, if anywhere.
-    let tail = &text[text.len().saturating_sub(5)..];
-    if !tail.iter().fold(false, |e, &b| e | (b == b'e')) {
-        // `123.45`, `0.00012` as they are; `100.0` without its `.0`.
-        out.extend_from_slice(text.strip_suffix(b".0").unwrap_or(text));
-        return;
+    // Between 1e-5 and 1e15 the formatter writes no exponent (its shortest
+    // digits lie in its plain range, -5 ≤ exponent ≤ 15): no need to look.
+    if !(1e-5..1e15).contains(&x.abs())
+        && let Some(e) = exponent_at(text)
+    {
+        return write_plain(text, e, out);
     }
-    let (digits, n, point) = significant(text);
-    if text[0] == b'-' {
+    // `123.45`, `0.00012` as they are; `100.0` without its `.0`.
+    out.extend_from_slice(text.strip_suffix(b".0").unwrap_or(text));
+}
+
+/// At an exact tie between two shortest candidates the formatter may round to even
+/// where the standard library rounds up: those values are printed its way.
+#[cold]
+#[inline(never)]
+fn write_tie(x: f64, out: &mut Vec<u8>) {
+    out.extend_from_slice(format!("{x}").as_bytes());
+}
+
+/// Where the formatter's exponent begins, if it wrote one: it writes `e-7`,
+/// `e+22` or `e-300` after the digits, so its `e` is three to five bytes
+/// from the end (its plain form, `-0.00001` to `999999999999999.9`, has none).
+fn exponent_at(text: &[u8]) -> Option<usize> {
+    let n = text.len();
+    (n.saturating_sub(5)..n.saturating_sub(2)).rev().find(|&i| text[i] == b'e')
+}
+
+/// The formatter's scientific text (`d.ddde-k`, `de+k`, with or without a
+/// sign; `e` at `e`) written out in plain digits, as `{}` writes it.
+#[cold]
+#[inline(never)]
+fn write_plain(text: &[u8], e: usize, out: &mut Vec<u8>) {
+    let exponent = parse_exponent(&text[e + 1..]);
+    let (negative, mantissa) = match &text[..e] {
+        [b'-', rest @ ..] => (true, rest),
+        mantissa => (false, mantissa),
+    };
+    let (first, rest) = mantissa.split_at(mantissa.len().min(1));
+    let mut rest = rest.strip_prefix(b".").unwrap_or(rest);
+    while let [head @ .., b'0'] = rest {
+        rest = head;
+    }
+    out.reserve(first.len() + rest.len() + exponent.unsigned_abs() as usize + 3);
+    if negative {
         out.push(b'-');
     }
-    let digits = &digits[..n];
-    // The value is 0.d₁d₂…dₙ × 10^point.
-    if point <= 0 {
+    // The value is d.rest × 10^exponent, d ≠ 0.
+    if exponent < 0 {
         out.extend_from_slice(b"0.");
-        out.resize(out.len() + (-point) as usize, b'0');
-        out.extend_from_slice(digits);
-    } else if (point as usize) < n {
-        out.extend_from_slice(&digits[..point as usize]);
+        out.resize(out.len() + (-exponent - 1) as usize, b'0');
+        out.extend_from_slice(first);
+        out.extend_from_slice(rest);
+    } else if (exponent as usize) < rest.len() {
+        out.extend_from_slice(first);
+        out.extend_from_slice(&rest[..exponent as usize]);
         out.push(b'.');
-        out.extend_from_slice(&digits[point as usize..]);
+        out.extend_from_slice(&rest[exponent as usize..]);
     } else {
-        out.extend_from_slice(digits);
-        out.resize(out.len() + point as usize - n, b'0');
+        out.extend_from_slice(first);
+        out.extend_from_slice(rest);
+        out.resize(out.len() + exponent as usize - rest.len(), b'0');
     }
 }
 
@@ -214,6 +249,7 @@ fn may_tie(x: f64) -> bool {
 /// Whether the formatter's `text` for `x` rounded an exact tie to even: its last
 /// digit is even and x is exactly half-way to the next number of as many
 /// digits. Ties need 16 or more significant digits.
+#[inline(never)]
 fn tie_in(x: f64, text: &[u8]) -> bool {
     let (digits, n, point) = significant(text);
     n >= 15 && digits[n - 1] % 2 == 0 && is_tie(x.abs(), &digits[..n], point)
@@ -335,8 +371,27 @@ fn encode_record<'f>(fields: impl IntoIterator<Item = &'f [u8]>, out: &mut Vec<u
     out.push(b'\n');
 }
 
+/// Whether a CSV field must be quoted: it holds a comma, a quote, CR or LF.
+/// All four are below `-` (0x2D), so a field is looked at eight bytes at a
+/// time and only a word with a byte below that, byte by byte.
+fn needs_quotes(field: &[u8]) -> bool {
+    const ONES: u64 = 0x0101_0101_0101_0101;
+    const HIGH: u64 = 0x8080_8080_8080_8080;
+    let exact = |bytes: &[u8]| bytes.iter().any(|&b| matches!(b, b',' | b'"' | b'\r' | b'\n'));
+    let (words, rest) = field.as_chunks::<8>();
+    for word in words {
+        let v = u64::from_le_bytes(*word);
+        // The high bit of every byte below 0x2D is set here, and some high
+        // bit whenever there is one (Mycroft's zero-byte test, shifted).
+        if v.wrapping_sub(0x2D * ONES) & !v & HIGH != 0 && exact(word) {
+            return true;
+        }
+    }
+    exact(rest)
+}
+
 fn encode_field(field: &[u8], out: &mut Vec<u8>) {
-    if !field.iter().any(|&b| matches!(b, b',' | b'"' | b'\r' | b'\n')) {
+    if !needs_quotes(field) {
         out.extend_from_slice(field);
         return;
     }
@@ -360,6 +415,12 @@ fn encode_field(field: &[u8], out: &mut Vec<u8>) {
 pub struct RenderedRow(Vec<u8>);
 
 impl RenderedRow {
+    /// Makes room for `rows` more rows of the size of those written so far
+    /// (and an eighth more), so that the buffer is not copied as it grows.
+    pub fn reserve_for(&mut self, rows: usize) {
+        self.0.reserve(rows * self.0.len() * 9 / 8);
+    }
+
     /// Renders `cells`.
     pub fn new(cells: &[Cell]) -> RenderedRow {
         let mut row = RowBuilder::with_capacity(64 + 24 * cells.len());
@@ -393,6 +454,7 @@ impl RowBuilder {
         RowBuilder { start: rows.0.len(), row: rows.0, count: 0 }
     }
 
+    #[inline]
     fn next(&mut self) {
         if self.count > 0 {
             self.row.push(b',');
@@ -415,7 +477,13 @@ impl RowBuilder {
 
     /// A text cell: guarded against formulas, quoted when it must be.
     pub fn text(&mut self, text: &str) {
-        self.text_with(|out| out.extend_from_slice(text.as_bytes()));
+        let bytes = text.as_bytes();
+        let guard = matches!(bytes.first(), Some(b'=' | b'+' | b'-' | b'@' | b'\t' | b'\r'));
+        if guard || needs_quotes(bytes) {
+            return self.text_with(|out| out.extend_from_slice(bytes));
+        }
+        self.next();
+        self.row.extend_from_slice(bytes);
     }
 
     /// A text cell whose bytes `write` appends (UTF-8), guarded and quoted
@@ -427,19 +495,26 @@ impl RowBuilder {
         let written = &self.row[start..];
         let guard = matches!(written.first(), Some(b'=' | b'+' | b'-' | b'@' | b'\t' | b'\r'))
             && !std::str::from_utf8(written).is_ok_and(is_plain_number);
-        let quote = written.iter().any(|&b| matches!(b, b',' | b'"' | b'\r' | b'\n'));
-        if guard || quote {
-            let mut cell = Vec::with_capacity(written.len() + 1);
-            if guard {
-                cell.push(b'\'');
-            }
-            cell.extend_from_slice(written);
-            self.row.truncate(start);
-            encode_field(&cell, &mut self.row);
+        if guard || needs_quotes(written) {
+            self.encode_from(start, guard);
         }
     }
 
+    /// Rewrites the text cell from `start` on guarded (when `guard`) and quoted as it must be.
+    #[cold]
+    #[inline(never)]
+    fn encode_from(&mut self, start: usize, guard: bool) {
+        let mut cell = Vec::with_capacity(self.row.len() - start + 1);
+        if guard {
+            cell.push(b'\'');
+        }
+        cell.extend_from_slice(&self.row[start..]);
+        self.row.truncate(start);
+        encode_field(&cell, &mut self.row);
+    }
+
     /// A number with every digit it has (empty when absent or not finite): never quoted.
+    #[inline]
     pub fn full(&mut self, v: Option<f64>) {
         self.next();
         if let Some(x) = v.filter(|x| x.is_finite()) {
@@ -448,6 +523,7 @@ impl RowBuilder {
     }
 
     /// A count (empty when absent).
+    #[inline]
     pub fn count(&mut self, n: Option<usize>) {
         self.next();
         if let Some(n) = n {
@@ -662,6 +738,16 @@ mod tests {
         ] {
             check(x);
         }
+        // Either side of where the formatter's plain range ends (1e-5, 1e15,
+        // 1e16) and where the shortcut that skips its exponent ends.
+        for edge in [1e-5, 1e-6, 1e15, 1e16, 9.999999999999999e14] {
+            let (mut down, mut up) = (edge, edge);
+            for _ in 0..1000 {
+                check(down);
+                check(-up);
+                (down, up) = (down.next_down(), up.next_up());
+            }
+        }
         let mut rng = rand::rngs::StdRng::seed_from_u64(20261202);
         for _ in 0..1_000_000 {
             check(f64::from_bits(rng.random()));
@@ -671,6 +757,30 @@ mod tests {
             // mantissa and a small binary exponent (about 1e15 to 1e20).
             let m = rng.random_range((1u64 << 52)..(1u64 << 53)) as f64;
             check(m * 2f64.powi(rng.random_range(-3..12)));
+        }
+    }
+
+    /// The word-at-a-time test for characters that need quoting says what
+    /// a byte-by-byte look says, on random fields of every length and bytes
+    /// from around the four characters (and above 0x80) as well as anywhere.
+    #[test]
+    fn quoting_test_is_the_plain_one() {
+        use rand::{Rng, SeedableRng};
+        let plain = |f: &[u8]| f.iter().any(|&b| matches!(b, b',' | b'"' | b'\r' | b'\n'));
+        let mut rng = rand::rngs::StdRng::seed_from_u64(44);
+        let near = [
+            b',', b'"', b'\r', b'\n', b'+', b'-', b'.', b'\t', 0, 0x2B, 0x2C, 0x2D, 0x7F, 0x80, 0xAC, 0xFF, b'a', b'0',
+        ];
+        for _ in 0..200_000 {
+            let len = rng.random_range(0..40);
+            let field: Vec<u8> = match rng.random_range(0..3) {
+                0 => (0..len).map(|_| rng.random()).collect(),
+                1 => (0..len).map(|_| near[rng.random_range(0..near.len())]).collect(),
+                _ => (0..len)
+                    .map(|_| if rng.random_ratio(1, 30) { b',' } else { rng.random_range(0x2D..0x7F) })
+                    .collect(),
+            };
+            assert_eq!(needs_quotes(&field), plain(&field), "{field:?}");
         }
     }
 
@@ -696,21 +806,41 @@ mod tests {
     /// writes once guarded: quoting, the guard, and both together.
     #[test]
     fn cells_written_in_place_are_guarded_and_quoted_as_the_csv_crate_quotes_them() {
-        let texts = ["plain", "", "=1+2", "-1.5", "-x,y", "a\"b", "@a\nb", "\tcmd", "+3", "é,ü", "-inf"];
-        let mut row = RowBuilder::with_capacity(0);
-        for t in texts {
-            row.text_with(|out| out.extend_from_slice(t.as_bytes()));
-        }
-        row.full(Some(-0.25));
-        row.count(None);
+        let texts = [
+            "plain",
+            "",
+            "=1+2",
+            "-1.5",
+            "-x,y",
+            "a\"b",
+            "@a\nb",
+            "\tcmd",
+            "+3",
+            "é,ü",
+            "-inf",
+            "a long plain name of a compound",
+            "a long name, with a comma",
+            "/data/run 7/plate-3.csv:2-11",
+            "/data/run 7/plate-3.csv:2-11,13",
+        ];
         let mut theirs = csv::Writer::from_writer(Vec::new());
         let mut fields: Vec<String> = texts.iter().map(|t| neutralise_formula(t)).collect();
         fields.extend(["-0.25".to_string(), String::new()]);
         theirs.write_record(&fields).unwrap();
-        assert_eq!(
-            String::from_utf8(row.finish().0).unwrap(),
-            String::from_utf8(theirs.into_inner().unwrap()).unwrap()
-        );
+        let theirs = String::from_utf8(theirs.into_inner().unwrap()).unwrap();
+        // Written in place, and (the fast path for a text already made) copied in.
+        for in_place in [true, false] {
+            let mut row = RowBuilder::with_capacity(0);
+            for t in texts {
+                match in_place {
+                    true => row.text_with(|out| out.extend_from_slice(t.as_bytes())),
+                    false => row.text(t),
+                }
+            }
+            row.full(Some(-0.25));
+            row.count(None);
+            assert_eq!(String::from_utf8(row.finish().0).unwrap(), theirs);
+        }
     }
 
     #[test]
