@@ -417,7 +417,7 @@ fn fit_batch(batch: Vec<Result<Curve>>, options: &Options, format: Format, pictu
 fn fit_chunk(items: Vec<Result<Curve>>, options: &Options, format: Format, pictures: bool) -> Fitted {
     let mut fitted = Fitted {
         total: items.len(),
-        rendered: Rendered::new(format, options.enzyme.is_some(), pictures),
+        rendered: Rendered::new(format, options.enzyme.is_some(), pictures, items.len()),
         failures: Vec::new(),
         curves: Vec::new(),
     };

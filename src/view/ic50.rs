@@ -85,6 +85,7 @@ pub enum Piece<'r> {
 
 impl Piece<'_> {
     /// Appends the cell to `row`.
+    #[inline(always)]
     pub fn write_to(&self, row: &mut RowBuilder) {
         match self {
             Piece::Text(t) => row.text(t),
@@ -205,6 +206,7 @@ impl Column {
     }
 
     /// Its CSV cell for `r`.
+    #[inline(always)]
     pub fn piece_of<'r>(&self, r: &'r Ic50Result) -> Piece<'r> {
         match self.value {
             Value::Cell(f) => f(r),
@@ -352,7 +354,20 @@ fn csv_header(carried: &[String], context: &Context) -> Vec<String> {
 /// `r`'s CSV row after `rows` (in the same buffer, on the worker thread that fitted it).
 fn csv_row(rows: RenderedRow, r: &Ic50Result, morrison: bool) -> RenderedRow {
     let mut row = RowBuilder::after(rows);
-    for column in COLUMNS.iter().filter(|c| c.present(morrison)) {
+    // The columns one by one, each its own constant: the compiler calls
+    // each cell's function directly and lays its number out in place,
+    // where a loop over the list would call through a pointer per cell.
+    macro_rules! each_column {
+        ($($k:literal)*) => {$(
+            if let Some(column) = COLUMNS.get($k)
+                && column.present(morrison)
+            {
+                column.piece_of(r).write_to(&mut row);
+            }
+        )*};
+    }
+    each_column!(0 1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16 17 18 19 20 21 22 23 24 25 26 27 28 29 30 31 32 33 34 35 36 37 38 39);
+    for column in COLUMNS.iter().skip(40).filter(|c| c.present(morrison)) {
         column.piece_of(r).write_to(&mut row);
     }
     for (_, v) in &r.carried.0 {
@@ -379,14 +394,18 @@ pub struct Rendered {
     json: Vec<u8>,
     /// Results rendered.
     count: usize,
+    /// Results expected: once the first is written, room is made for the
+    /// rest at its size, so that the buffer is not copied as it grows.
+    expected: usize,
     /// The results, in order, when kept.
     pub kept: Vec<Ic50Result>,
 }
 
 impl Rendered {
-    /// Nothing yet, for `format`; `keep` the results whatever the format
-    /// (the table always keeps them: it is built from them).
-    pub fn new(format: Format, morrison: bool, keep: bool) -> Rendered {
+    /// Nothing yet, for `format`, with `expected` results to come; `keep`
+    /// the results whatever the format (the table always keeps them: it is
+    /// built from them).
+    pub fn new(format: Format, morrison: bool, keep: bool, expected: usize) -> Rendered {
         Rendered {
             format,
             morrison,
@@ -394,6 +413,7 @@ impl Rendered {
             rows: RenderedRow::default(),
             json: Vec::new(),
             count: 0,
+            expected,
             kept: Vec::new(),
         }
     }
@@ -401,7 +421,12 @@ impl Rendered {
     /// Renders `r` after the results before it.
     pub fn add(&mut self, r: Ic50Result) {
         match self.format {
-            Format::Csv => self.rows = csv_row(std::mem::take(&mut self.rows), &r, self.morrison),
+            Format::Csv => {
+                self.rows = csv_row(std::mem::take(&mut self.rows), &r, self.morrison);
+                if self.count == 0 {
+                    self.rows.reserve_for(self.expected.saturating_sub(1));
+                }
+            }
             Format::Json => {
                 if self.count > 0 {
                     self.json.extend_from_slice(b",\n");
@@ -411,6 +436,9 @@ impl Rendered {
                 if serde_json::to_writer(&mut self.json, &r).is_err() {
                     self.json.truncate(before);
                     self.json.extend_from_slice(b"{}");
+                }
+                if self.count == 0 {
+                    self.json.reserve(self.expected.saturating_sub(1) * (self.json.len() + 2) * 9 / 8);
                 }
             }
             Format::Table => {}
@@ -652,5 +680,70 @@ pub fn interval_text(low: Option<f64>, high: Option<f64>) -> String {
     match (low, high) {
         (None, None) => "not determined".into(),
         _ => format!("{}–{}", end(low), end(high)),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::analysis::ic50::{Carried, Curve, IntervalMethod, Location, Options, OutlierMode, Thresholds, analyse};
+
+    /// Rows written in place, column by column ([`csv_row`]), are the rows
+    /// the export writer makes of the same columns as [`Cell`]s: logistic
+    /// and Morrison fits, bounds out of range, an outlier, flags, names that
+    /// need the guard or quotes, and a carried column.
+    #[test]
+    fn rows_written_in_place_are_the_rows_of_their_cells() {
+        for enzyme in [None, Some(1.0)] {
+            let options = Options {
+                fix_lower: None,
+                fix_upper: None,
+                enzyme,
+                unit: ConcUnit::Nanomolar,
+                response_unit: Some("%".into()),
+                confidence: 0.95,
+                intervals: IntervalMethod::Wald,
+                thresholds: Thresholds::default(),
+                settings: crate::analysis::ic50::screening_settings(),
+                percent: true,
+                outliers: OutlierMode::Exclude,
+            };
+            let cases = [("KX-1", 80.0, 0.0), ("-cmd", 0.001, 1.0), ("a,b", 1e9, 2.0), ("=x", 300.0, 40.0)];
+            let mut rendered = Rendered::new(Format::Csv, enzyme.is_some(), true, cases.len());
+            for (k, (name, ic50, spike)) in cases.into_iter().enumerate() {
+                let x: Vec<f64> = (0..10).map(|i| 10_000.0 / 3f64.powi(i)).collect();
+                let y = x
+                    .iter()
+                    .enumerate()
+                    .map(|(i, &c)| {
+                        let noise = (7.0 * (i + k) as f64).sin() + if i == 4 { spike } else { 0.0 };
+                        100.0 / (1.0 + c / ic50) + noise
+                    })
+                    .collect();
+                let first = 2 + 10 * k as u64;
+                let lines = (first..first + 10).filter(|&l| l != first + 3).collect();
+                let curve = Curve {
+                    compound: name.into(),
+                    location: Location { file: "plates, run 1.csv".into(), rows: Some((first, first + 9)), lines },
+                    x,
+                    y,
+                    carried: Carried(vec![("note".into(), ["plain", "-1", "x,y", "@a"][k].into())]),
+                    read_flags: Vec::new(),
+                };
+                rendered.add(analyse(&curve, &options).unwrap());
+            }
+            let header = ["h".to_string()];
+            let mut in_place = CsvExport::new(Vec::new(), &header).unwrap();
+            in_place.rendered(&rendered.rows).unwrap();
+            let mut cells = CsvExport::new(Vec::new(), &header).unwrap();
+            for r in &rendered.kept {
+                let mut row: Vec<Cell> =
+                    COLUMNS.iter().filter(|c| c.present(enzyme.is_some())).map(|c| c.cell_of(r)).collect();
+                row.extend(r.carried.0.iter().map(|(_, v)| Cell::Text(v.clone())));
+                cells.row(&row).unwrap();
+            }
+            let (in_place, cells) = (in_place.finish().unwrap(), cells.finish().unwrap());
+            assert_eq!(String::from_utf8(in_place).unwrap(), String::from_utf8(cells).unwrap());
+        }
     }
 }
