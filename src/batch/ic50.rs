@@ -282,11 +282,12 @@ struct Done {
 /// failed compounds go to stderr as they are met (in input order), and a
 /// progress bar when `progress` and stderr is a terminal.
 ///
-/// Three stages overlap: while the thread pool fits batch k and reads batch
-/// k + 1 (one `rayon::join`, on a thread of its own), the calling thread
-/// writes batch k − 1 and frees it. Batches travel in input order through a
-/// channel of depth one, so the output and the messages come out in input
-/// order whatever the thread count, and at most a few batches are in memory.
+/// Three stages overlap: a thread of its own reads batch after batch and
+/// hands each to the thread pool to be fitted; the calling thread writes
+/// each fitted batch, in input order, and frees it. The writer waits for
+/// the batches in the order they were read, so the output and the messages
+/// come out in input order whatever the thread count, and at most a few
+/// batches ([`IN_FLIGHT`]) are in memory.
 pub fn run(
     input: &Input,
     settings: &Settings,
@@ -316,10 +317,10 @@ pub fn run(
         if settings.read.normalise { Some("%".to_string()) } else { reader.response_unit().map(str::to_string) };
     let mut bar = Progress::new(progress, input.size());
     let keep_curves = pictures.is_some();
-    let (sender, receiver) = std::sync::mpsc::sync_channel::<Done>(1);
+    let (order, batches) = std::sync::mpsc::sync_channel::<Fitting>(IN_FLIGHT);
     let streamed = std::thread::scope(|scope| -> Result<()> {
-        let producer = scope.spawn(|| read_and_fit(&mut reader, settings, response_unit, keep_curves, sender));
-        let written = write_all(receiver, &mut writer, &mut summary, &mut bar, &mut pictures);
+        let producer = scope.spawn(|| read_and_fit(&mut reader, settings, response_unit, keep_curves, order));
+        let written = write_all(batches, &mut writer, &mut summary, &mut bar, &mut pictures);
         // On a write error the receiver is gone, so the producer stops at its next send.
         let read_and_fitted = producer.join().unwrap_or_else(|panic| std::panic::resume_unwind(panic));
         written.and(read_and_fitted)
@@ -331,44 +332,70 @@ pub fn run(
     Ok(summary)
 }
 
-/// The reading and fitting stage: batch k + 1 is read while batch k is
-/// fitted; each fitted batch goes to `sender`. Stops at the end of the
-/// input, on a read error (returned), or when the writer has hung up.
+/// Batches read but not yet taken by the writer, at most (besides the one
+/// being read and the one being written): enough that the pool always has
+/// a batch to start on, few enough that memory stays a few batches.
+const IN_FLIGHT: usize = 2;
+
+/// A batch on the thread pool: where the writer waits for it, in input order
+/// (a panic on the pool comes back here, to be raised on the writing thread).
+type Fitting = std::sync::mpsc::Receiver<std::thread::Result<Done>>;
+
+/// The reading stage, on a thread of its own: each batch read is handed to
+/// the thread pool to be fitted, and its place in the output queued for the
+/// writer. The pool does not wait at the end of a batch: while the last
+/// chunks of one batch are fitted, the next batch is already there to start
+/// on (a `rayon::join` of reading and fitting per batch left a core idle at
+/// every batch's end). Stops at the end of the input, on a read error
+/// (returned), or when the writer has hung up.
 fn read_and_fit(
     reader: &mut CurveReader,
     settings: &Settings,
     response_unit: Option<String>,
     keep_curves: bool,
-    sender: std::sync::mpsc::SyncSender<Done>,
+    order: std::sync::mpsc::SyncSender<Fitting>,
 ) -> Result<()> {
     let batch_size = settings.batch_size.max(1);
-    let mut current = reader.next_batch(batch_size)?;
-    while !current.is_empty() {
+    let format = settings.format;
+    loop {
+        let batch = reader.next_batch(batch_size)?;
+        if batch.is_empty() {
+            return Ok(());
+        }
         let unit = reader.unit().unwrap_or(ConcUnit::Molar);
         let options = options(settings, unit, response_unit.clone());
         let bytes_read = reader.bytes_read();
-        let (next, chunks) = rayon::join(
-            || reader.next_batch(batch_size),
-            || fit_batch(current, &options, settings.format, keep_curves),
-        );
-        if sender.send(Done { chunks, unit, options, bytes_read }).is_err() {
+        let (fitted, fitting) = std::sync::mpsc::sync_channel(1);
+        if order.send(fitting).is_err() {
             return Ok(());
         }
-        current = next?;
+        rayon::spawn(move || {
+            let done = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+                let chunks = fit_batch(batch, &options, format, keep_curves);
+                Done { chunks, unit, options, bytes_read }
+            }));
+            // The writer may have stopped on an error: nobody is waiting then.
+            let _ = fitted.send(done);
+        });
     }
-    Ok(())
 }
 
-/// The writing stage: every batch from `receiver`, in order, to the writer,
-/// the pictures and stderr.
+/// The writing stage: every batch, in input order as the reader queued
+/// them, to the writer, the pictures and stderr.
 fn write_all(
-    receiver: std::sync::mpsc::Receiver<Done>,
+    batches: std::sync::mpsc::Receiver<Fitting>,
     writer: &mut StreamWriter,
     summary: &mut Summary,
     bar: &mut Progress,
     pictures: &mut Option<&mut Pictures>,
 ) -> Result<()> {
-    for mut done in receiver {
+    for fitting in batches {
+        let mut done = match fitting.recv() {
+            Ok(Ok(done)) => done,
+            Ok(Err(panic)) => std::panic::resume_unwind(panic),
+            // Every fitting job sends its batch, panic or not.
+            Err(_) => unreachable!("a fitting job ended without its batch"),
+        };
         let rendered: Vec<&Rendered> = done.chunks.iter().map(|c| &c.rendered).collect();
         writer.batch(&rendered, done.unit)?;
         for chunk in &mut done.chunks {
