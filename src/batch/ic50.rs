@@ -272,7 +272,7 @@ struct Fitted {
 /// what the writer needs to know about it.
 struct Done {
     chunks: Vec<Fitted>,
-    unit: ConcUnit,
+    /// The batch's options (its concentration unit among them).
     options: Options,
     /// Input bytes read once this batch was read (for progress).
     bytes_read: u64,
@@ -372,7 +372,7 @@ fn read_and_fit(
         rayon::spawn(move || {
             let done = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
                 let chunks = fit_batch(batch, &options, format, keep_curves);
-                Done { chunks, unit, options, bytes_read }
+                Done { chunks, options, bytes_read }
             }));
             // The writer may have stopped on an error: nobody is waiting then.
             let _ = fitted.send(done);
@@ -397,7 +397,7 @@ fn write_all(
             Err(_) => unreachable!("a fitting job ended without its batch"),
         };
         let rendered: Vec<&Rendered> = done.chunks.iter().map(|c| &c.rendered).collect();
-        writer.batch(&rendered, done.unit)?;
+        writer.batch(&rendered, done.options.unit)?;
         for chunk in &mut done.chunks {
             summary.total += chunk.total;
             for k in 0..chunk.failures.len() {

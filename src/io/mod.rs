@@ -8,6 +8,7 @@ pub mod line_endings;
 pub mod output;
 pub mod provenance;
 pub mod stream;
+mod words;
 
 pub use input::{ColumnSpec, Table};
 pub use output::{Format, neutralise_formula, write_output};

@@ -348,7 +348,18 @@ impl Cell {
 
 /// Whether [`neutralise_formula`] puts an apostrophe before `text`.
 fn needs_guard(text: &str) -> bool {
-    matches!(text.as_bytes().first(), Some(b'=' | b'+' | b'-' | b'@' | b'\t' | b'\r')) && !is_plain_number(text)
+    formula_lead(text.as_bytes()) && !is_plain_number(text)
+}
+
+/// The text begins as a spreadsheet formula would (unless it is a plain number).
+fn formula_lead(text: &[u8]) -> bool {
+    matches!(text.first(), Some(b'=' | b'+' | b'-' | b'@' | b'\t' | b'\r'))
+}
+
+/// Makes room in `buffer` for `more` items of `size` bytes each, and an
+/// eighth more, so that a buffer filled item by item is not copied as it grows.
+pub fn reserve_like(buffer: &mut Vec<u8>, more: usize, size: usize) {
+    buffer.reserve(more * size * 9 / 8);
 }
 
 /// Appends one CSV record to `out` as the `csv` crate's writer with its
@@ -375,15 +386,11 @@ fn encode_record<'f>(fields: impl IntoIterator<Item = &'f [u8]>, out: &mut Vec<u
 /// All four are below `-` (0x2D), so a field is looked at eight bytes at a
 /// time and only a word with a byte below that, byte by byte.
 fn needs_quotes(field: &[u8]) -> bool {
-    const ONES: u64 = 0x0101_0101_0101_0101;
-    const HIGH: u64 = 0x8080_8080_8080_8080;
     let exact = |bytes: &[u8]| bytes.iter().any(|&b| matches!(b, b',' | b'"' | b'\r' | b'\n'));
     let (words, rest) = field.as_chunks::<8>();
     for word in words {
         let v = u64::from_le_bytes(*word);
-        // The high bit of every byte below 0x2D is set here, and some high
-        // bit whenever there is one (Mycroft's zero-byte test, shifted).
-        if v.wrapping_sub(0x2D * ONES) & !v & HIGH != 0 && exact(word) {
+        if super::words::maybe_below(v, 0x2D) != 0 && exact(word) {
             return true;
         }
     }
@@ -415,10 +422,10 @@ fn encode_field(field: &[u8], out: &mut Vec<u8>) {
 pub struct RenderedRow(Vec<u8>);
 
 impl RenderedRow {
-    /// Makes room for `rows` more rows of the size of those written so far
-    /// (and an eighth more), so that the buffer is not copied as it grows.
+    /// Makes room for `rows` more rows of the size of those written so far.
     pub fn reserve_for(&mut self, rows: usize) {
-        self.0.reserve(rows * self.0.len() * 9 / 8);
+        let size = self.0.len();
+        reserve_like(&mut self.0, rows, size);
     }
 
     /// Renders `cells`.
@@ -478,8 +485,7 @@ impl RowBuilder {
     /// A text cell: guarded against formulas, quoted when it must be.
     pub fn text(&mut self, text: &str) {
         let bytes = text.as_bytes();
-        let guard = matches!(bytes.first(), Some(b'=' | b'+' | b'-' | b'@' | b'\t' | b'\r'));
-        if guard || needs_quotes(bytes) {
+        if formula_lead(bytes) || needs_quotes(bytes) {
             return self.text_with(|out| out.extend_from_slice(bytes));
         }
         self.next();
@@ -493,8 +499,7 @@ impl RowBuilder {
         let start = self.row.len();
         write(&mut self.row);
         let written = &self.row[start..];
-        let guard = matches!(written.first(), Some(b'=' | b'+' | b'-' | b'@' | b'\t' | b'\r'))
-            && !std::str::from_utf8(written).is_ok_and(is_plain_number);
+        let guard = formula_lead(written) && !std::str::from_utf8(written).is_ok_and(is_plain_number);
         if guard || needs_quotes(written) {
             self.encode_from(start, guard);
         }

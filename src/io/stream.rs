@@ -393,24 +393,16 @@ impl Row for RowStream {
 /// for any other line (a quote or a byte that is not ASCII).
 #[inline]
 fn split_ascii(line: &[u8], base: usize, delimiter: u8, fields: &mut Vec<(usize, usize)>) -> bool {
-    const ONES: u64 = 0x0101_0101_0101_0101;
-    const HIGH: u64 = 0x8080_8080_8080_8080;
-    // The bytes of `word` equal to `b`, as their high bits (exactly: the
-    // addition cannot carry from one byte into the next).
-    let equal = |word: u64, b: u8| {
-        let t = word ^ (ONES * u64::from(b));
-        !(((t & !HIGH) + !HIGH) | t | !HIGH)
-    };
-    let space = |b: u8| matches!(b, b'\t' | b'\n' | 0x0b | 0x0c | b'\r' | b' ');
+    use super::words::{HIGH, equal_bytes};
     let mut from = 0;
     let mut push = |from: usize, to: usize| {
         // ASCII text: `str::trim` strips exactly these bytes, all below '!'.
         let (mut a, mut b) = (from, to);
         if line[a..b].first().is_some_and(|&c| c <= b' ') || line[a..b].last().is_some_and(|&c| c <= b' ') {
-            while a < b && space(line[a]) {
+            while a < b && is_trim_space(line[a]) {
                 a += 1;
             }
-            while b > a && space(line[b - 1]) {
+            while b > a && is_trim_space(line[b - 1]) {
                 b -= 1;
             }
         }
@@ -427,10 +419,10 @@ fn split_ascii(line: &[u8], base: usize, delimiter: u8, fields: &mut Vec<(usize,
                 (u64::from_le_bytes(padded), HIGH & ((1u64 << (8 * rest.len())) - 1))
             }
         };
-        if (word & HIGH) | (equal(word, b'"') & valid) != 0 {
+        if (word & HIGH) | (equal_bytes(word, b'"') & valid) != 0 {
             return false;
         }
-        let mut delimiters = equal(word, delimiter) & valid;
+        let mut delimiters = equal_bytes(word, delimiter) & valid;
         while delimiters != 0 {
             let i = at + (delimiters.trailing_zeros() / 8) as usize;
             push(from, i);
@@ -443,20 +435,25 @@ fn split_ascii(line: &[u8], base: usize, delimiter: u8, fields: &mut Vec<(usize,
     true
 }
 
+/// The ASCII bytes `str::trim` strips (Unicode White_Space below 0x80,
+/// vertical tab included, which `u8::is_ascii_whitespace` leaves).
+fn is_trim_space(b: u8) -> bool {
+    matches!(b, b'\t' | b'\n' | 0x0b | 0x0c | b'\r' | b' ')
+}
+
 /// `text` without leading and trailing whitespace, as `str::trim` (ASCII
 /// whitespace is stripped byte by byte; the Unicode rules run only where a
 /// non-ASCII character is met at either end).
 #[inline]
 fn trim(text: &str) -> &str {
     // The usual cell: an ASCII character other than a space at either end.
-    let ends = |b: &u8| b.is_ascii() && !matches!(b, b'\t' | b'\n' | 0x0b | 0x0c | b'\r' | b' ');
+    let ends = |b: &u8| b.is_ascii() && !is_trim_space(*b);
     if text.as_bytes().first().is_some_and(ends) && text.as_bytes().last().is_some_and(ends) {
         return text;
     }
-    let space = |b: &u8| matches!(b, b'\t' | b'\n' | 0x0b | 0x0c | b'\r' | b' ');
     let bytes = text.as_bytes();
-    let start = bytes.iter().position(|b| !space(b)).unwrap_or(bytes.len());
-    let end = bytes.iter().rposition(|b| !space(b)).map_or(start, |e| e + 1);
+    let start = bytes.iter().position(|&b| !is_trim_space(b)).unwrap_or(bytes.len());
+    let end = bytes.iter().rposition(|&b| !is_trim_space(b)).map_or(start, |e| e + 1);
     let inner = &text[start..end.max(start)];
     match (inner.as_bytes().first(), inner.as_bytes().last()) {
         (Some(a), Some(b)) if !a.is_ascii() || !b.is_ascii() => inner.trim(),

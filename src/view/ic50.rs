@@ -438,7 +438,8 @@ impl Rendered {
                     self.json.extend_from_slice(b"{}");
                 }
                 if self.count == 0 {
-                    self.json.reserve(self.expected.saturating_sub(1) * (self.json.len() + 2) * 9 / 8);
+                    let size = self.json.len() + 2;
+                    crate::io::output::reserve_like(&mut self.json, self.expected.saturating_sub(1), size);
                 }
             }
             Format::Table => {}
