@@ -8,6 +8,7 @@
 #![warn(missing_docs)]
 #![deny(clippy::float_cmp)]
 
+pub mod allocator;
 pub mod analysis;
 pub mod batch;
 pub mod cli;

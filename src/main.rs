@@ -5,7 +5,7 @@ use std::process::ExitCode;
 /// The allocator of the binary (see Cargo.toml): fewer instructions per small
 /// allocation than the system's, and per-thread free lists for ic50's pipeline.
 #[global_allocator]
-static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
+static ALLOCATOR: kimech::allocator::Allocator = kimech::allocator::Allocator;
 
 fn main() -> ExitCode {
     // Temporary files (the output's sibling, ic50's stdin spool) go on SIGINT/SIGTERM/SIGHUP too.
