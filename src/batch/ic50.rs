@@ -16,7 +16,7 @@ use super::Progress;
 use crate::analysis::ic50::{Curve, Ic50Result, IntervalMethod, Options, OutlierMode, Thresholds, analyse};
 use crate::error::{Error, Result};
 use crate::io::Format;
-use crate::io::ic50::{CurveReader, Input, ReadOptions, read_controls};
+use crate::io::ic50::{BatchWells, CurveBatch, CurveReader, CurveSpan, Input, ReadOptions, read_controls};
 use crate::units::ConcUnit;
 use crate::view::ic50::{Context, Rendered, StreamWriter, plates_grid, table_header, table_row};
 
@@ -437,23 +437,41 @@ fn options(settings: &Settings, unit: ConcUnit, response_unit: Option<String>) -
 /// Fits and renders a batch in chunks of [`CHUNK`] curves on the thread
 /// pool, in input order; the results are kept (with their curves) only for
 /// the pictures.
-fn fit_batch(batch: Vec<Result<Curve>>, options: &Options, format: Format, pictures: bool) -> Vec<Fitted> {
-    batch.into_par_iter().chunks(CHUNK).map(|chunk| fit_chunk(chunk, options, format, pictures)).collect()
+fn fit_batch(batch: CurveBatch, options: &Options, format: Format, pictures: bool) -> Vec<Fitted> {
+    let CurveBatch { items, wells } = batch;
+    items.into_par_iter().chunks(CHUNK).map(|chunk| fit_chunk(chunk, &wells, options, format, pictures)).collect()
 }
 
-fn fit_chunk(items: Vec<Result<Curve>>, options: &Options, format: Format, pictures: bool) -> Fitted {
+/// Fits a chunk's curves one by one, each copied from the batch into the
+/// one [`Curve`] the chunk reuses (so a curve allocates nothing of its own).
+fn fit_chunk(
+    items: Vec<Result<CurveSpan>>,
+    wells: &BatchWells,
+    options: &Options,
+    format: Format,
+    pictures: bool,
+) -> Fitted {
     let mut fitted = Fitted {
         total: items.len(),
         rendered: Rendered::new(format, options.enzyme.is_some(), pictures, items.len()),
         failures: Vec::new(),
         curves: Vec::new(),
     };
+    let mut curve = wells.empty_curve();
     for item in items {
-        match item.and_then(|curve| analyse(&curve, options).map(|r| (curve, r))) {
-            Ok((curve, r)) => {
+        let span = match item {
+            Ok(span) => span,
+            Err(e) => {
+                fitted.failures.push(e);
+                continue;
+            }
+        };
+        wells.fill(span, &mut curve);
+        match analyse(&curve, options) {
+            Ok(r) => {
                 fitted.rendered.add(r);
                 if pictures {
-                    fitted.curves.push(curve);
+                    fitted.curves.push(curve.clone());
                 }
             }
             Err(e) => fitted.failures.push(e),

@@ -241,6 +241,8 @@ pub struct CurveReader<'a> {
     unused_controls: usize,
     /// The input's name, shared by every curve's location.
     file: std::sync::Arc<str>,
+    /// Bytes of names and wells in the last batch (room made for the next).
+    last_size: (usize, usize),
 }
 
 /// The compounds whose blocks have begun, one lookup per curve.
@@ -300,14 +302,114 @@ impl<S: BuildHasher> SeenCompounds<S> {
     }
 }
 
-/// A compound block being read.
-struct Block {
-    compound: String,
-    first: u64,
-    last: u64,
+/// A batch of curves as read, in input order: each curve's place in the
+/// batch's shared arrays ([`BatchWells`]), or why its block cannot be a curve.
+///
+/// The wells of a whole batch lie side by side, so that reading a curve
+/// allocates nothing of its own: a fitting thread copies each curve into
+/// one [`Curve`] it reuses ([`BatchWells::fill`]). A `Curve` per block, made
+/// on the reading thread and freed on a fitting one, cost four allocations
+/// and four frees across threads and several moves of the struct per curve.
+#[derive(Debug, Default)]
+pub struct CurveBatch {
+    /// Each curve's span, or its error, in input order.
+    pub items: Vec<Result<CurveSpan>>,
+    /// The names and wells the spans point into.
+    pub wells: BatchWells,
+}
+
+impl CurveBatch {
+    /// Curves (and failed blocks) in the batch.
+    pub fn len(&self) -> usize {
+        self.items.len()
+    }
+
+    /// Whether the input had no curve left.
+    pub fn is_empty(&self) -> bool {
+        self.items.is_empty()
+    }
+}
+
+/// Where one curve of a [`CurveBatch`] lies in its [`BatchWells`], with
+/// what is the curve's alone (carried values, flags found while reading).
+#[derive(Debug, Clone)]
+pub struct CurveSpan {
+    name: std::ops::Range<usize>,
+    wells: std::ops::Range<usize>,
+    rows: (u64, u64),
+    carried: Carried,
+    read_flags: Vec<Code>,
+}
+
+/// The compound names and wells of a batch's curves, one after the other.
+#[derive(Debug, Default)]
+pub struct BatchWells {
+    names: String,
     x: Vec<f64>,
     y: Vec<f64>,
     lines: Vec<u64>,
+    /// The input's name, shared by every curve's location.
+    file: std::sync::Arc<str>,
+}
+
+impl BatchWells {
+    /// An empty curve of this input, for [`BatchWells::fill`].
+    pub fn empty_curve(&self) -> Curve {
+        Curve {
+            compound: String::new(),
+            location: Location { file: self.file.clone(), rows: None, lines: Vec::new() },
+            x: Vec::new(),
+            y: Vec::new(),
+            carried: Carried(Vec::new()),
+            read_flags: Vec::new(),
+        }
+    }
+
+    /// Makes `curve` the curve of `span`, in the buffers it already has:
+    /// the same curve, field for field, as a new one would be.
+    pub fn fill(&self, span: CurveSpan, curve: &mut Curve) {
+        curve.compound.clear();
+        curve.compound.push_str(&self.names[span.name]);
+        if !std::sync::Arc::ptr_eq(&curve.location.file, &self.file) {
+            curve.location.file = self.file.clone();
+        }
+        curve.location.rows = Some(span.rows);
+        let wells = span.wells;
+        curve.location.lines.clear();
+        curve.location.lines.extend_from_slice(&self.lines[wells.clone()]);
+        curve.x.clear();
+        curve.x.extend_from_slice(&self.x[wells.clone()]);
+        curve.y.clear();
+        curve.y.extend_from_slice(&self.y[wells]);
+        curve.carried = span.carried;
+        curve.read_flags = span.read_flags;
+    }
+
+    /// The curve of `span` on its own.
+    pub fn curve(&self, span: CurveSpan) -> Curve {
+        let mut curve = self.empty_curve();
+        self.fill(span, &mut curve);
+        curve
+    }
+
+    /// Room for a batch the size of `like`.
+    fn reserve_like(&mut self, like: (usize, usize)) {
+        self.names.reserve(like.0);
+        self.x.reserve(like.1);
+        self.y.reserve(like.1);
+        self.lines.reserve(like.1);
+    }
+}
+
+/// A compound block being read: its name and wells are the last ones in
+/// the batch's [`BatchWells`].
+struct Block {
+    /// Where its name lies in `names`.
+    name: std::ops::Range<usize>,
+    first: u64,
+    last: u64,
+    /// Where its wells begin.
+    wells: usize,
     carried: Vec<Vec<String>>,
     low_z: bool,
     error: Option<Error>,
@@ -330,6 +432,7 @@ impl<'a> CurveReader<'a> {
             seen: SeenCompounds::default(),
             unused_controls: 0,
             file: std::sync::Arc::from(stream_name.as_str()),
+            last_size: (0, 0),
         })
     }
 
@@ -360,10 +463,17 @@ impl<'a> CurveReader<'a> {
 
     /// Reads up to `max` complete compound blocks; a block that cannot be a
     /// curve is an `Err` in its place, so the rest still come out.
-    pub fn next_batch(&mut self, max: usize) -> Result<Vec<Result<Curve>>> {
-        let mut batch = Vec::with_capacity(max.min(4096));
+    pub fn next_batch(&mut self, max: usize) -> Result<CurveBatch> {
+        let mut batch = CurveBatch {
+            items: Vec::with_capacity(max.min(4096)),
+            wells: BatchWells { file: self.file.clone(), ..BatchWells::default() },
+        };
+        // Room for the batch at the size of the last one, or for the first
+        // at a dozen wells and a short name per curve.
+        let first = (16 * batch.items.capacity(), 12 * batch.items.capacity());
+        batch.wells.reserve_like(if self.last_size.1 > 0 { self.last_size } else { first });
         let mut block: Option<Block> = None;
-        while batch.len() < max {
+        while batch.items.len() < max {
             if !self.pending && (self.done || !self.stream.advance()?) {
                 self.done = true;
                 break;
@@ -378,16 +488,17 @@ impl<'a> CurveReader<'a> {
                 continue;
             }
             let name = table.text(&self.stream, self.layout.compound);
-            if block.as_ref().is_some_and(|b| b.compound != name) {
+            if block.as_ref().is_some_and(|b| batch.wells.names.as_bytes()[b.name.clone()] != *name.as_bytes()) {
                 // This row starts the next block: finish the current one, keep the row.
                 self.pending = true;
                 if let Some(b) = block.take() {
-                    batch.push(self.finish(b));
+                    let item = self.finish(b, &mut batch.wells);
+                    batch.items.push(item);
                 }
                 continue;
             }
             if block.is_none() {
-                block = Some(self.start(name.to_string()));
+                block = Some(self.start(&mut batch.wells));
             }
             if let Some(b) = block.as_mut() {
                 let mut row = RowContext {
@@ -398,43 +509,46 @@ impl<'a> CurveReader<'a> {
                     unit: &mut self.unit,
                     row: &self.stream,
                 };
-                row.add_to(b, kind.err());
+                row.add_to(b, &mut batch.wells, kind.err());
             }
         }
         // The loop stops on a full batch right after a block was finished, so
         // an open block here means the input ended.
         if let Some(b) = block.take() {
-            batch.push(self.finish(b));
+            let item = self.finish(b, &mut batch.wells);
+            batch.items.push(item);
         }
+        self.last_size = (batch.wells.names.len(), batch.wells.x.len());
         Ok(batch)
     }
 
-    fn start(&mut self, compound: String) -> Block {
+    /// Begins the block of the current row: its name goes into `wells`.
+    fn start(&mut self, wells: &mut BatchWells) -> Block {
         let line = self.stream.line();
+        let compound = self.stream.table().text(&self.stream, self.layout.compound);
+        let at = wells.names.len();
+        wells.names.push_str(compound);
         let mut b = Block {
-            compound,
+            name: at..wells.names.len(),
             first: line,
             last: line,
-            // A dose-response curve has a dozen wells or so; room for 16 saves regrowing.
-            x: Vec::with_capacity(16),
-            y: Vec::with_capacity(16),
-            lines: Vec::with_capacity(16),
+            wells: wells.x.len(),
             carried: vec![Vec::new(); self.layout.carried.len()],
             low_z: false,
             error: None,
         };
-        if b.compound.is_empty() {
+        if compound.is_empty() {
             b.error = Some(self.stream.table().cell_error(
                 &self.stream,
                 self.layout.compound,
                 "empty compound identifier",
                 "every compound well needs a compound; control wells need 'uninhibited' or 'inhibited' in the control column",
             ));
-        } else if !self.seen.insert(&b.compound) {
+        } else if !self.seen.insert(compound) {
             b.error = Some(Error::Data {
                 group: format!(
                     "compound '{}' ({}, line {line})",
-                    crate::report::short_id(&b.compound),
+                    crate::report::short_id(compound),
                     self.stream.table().source
                 ),
                 problem: "its rows appear again after rows of other compounds".into(),
@@ -444,8 +558,14 @@ impl<'a> CurveReader<'a> {
         b
     }
 
-    fn finish(&self, b: Block) -> Result<Curve> {
+    /// Ends block `b`, the last in `wells`: its span, or its error (and
+    /// then its name and wells are taken out again).
+    fn finish(&self, b: Block, wells: &mut BatchWells) -> Result<CurveSpan> {
         if let Some(e) = b.error {
+            wells.names.truncate(b.name.start);
+            wells.x.truncate(b.wells);
+            wells.y.truncate(b.wells);
+            wells.lines.truncate(b.wells);
             return Err(e);
         }
         let mut read_flags = Vec::new();
@@ -464,11 +584,10 @@ impl<'a> CurveReader<'a> {
                 (column.header.clone(), values.join(";"))
             })
             .collect();
-        Ok(Curve {
-            compound: b.compound,
-            location: Location { file: self.file.clone(), rows: Some((b.first, b.last)), lines: b.lines },
-            x: b.x,
-            y: b.y,
+        Ok(CurveSpan {
+            name: b.name,
+            wells: b.wells..wells.x.len(),
+            rows: (b.first, b.last),
             carried: Carried(carried),
             read_flags,
         })
@@ -487,7 +606,7 @@ struct RowContext<'r> {
 
 impl RowContext<'_> {
     /// Carries its other columns and, unless the block already failed, adds its well.
-    fn add_to(&mut self, b: &mut Block, row_error: Option<Error>) {
+    fn add_to(&mut self, b: &mut Block, wells: &mut BatchWells, row_error: Option<Error>) {
         b.last = self.row.line();
         for (k, column) in self.layout.carried.iter().enumerate() {
             let v = self.table.text(self.row, column.index);
@@ -498,21 +617,21 @@ impl RowContext<'_> {
         if b.error.is_some() {
             return;
         }
-        let parsed = row_error.map_or_else(|| self.well(b), Err);
+        let parsed = row_error.map_or_else(|| self.well(b, wells), Err);
         if let Err(e) = parsed {
-            b.error = Some(with_compound(e, &b.compound));
+            b.error = Some(with_compound(e, &wells.names[b.name.clone()]));
         }
     }
 
-    fn well(&mut self, b: &mut Block) -> Result<()> {
+    fn well(&mut self, b: &mut Block, wells: &mut BatchWells) -> Result<()> {
         let (table, layout, row) = (self.table, self.layout, self.row);
         if self.plates.is_none()
             && let Some((molar, unit, y)) = layout.plain_well(row)
         {
             let reporting = *self.unit.get_or_insert(unit);
-            b.x.push(reporting.from_molar(molar));
-            b.y.push(y);
-            b.lines.push(row.line());
+            wells.x.push(reporting.from_molar(molar));
+            wells.y.push(y);
+            wells.lines.push(row.line());
             return Ok(());
         }
         // The header's unit, else the flag's: looked up once, in the layout.
@@ -547,7 +666,7 @@ impl RowContext<'_> {
                     return Err(Error::Data {
                         group: format!(
                             "compound '{}' ({}, line {})",
-                            crate::report::short_id(&b.compound),
+                            crate::report::short_id(&wells.names[b.name.clone()]),
                             self.table.source,
                             row.line()
                         ),
@@ -562,9 +681,9 @@ impl RowContext<'_> {
             }
         }
         let reporting = *self.unit.get_or_insert(c.unit);
-        b.x.push(reporting.from_molar(c.molar));
-        b.y.push(y);
-        b.lines.push(row.line());
+        wells.x.push(reporting.from_molar(c.molar));
+        wells.y.push(y);
+        wells.lines.push(row.line());
         Ok(())
     }
 }
@@ -649,6 +768,53 @@ mod tests {
             assert_eq!(real.insert(&name), fresh, "{name:?}");
         }
         assert_eq!(real.starts.len(), plain.len());
+    }
+
+    /// A curve copied into a reused [`Curve`] is the curve made afresh from
+    /// its span, whatever curve the buffers held before: blocks of every
+    /// length, a carried column that varies, and blocks that fail (an empty
+    /// name, a compound that comes back) taken out of the batch again.
+    #[test]
+    fn reused_curves_are_the_curves_made_afresh() {
+        let mut text = String::from("compound,conc (nM),response,note\n");
+        let blocks = [("a", 12), ("b", 3), ("", 2), ("c", 1), ("a", 4), ("d", 20), ("e", 10)];
+        for (k, (name, wells)) in blocks.iter().enumerate() {
+            for w in 0..*wells {
+                text.push_str(&format!("{name},{}.5,{},n{}\n", 10 * w, 100 - w, (k + w) % 2));
+            }
+        }
+        let bytes: &'static [u8] = Box::leak(text.into_bytes().into_boxed_slice());
+        let input = Input::Bytes(bytes, "t.csv".into());
+        let options = ReadOptions { normalise: false, concentration_unit: None, unit_flag: "--unit" };
+        let mut reader = CurveReader::new(&input, options, None).unwrap();
+        let (mut names, mut failed) = (Vec::new(), 0);
+        let mut reused = BatchWells::default().empty_curve();
+        loop {
+            let batch = reader.next_batch(2).unwrap();
+            if batch.is_empty() {
+                break;
+            }
+            for item in batch.items {
+                let Ok(span) = item else {
+                    failed += 1;
+                    continue;
+                };
+                let fresh = batch.wells.curve(span.clone());
+                batch.wells.fill(span, &mut reused);
+                assert_eq!(format!("{reused:?}"), format!("{fresh:?}"));
+                assert_eq!(
+                    (fresh.x.len(), fresh.y.len(), fresh.location.lines.len()),
+                    (fresh.x.len(), fresh.x.len(), fresh.x.len())
+                );
+                names.push((fresh.compound.clone(), fresh.x.len(), fresh.carried.0[0].1.clone()));
+            }
+        }
+        let expected: Vec<(String, usize, String)> =
+            [("a", 12, "n0;n1"), ("b", 3, "n1;n0"), ("c", 1, "n1"), ("d", 20, "n1;n0"), ("e", 10, "n0;n1")]
+                .iter()
+                .map(|(n, w, c)| (n.to_string(), *w, c.to_string()))
+                .collect();
+        assert_eq!((names, failed), (expected, 2));
     }
 
     #[test]
