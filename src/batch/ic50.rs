@@ -469,7 +469,11 @@ fn fit_chunk(
         wells.fill(span, &mut curve);
         match analyse(&curve, options) {
             Ok(r) => {
-                fitted.rendered.add(r);
+                // Rendered where the result lies; moved only to be kept.
+                fitted.rendered.render(&r);
+                if fitted.rendered.keeps() {
+                    fitted.rendered.keep(r);
+                }
                 if pictures {
                     fitted.curves.push(curve.clone());
                 }

@@ -418,11 +418,31 @@ impl Rendered {
         }
     }
 
-    /// Renders `r` after the results before it.
+    /// Renders `r` after the results before it, and keeps it when results are kept.
     pub fn add(&mut self, r: Ic50Result) {
+        self.render(&r);
+        if self.keep {
+            self.kept.push(r);
+        }
+    }
+
+    /// Whether the results are kept besides their text ([`Rendered::add`]
+    /// keeps them; after [`Rendered::render`], [`Rendered::keep`] does).
+    pub fn keeps(&self) -> bool {
+        self.keep
+    }
+
+    /// Keeps `r`, rendered already.
+    pub fn keep(&mut self, r: Ic50Result) {
+        self.kept.push(r);
+    }
+
+    /// Renders `r` after the results before it, where it lies: a result
+    /// of some 900 bytes that only its text is wanted of is not moved.
+    pub fn render(&mut self, r: &Ic50Result) {
         match self.format {
             Format::Csv => {
-                self.rows = csv_row(std::mem::take(&mut self.rows), &r, self.morrison);
+                self.rows = csv_row(std::mem::take(&mut self.rows), r, self.morrison);
                 if self.count == 0 {
                     self.rows.reserve_for(self.expected.saturating_sub(1));
                 }
@@ -433,7 +453,7 @@ impl Rendered {
                 }
                 // Serialising plain data into memory cannot fail; an empty object would show if it did.
                 let before = self.json.len();
-                if serde_json::to_writer(&mut self.json, &r).is_err() {
+                if serde_json::to_writer(&mut self.json, r).is_err() {
                     self.json.truncate(before);
                     self.json.extend_from_slice(b"{}");
                 }
@@ -445,9 +465,6 @@ impl Rendered {
             Format::Table => {}
         }
         self.count += 1;
-        if self.keep {
-            self.kept.push(r);
-        }
     }
 }
 
