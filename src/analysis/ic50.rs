@@ -431,8 +431,9 @@ fn range_of_sorted(sorted: impl Iterator<Item = f64>) -> (usize, f64, f64) {
     (levels, min_pos, last.unwrap_or(f64::NAN))
 }
 
-/// Rejects curves no fit can use.
-fn check(curve: &Curve, n_free: usize) -> Result<(usize, f64, f64)> {
+/// Rejects curves no fit can use; returns the tested range ([`tested_range`])
+/// and the smallest and largest response, which the fit needs again.
+fn check(curve: &Curve, n_free: usize) -> Result<(usize, f64, f64, (f64, f64))> {
     let fail = |problem: String, expected: String| Error::Data { group: curve.group(), problem, expected };
     let (levels, min_pos, max) = tested_range(&curve.x);
     if levels < 2 {
@@ -451,7 +452,7 @@ fn check(curve: &Curve, n_free: usize) -> Result<(usize, f64, f64)> {
             ),
         ));
     }
-    let (lo, hi) = curve.y.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
+    let (lo, hi) = crate::fit::span_of(&curve.y);
     if hi - lo <= 1e-12 * hi.abs().max(lo.abs()) {
         return Err(fail(
             format!(
@@ -462,13 +463,13 @@ fn check(curve: &Curve, n_free: usize) -> Result<(usize, f64, f64)> {
             "there is no dose-response to fit; check the response column".into(),
         ));
     }
-    if let Some(problem) = crate::fit::out_of_range(&curve.y, "responses") {
+    if let Some(problem) = crate::fit::out_of_range_in((lo, hi), "responses") {
         return Err(fail(
             format!("{problem}: the IC50, Hill slope and asymptotes cannot be determined"),
             "rescale the response column (a power of ten changes only the asymptotes)".into(),
         ));
     }
-    Ok((levels, min_pos, max))
+    Ok((levels, min_pos, max, (lo, hi)))
 }
 
 /// Fits from the model's first (data-driven) start; the other starts are
@@ -492,11 +493,13 @@ fn fit_curve<M: Model>(
 fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     let fixed = [None, None, options.fix_lower, options.fix_upper];
     let n_free = fixed.iter().filter(|f| f.is_none()).count();
-    let (levels, min_pos, max) = check(curve, n_free)?;
+    let (levels, min_pos, max, y_span) = check(curve, n_free)?;
     let t = &options.thresholds;
     let model = Logistic;
     let mut pass = exclude_outliers(curve.y.len(), n_free, options, |kept| {
-        let lf = fit_logistic(&subset(&curve.x, kept), &subset(&curve.y, kept), options, min_pos, max);
+        let y = subset(&curve.y, kept);
+        let y_span = if kept.len() == curve.y.len() { y_span } else { crate::fit::span_of(&y) };
+        let lf = fit_logistic(&subset(&curve.x, kept), &y, y_span, options, min_pos, max);
         let worst = match options.outliers {
             OutlierMode::Keep => None,
             _ => worst_well(&LogisticAt::new(&lf.fit.theta), &lf.data, &lf.fit, t.outlier_alpha),
@@ -666,12 +669,12 @@ fn subset<'v>(v: &'v [f64], kept: &[usize]) -> std::borrow::Cow<'v, [f64]> {
 /// The logistic fit of one set of wells: the free fit (with its fallbacks
 /// and, when degenerate, h held at 1), then, for % activity, an asymptote
 /// outside its plausible window held at its control level (100 % or 0 %)
-/// and the curve refitted.
-fn fit_logistic(x: &[f64], y: &[f64], options: &Options, min_pos: f64, max: f64) -> LogisticFit {
+/// and the curve refitted. `y_span` is the smallest and largest of `y`.
+fn fit_logistic(x: &[f64], y: &[f64], y_span: (f64, f64), options: &Options, min_pos: f64, max: f64) -> LogisticFit {
     let data = Data::unweighted(x.iter().map(|x| Dose::new(*x)).collect(), y.to_vec());
     let t = &options.thresholds;
     let (mut fix_lower, mut fix_upper) = (options.fix_lower, options.fix_upper);
-    let (mut fit, mut hill_held) = fit_held(&data, options, fix_lower, fix_upper, min_pos, max);
+    let (mut fit, mut hill_held) = fit_held(&data, y_span, options, fix_lower, fix_upper, min_pos, max);
     let mut window_flags = Vec::new();
     if options.percent {
         let inside = |v: f64, (lo, hi): (f64, f64)| v >= lo && v <= hi;
@@ -684,7 +687,7 @@ fn fit_logistic(x: &[f64], y: &[f64], options: &Options, min_pos: f64, max: f64)
             window_flags.push(Code::LowerOutsideWindow);
         }
         if !window_flags.is_empty() {
-            (fit, hill_held) = fit_held(&data, options, fix_lower, fix_upper, min_pos, max);
+            (fit, hill_held) = fit_held(&data, y_span, options, fix_lower, fix_upper, min_pos, max);
         }
     }
     LogisticFit { fit, data, hill_held, window_flags }
@@ -702,6 +705,7 @@ fn fit_logistic(x: &[f64], y: &[f64], options: &Options, min_pos: f64, max: f64)
 /// runs, not a dozen.
 fn fit_held(
     data: &Data<Dose>,
+    y_span: (f64, f64),
     options: &Options,
     fix_lower: Option<f64>,
     fix_upper: Option<f64>,
@@ -720,7 +724,7 @@ fn fit_held(
     };
     let plausible =
         |f: &Fit| f.r2 >= t.min_r2 && f.theta[Logistic::IC50] > min_pos * 1e-3 && f.theta[Logistic::IC50] < max * 1e3;
-    let good = |f: &Fit| f.converged() && plausible(f) && determined(f, &data.y);
+    let good = |f: &Fit| f.converged() && plausible(f) && determined(f, y_span);
     // The engine's starts are built only when the engine runs.
     let starts_once = std::cell::OnceCell::new();
     let starts = || starts_once.get_or_init(|| model.starts(data));
@@ -735,12 +739,12 @@ fn fit_held(
         let starts = starts();
         // The first start may have slid into a degenerate valley another start avoids.
         let rest = upright(fit_small(&model, data, &starts[1..], &fixed, &options.settings));
-        let (a, b) = (determined(&fit, &data.y), determined(&rest, &data.y));
+        let (a, b) = (determined(&fit, y_span), determined(&rest, y_span));
         if (b && !a) || (a == b && (rest.sse < fit.sse || (!fit.sse.is_finite() && rest.sse.is_finite()))) {
             fit = rest;
         }
     }
-    if determined(&fit, &data.y) {
+    if determined(&fit, y_span) {
         return (fit, false);
     }
     let held = [None, Some(1.0), fix_lower, fix_upper];
@@ -1088,8 +1092,8 @@ impl Serialize for Reason {
 /// responses. Degenerate fits (h → 0: a step at zero dose; an asymptote at
 /// −700) fail this. A very steep fit passes: its IC50 is still placed
 /// between two tested concentrations, and it is flagged `hill-steep`.
-fn determined(fit: &Fit, y: &[f64]) -> bool {
-    let (lo, hi) = y.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
+/// `(lo, hi)` is the smallest and largest observed response.
+fn determined(fit: &Fit, (lo, hi): (f64, f64)) -> bool {
     let span = hi - lo;
     let h = fit.theta[Logistic::HILL].abs();
     let inside = |v: f64| v >= lo - span && v <= hi + span;
@@ -1245,7 +1249,7 @@ fn ic50_param<M: Model>(
 fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Result> {
     let fixed = [None, options.fix_upper];
     let n_free = fixed.iter().filter(|f| f.is_none()).count();
-    let (levels, min_pos, max) = check(curve, n_free)?;
+    let (levels, min_pos, max, _) = check(curve, n_free)?;
     let t = &options.thresholds;
     let model = Morrison { et };
     let pass = exclude_outliers(curve.y.len(), n_free, options, |kept| {

@@ -30,7 +30,17 @@ const SMALLEST_SPAN: f64 = 1e-150;
 /// the squared residuals underflow. `what` names them in the message
 /// ("rates", "responses"). The fits are scale-free inside these limits.
 pub fn out_of_range(y: &[f64], what: &str) -> Option<String> {
-    let (lo, hi) = y.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
+    out_of_range_in(span_of(y), what)
+}
+
+/// The smallest and largest of `y` (NaN ignored; (∞, −∞) when empty).
+pub fn span_of(y: &[f64]) -> (f64, f64) {
+    y.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)))
+}
+
+/// [`out_of_range`] of responses whose smallest and largest ([`span_of`])
+/// are already known: a caller that needs them anyway finds them once.
+pub fn out_of_range_in((lo, hi): (f64, f64), what: &str) -> Option<String> {
     let largest = lo.abs().max(hi.abs());
     if largest > LARGEST_RESPONSE {
         return Some(format!(
