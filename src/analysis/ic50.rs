@@ -500,13 +500,16 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
         let y = subset(&curve.y, kept);
         let y_span = if kept.len() == curve.y.len() { y_span } else { crate::fit::span_of(&y) };
         let lf = fit_logistic(&subset(&curve.x, kept), &y, y_span, options, min_pos, max);
+        // The model at the fit's θ (its ln IC50 taken once), for the outlier
+        // rule and, at the final fit, for the shape of the curve.
+        let at = LogisticAt::new(&lf.fit.theta);
         let worst = match options.outliers {
             OutlierMode::Keep => None,
-            _ => worst_well(&LogisticAt::new(&lf.fit.theta), &lf.data, &lf.fit, t.outlier_alpha),
+            _ => worst_well(&at, &lf.data, &lf.fit, t.outlier_alpha),
         };
-        (lf, worst)
+        ((lf, at), worst)
     });
-    let LogisticFit { fit, data, hill_held, window_flags } = &pass.result;
+    let (LogisticFit { fit, data, hill_held, window_flags }, at) = &pass.result;
     let hill_held = *hill_held;
     let mut flags = Vec::new();
     if hill_held {
@@ -514,9 +517,12 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     }
     flags.extend(window_flags.iter().copied());
     let (ic50, hill, lower, upper) = (fit.theta[0], fit.theta[1], fit.theta[2], fit.theta[3]);
+    // The ends of the range are wells of the curve, whose doses (and their
+    // ln x) the fit already holds — unless the outlier rule dropped one.
+    let dose = |x: f64| data.x.iter().find(|d| d.x.to_bits() == x.to_bits()).copied().unwrap_or_else(|| Dose::new(x));
     let shape = Shape {
-        y_low: model.value(&fit.theta, &Dose::new(min_pos)),
-        y_high: model.value(&fit.theta, &Dose::new(max)),
+        y_low: at.value(&fit.theta, &dose(min_pos)),
+        y_high: at.value(&fit.theta, &dose(max)),
         upper,
         lower,
         lower_known: fit.fixed[Logistic::LOWER],
@@ -606,7 +612,7 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
         fitted: Vec::new(),
     };
     result.explain_missing_se(fit);
-    result.fitted = std::mem::take(&mut pass.result.fit.theta);
+    result.fitted = std::mem::take(&mut pass.result.0.fit.theta);
     Ok(result)
 }
 
@@ -671,7 +677,7 @@ fn subset<'v>(v: &'v [f64], kept: &[usize]) -> std::borrow::Cow<'v, [f64]> {
 /// outside its plausible window held at its control level (100 % or 0 %)
 /// and the curve refitted. `y_span` is the smallest and largest of `y`.
 fn fit_logistic(x: &[f64], y: &[f64], y_span: (f64, f64), options: &Options, min_pos: f64, max: f64) -> LogisticFit {
-    let data = Data::unweighted(x.iter().map(|x| Dose::new(*x)).collect(), y.to_vec());
+    let data = Data::unweighted(doses(x), y.to_vec());
     let t = &options.thresholds;
     let (mut fix_lower, mut fix_upper) = (options.fix_lower, options.fix_upper);
     let (mut fit, mut hill_held) = fit_held(&data, y_span, options, fix_lower, fix_upper, min_pos, max);
@@ -691,6 +697,26 @@ fn fit_logistic(x: &[f64], y: &[f64], y_span: (f64, f64), options: &Options, min
         }
     }
     LogisticFit { fit, data, hill_held, window_flags }
+}
+
+/// The doses of `x`, each with its ln x ([`Dose::new`]). The curves of a
+/// deck mostly share one dilution series, so the last doses made on this
+/// thread are kept and handed out again when the next curve's
+/// concentrations are the same bits: `Dose::new` of the same bits is the
+/// same dose, and a comparison per well is far cheaper than a logarithm.
+fn doses(x: &[f64]) -> Vec<Dose> {
+    thread_local! {
+        static LAST: std::cell::RefCell<Vec<Dose>> = const { std::cell::RefCell::new(Vec::new()) };
+    }
+    LAST.with(|last| {
+        let mut last = last.borrow_mut();
+        let same = last.len() == x.len() && last.iter().zip(x).all(|(d, x)| d.x.to_bits() == x.to_bits());
+        if !same {
+            last.clear();
+            last.extend(x.iter().map(|&x| Dose::new(x)));
+        }
+        last.clone()
+    })
 }
 
 /// The free 4PL fit with the given asymptotes held; when the data do not
@@ -1421,6 +1447,27 @@ pub fn z_prime(uninhibited: &Wells, inhibited: &Wells) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The doses handed out again for a repeated series are those
+    /// `Dose::new` makes, to the bit, whatever came before (another series,
+    /// another length, −0 after 0, NaN).
+    #[test]
+    fn remembered_doses_are_new_doses() {
+        let series: [&[f64]; 7] = [
+            &[10000.0, 3333.33, 1111.11, 0.0],
+            &[10000.0, 3333.33, 1111.11, 0.0],
+            &[10000.0, 3333.33, 1111.11, -0.0],
+            &[10000.0, 3333.33, 1111.11],
+            &[f64::NAN, 1e-300, 5e-324, f64::INFINITY],
+            &[f64::NAN, 1e-300, 5e-324, f64::INFINITY],
+            &[10000.0, 3333.33, 1111.11, 0.0],
+        ];
+        let bits = |d: &[Dose]| d.iter().map(|d| (d.x.to_bits(), d.ln_x.to_bits())).collect::<Vec<_>>();
+        for x in series {
+            let fresh: Vec<Dose> = x.iter().map(|&x| Dose::new(x)).collect();
+            assert_eq!(bits(&doses(x)), bits(&fresh));
+        }
+    }
 
     /// Zhang, Chung & Oldenburg (1999), eq. for Z′, by hand: μ₊ = 100,
     /// σ₊ = 5, μ₋ = 10, σ₋ = 3 → 1 − 3·8/90 = 0.7333….
