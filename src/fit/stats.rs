@@ -4,6 +4,9 @@
 use serde::Serialize;
 use statrs::distribution::{ContinuousCDF, FisherSnedecor};
 use statrs::function::factorial::ln_binomial;
+use statrs::function::gamma::ln_gamma;
+use statrs::prec::F64_PREC;
+use std::sync::atomic::{AtomicU64, Ordering};
 
 /// Result of the Wald–Wolfowitz runs test on the signs of the residuals.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -79,8 +82,117 @@ pub fn extra_sum_of_squares(sse_simple: f64, df_simple: usize, sse_full: f64, df
     let d1 = (df_simple - df_full) as f64;
     let d2 = df_full as f64;
     let f = ((sse_simple - sse_full).max(0.0) / d1) / (sse_full / d2);
-    let dist = FisherSnedecor::new(d1, d2).ok()?;
-    Some((f, dist.sf(f)))
+    Some((f, f_sf(df_simple - df_full, df_full, f)?))
+}
+
+/// P(F > f) for F(d1, d2): statrs' `FisherSnedecor::sf`, which is the
+/// regularized incomplete beta function I_x(d2/2, d1/2) at
+/// x = 1 − d1·f/(d1·f + d2), to the bit — but with the complete beta
+/// function's part of it, lnΓ(a + b) − lnΓ(a) − lnΓ(b), looked up instead of
+/// computed: it depends on the degrees of freedom only, and its three
+/// log-gammas were half the cost of the test that `ic50` runs on every curve.
+/// Anything but an ordinary argument (0 < x < 1, not within statrs' few ulps
+/// of 1) goes to statrs itself.
+fn f_sf(d1: usize, d2: usize, f: f64) -> Option<f64> {
+    let dist = FisherSnedecor::new(d1 as f64, d2 as f64).ok()?;
+    let (fd1, fd2) = (d1 as f64, d2 as f64);
+    if !(f >= 0.0 && f.is_finite()) {
+        return Some(dist.sf(f));
+    }
+    let x = 1. - ((fd1 * f) / (fd1 * f + fd2));
+    let (a, b) = (fd2 / 2.0, fd1 / 2.0);
+    // statrs takes x within 1e-15 (or 5 ulps) of 1 as 1; anything that near is left to it.
+    if !(x > 0.0 && x < 1.0 - 1e-14) {
+        return Some(dist.sf(f));
+    }
+    Some(beta_reg_from(a, b, x, ln_beta_part(d1, d2, a, b)))
+}
+
+/// lnΓ(a + b) − lnΓ(a) − lnΓ(b) for a = d2/2, b = d1/2, in statrs' order of
+/// operations; remembered for small degrees of freedom (the bits of the
+/// answer, `UNSET` until first asked for).
+fn ln_beta_part(d1: usize, d2: usize, a: f64, b: f64) -> f64 {
+    const UNSET: u64 = u64::MAX;
+    const D1: usize = 8;
+    const D2: usize = 128;
+    static KNOWN: [[AtomicU64; D2]; D1] = [const { [const { AtomicU64::new(UNSET) }; D2] }; D1];
+    let compute = || ln_gamma(a + b) - ln_gamma(a) - ln_gamma(b);
+    let Some(slot) = KNOWN.get(d1).and_then(|row| row.get(d2)) else {
+        return compute();
+    };
+    match slot.load(Ordering::Relaxed) {
+        UNSET => {
+            let v = compute();
+            slot.store(v.to_bits(), Ordering::Relaxed);
+            v
+        }
+        bits => f64::from_bits(bits),
+    }
+}
+
+/// statrs' `checked_beta_reg(a, b, x)` (the continued fraction of Numerical
+/// Recipes §6.4, as statrs 0.19 writes it, operation for operation) for
+/// 0 < x < 1 not at 1, with `ln_beta_part` = lnΓ(a + b) − lnΓ(a) − lnΓ(b)
+/// given. A test holds it to statrs' own to the bit.
+fn beta_reg_from(a: f64, b: f64, x: f64, ln_beta_part: f64) -> f64 {
+    let bt = (ln_beta_part + a * x.ln() + b * (1.0 - x).ln()).exp();
+    let symm_transform = x >= (a + 1.0) / (a + b + 2.0);
+    let eps = F64_PREC;
+    let fpmin = f64::MIN_POSITIVE / eps;
+
+    let mut a = a;
+    let mut b = b;
+    let mut x = x;
+    if symm_transform {
+        let swap = a;
+        x = 1.0 - x;
+        a = b;
+        b = swap;
+    }
+
+    let qab = a + b;
+    let qap = a + 1.0;
+    let qam = a - 1.0;
+    let mut c = 1.0;
+    let mut d = 1.0 - qab * x / qap;
+
+    if d.abs() < fpmin {
+        d = fpmin;
+    }
+    d = 1.0 / d;
+    let mut h = d;
+
+    for m in 1..141 {
+        let m = f64::from(m);
+        let m2 = m * 2.0;
+        let mut aa = m * (b - m) * x / ((qam + m2) * (a + m2));
+        d = 1.0 + aa * d;
+        if d.abs() < fpmin {
+            d = fpmin;
+        }
+        c = 1.0 + aa / c;
+        if c.abs() < fpmin {
+            c = fpmin;
+        }
+        d = 1.0 / d;
+        h = h * d * c;
+        aa = -(a + m) * (qab + m) * x / ((a + m2) * (qap + m2));
+        d = 1.0 + aa * d;
+        if d.abs() < fpmin {
+            d = fpmin;
+        }
+        c = 1.0 + aa / c;
+        if c.abs() < fpmin {
+            c = fpmin;
+        }
+        d = 1.0 / d;
+        let del = d * c;
+        h *= del;
+        if (del - 1.0).abs() <= eps {
+            break;
+        }
+    }
+    if symm_transform { 1.0 - bt * h / a } else { bt * h / a }
 }
 
 /// Lack-of-fit F test against pure error from replicate groups
@@ -156,6 +268,26 @@ mod tests {
         let t = runs_test(&[1.0, 2.0, -1.0, -1.0, 3.0, 0.0, -2.0]).unwrap();
         assert_eq!((t.runs, t.positive, t.negative), (4, 3, 3));
         assert!(runs_test(&[1.0, 2.0]).is_none());
+    }
+
+    /// The F test's p with the beta function's constant looked up is
+    /// statrs' own to the bit, over the degrees of freedom `ic50` and `mode`
+    /// meet and beyond the table, and F from 0 to far in the tail.
+    #[test]
+    fn f_test_p_is_statrs_to_the_bit() {
+        for d1 in [1, 2, 3, 4, 7, 8, 9] {
+            for d2 in [1, 2, 3, 5, 6, 17, 60, 127, 128, 300] {
+                let dist = FisherSnedecor::new(d1 as f64, d2 as f64).unwrap();
+                for f in [0.0, 1e-300, 1e-9, 0.01, 0.3, 1.0, 2.5, 7.7, 31.0, 1e3, 1e6, 1e12, 1e17, 1e300] {
+                    for f in [f, f * 1.000_000_1, f * 0.999_999_9] {
+                        assert_eq!(f_sf(d1, d2, f).unwrap().to_bits(), dist.sf(f).to_bits(), "d1 {d1} d2 {d2} f {f}");
+                    }
+                }
+                // Twice: the second call reads the table.
+                assert_eq!(f_sf(d1, d2, 4.2).unwrap().to_bits(), dist.sf(4.2).to_bits());
+            }
+        }
+        assert_eq!(f_sf(3, 6, f64::INFINITY), Some(0.0));
     }
 
     #[test]
