@@ -557,14 +557,25 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     };
     // The kernel profiles a free fit's IC50 itself (one-dimensional refits);
     // the engine's profile stays the reference and the fallback.
+    // The Wald intervals' t quantile, looked up once for every parameter.
+    let t_fit = cached_t(options.confidence, fit.df);
     let profiled_here = match interval_options.intervals {
         IntervalMethod::Profile if qualifier == Qualifier::Equal && fit.converged() => {
             projected::profile_ic50(data, fit, options.confidence)
         }
         _ => None,
     };
-    let mut ic50_param =
-        ic50_param(&model, data, fit, Logistic::IC50, qualifier, min_pos, max, (0.0, profiled_here), interval_options);
+    let mut ic50_param = ic50_param(
+        &model,
+        data,
+        fit,
+        Logistic::IC50,
+        qualifier,
+        min_pos,
+        max,
+        (0.0, profiled_here, t_fit),
+        interval_options,
+    );
     if qualifier == Qualifier::About {
         ic50_param.note = Some(HELD_SLOPE.into());
     }
@@ -573,7 +584,7 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
         false => Param::new(
             fit.theta[j],
             fit.se[j],
-            wald(fit, j, Scale::Linear, options.confidence),
+            wald(fit, j, Scale::Linear, t_fit),
             "wald",
             options.response_unit.clone(),
         ),
@@ -594,9 +605,7 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
         ic50: ic50_param,
         hill: Some(match fit.fixed[Logistic::HILL] {
             true => fixed_param(hill, "kimech: not determined by the data (flag hill-fixed)"),
-            false => {
-                Param::new(hill, fit.se[1], wald(fit, Logistic::HILL, Scale::Linear, options.confidence), "wald", None)
-            }
+            false => Param::new(hill, fit.se[1], wald(fit, Logistic::HILL, Scale::Linear, t_fit), "wald", None),
         }),
         upper: wald_linear(Logistic::UPPER, held_by("--fix-upper", Code::UpperOutsideWindow)),
         lower: wald_linear(Logistic::LOWER, held_by("--fix-lower", Code::LowerOutsideWindow)),
@@ -1146,11 +1155,12 @@ fn mirror(fit: &mut Fit) {
 }
 
 /// The Wald interval of parameter `j`: θ ± t·SE, or for a log-scale
-/// parameter exp(ln θ ± t·SE/θ) (the engine's `wald`, with the t quantile
-/// looked up once per degrees of freedom: computing it is a third of the
-/// cost of a 10-point fit).
-fn wald(fit: &Fit, j: usize, scale: Scale, confidence: f64) -> Interval {
-    let (Some(se), Some(t)) = (fit.se[j], cached_t(confidence, fit.df)) else {
+/// parameter exp(ln θ ± t·SE/θ) (the engine's `wald`), with t the quantile
+/// of the fit's degrees of freedom at the confidence level: `cached_t`,
+/// looked up once per curve by the caller (computing it is a third of the
+/// cost of a 10-point fit; even looking it up four times was not free).
+fn wald(fit: &Fit, j: usize, scale: Scale, t: Option<f64>) -> Interval {
+    let (Some(se), Some(t)) = (fit.se[j], t) else {
         return Interval { low: Bound::NotDetermined, high: Bound::NotDetermined };
     };
     let value = fit.theta[j];
@@ -1223,7 +1233,8 @@ fn common_flags(fit: &Fit, levels: usize, t: &Thresholds, curve: &Curve, flags: 
 
 /// IC50 (or Ki,app for Morrison, `offset` = Et/2 between them) as reported:
 /// the bound when out of range, else the estimate with its interval — for a
-/// profile interval, `profiled` when the kernel already found it.
+/// profile interval, `profiled` when the kernel already found it; `t` is
+/// the Wald intervals' quantile ([`wald`]).
 #[allow(clippy::too_many_arguments)]
 fn ic50_param<M: Model>(
     model: &M,
@@ -1233,7 +1244,7 @@ fn ic50_param<M: Model>(
     qualifier: Qualifier,
     min_pos: f64,
     max: f64,
-    (offset, profiled): (f64, Option<Interval>),
+    (offset, profiled, t): (f64, Option<Interval>, Option<f64>),
     options: &Options,
 ) -> Param {
     let unit = Some(options.unit.symbol().to_string());
@@ -1260,7 +1271,7 @@ fn ic50_param<M: Model>(
                     profiled.unwrap_or_else(|| profile(model, data, fit, j, options.confidence, &options.settings)),
                     "profile",
                 ),
-                _ => (wald(fit, j, Scale::Log, options.confidence), "wald-log"),
+                _ => (wald(fit, j, Scale::Log, t), "wald-log"),
             };
             let shift = |b: Bound| match b {
                 Bound::At(v) => Bound::At(v + offset),
@@ -1307,7 +1318,9 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
     }
     pass.flags(&mut flags);
     common_flags(fit, levels, t, curve, &mut flags);
-    let ic50 = ic50_param(&model, data, fit, Morrison::KI_APP, qualifier, min_pos, max, (et / 2.0, None), options);
+    let t_fit = cached_t(options.confidence, fit.df);
+    let ic50 =
+        ic50_param(&model, data, fit, Morrison::KI_APP, qualifier, min_pos, max, (et / 2.0, None, t_fit), options);
     let unit = Some(options.unit.symbol().to_string());
     let ki_app = match qualifier {
         Qualifier::Equal => ic50.scaled(1.0, unit.clone()).shifted(-et / 2.0),
@@ -1315,13 +1328,9 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
     };
     let upper_p = match fit.fixed[Morrison::UPPER] {
         true => Param { unit: options.response_unit.clone(), ..fixed_param(upper, "--fix-upper") },
-        false => Param::new(
-            upper,
-            fit.se[1],
-            wald(fit, 1, Scale::Linear, options.confidence),
-            "wald",
-            options.response_unit.clone(),
-        ),
+        false => {
+            Param::new(upper, fit.se[1], wald(fit, 1, Scale::Linear, t_fit), "wald", options.response_unit.clone())
+        }
     };
     let mut lower = Param { unit: options.response_unit.clone(), ..fixed_param(0.0, "the Morrison model") };
     lower.note = Some("zero by the Morrison model (complete inhibition at saturating inhibitor)".into());
