@@ -382,6 +382,11 @@ pub fn analyse(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     }
 }
 
+/// The result's compound, source and carried columns, copied from the curve.
+fn names_of(curve: &Curve) -> (String, crate::report::Origin, Carried) {
+    (curve.compound.clone(), curve.location.origin(), curve.carried.clone())
+}
+
 /// The tested range: (distinct concentrations, smallest positive, largest).
 ///
 /// A curve of a few dozen wells is sorted on the stack, and not at all when
@@ -592,9 +597,19 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
     let held_by = |option: &'static str, flag: Code| {
         if flags.contains(&flag) { "the plausible window (the free fit fell outside it)" } else { option }
     };
-    let mut result = Ic50Result {
-        compound: curve.compound.clone(),
-        source: curve.location.origin(),
+    let mut hill = match fit.fixed[Logistic::HILL] {
+        true => fixed_param(hill, "kimech: not determined by the data (flag hill-fixed)"),
+        false => Param::new(hill, fit.se[1], wald(fit, Logistic::HILL, Scale::Linear, t_fit), "wald", None),
+    };
+    let mut upper = wald_linear(Logistic::UPPER, held_by("--fix-upper", Code::UpperOutsideWindow));
+    let mut lower = wald_linear(Logistic::LOWER, held_by("--fix-lower", Code::LowerOutsideWindow));
+    explain_missing_se(fit, qualifier, [&mut ic50_param, &mut hill, &mut upper, &mut lower]);
+    let outliers = pass.listed(curve);
+    let (compound, source, carried) = names_of(curve);
+    // Built where it is returned, once every part is known: no copy of the whole.
+    Ok(Ic50Result {
+        compound,
+        source,
         confidence: options.confidence,
         n: fit.n,
         converged: fit.converged(),
@@ -603,59 +618,49 @@ fn analyse_logistic(curve: &Curve, options: &Options) -> Result<Ic50Result> {
         qualifier,
         pic50: p_value(options.unit.to_molar(ic50_param.value)),
         ic50: ic50_param,
-        hill: Some(match fit.fixed[Logistic::HILL] {
-            true => fixed_param(hill, "kimech: not determined by the data (flag hill-fixed)"),
-            false => Param::new(hill, fit.se[1], wald(fit, Logistic::HILL, Scale::Linear, t_fit), "wald", None),
-        }),
-        upper: wald_linear(Logistic::UPPER, held_by("--fix-upper", Code::UpperOutsideWindow)),
-        lower: wald_linear(Logistic::LOWER, held_by("--fix-lower", Code::LowerOutsideWindow)),
+        hill: Some(hill),
+        upper,
+        lower,
         residual_sd: fit.residual_sd,
         r2: fit.r2,
         flags,
-        outliers: pass.listed(curve),
+        outliers,
         flat_p,
-        carried: curve.carried.clone(),
+        carried,
         model: "logistic",
         ki_app: None,
-        // Moved out of the final fit below, once nothing reads the fit any more.
-        fitted: Vec::new(),
-    };
-    result.explain_missing_se(fit);
-    result.fitted = std::mem::take(&mut pass.result.0.fit.theta);
-    Ok(result)
+        fitted: std::mem::take(&mut pass.result.0.fit.theta),
+    })
 }
 
-impl Ic50Result {
-    /// A free parameter of a logistic fit without a standard error gets a
-    /// note naming it and why: the residuals are zero (nothing to scale the
-    /// covariance by; the Hill slope of a curve that steps between two
-    /// concentrations is not determined) or the information matrix JᵀJ is
-    /// singular at the fit (the data do not fix that parameter).
-    fn explain_missing_se(&mut self, fit: &Fit) {
-        let span = (self.upper.value - self.lower.value).abs();
-        let why = if fit.residual_sd <= 1e-12 * span || fit.sse < f64::MIN_POSITIVE {
-            "the curve passes through every well exactly (zero residuals), so no scatter is left to measure its uncertainty by; a curve that steps between two concentrations fixes neither its Hill slope nor its IC50 inside that step"
-        } else {
-            "the information matrix is singular at the fit: the data do not fix this parameter"
-        };
-        let explain = |param: &mut Param, name: &str, j: usize| {
-            if !fit.fixed[j] && param.se.is_none() && param.interval != "bound" {
-                let text = format!("{name} standard error not determined: {why}");
-                param.note = Some(match param.note.take() {
-                    Some(n) => format!("{n}; {text}"),
-                    None => text,
-                });
-            }
-        };
-        if self.qualifier == Qualifier::Equal && self.ic50.interval == "wald-log" {
-            explain(&mut self.ic50, "IC50", Logistic::IC50);
+/// A free parameter of a logistic fit without a standard error gets a
+/// note naming it and why: the residuals are zero (nothing to scale the
+/// covariance by; the Hill slope of a curve that steps between two
+/// concentrations is not determined) or the information matrix JᵀJ is
+/// singular at the fit (the data do not fix that parameter). The
+/// parameters in the model's order: IC50, Hill slope, lower, upper.
+fn explain_missing_se(fit: &Fit, qualifier: Qualifier, [ic50, hill, upper, lower]: [&mut Param; 4]) {
+    let span = (upper.value - lower.value).abs();
+    let why = if fit.residual_sd <= 1e-12 * span || fit.sse < f64::MIN_POSITIVE {
+        "the curve passes through every well exactly (zero residuals), so no scatter is left to measure its uncertainty by; a curve that steps between two concentrations fixes neither its Hill slope nor its IC50 inside that step"
+    } else {
+        "the information matrix is singular at the fit: the data do not fix this parameter"
+    };
+    let explain = |param: &mut Param, name: &str, j: usize| {
+        if !fit.fixed[j] && param.se.is_none() && param.interval != "bound" {
+            let text = format!("{name} standard error not determined: {why}");
+            param.note = Some(match param.note.take() {
+                Some(n) => format!("{n}; {text}"),
+                None => text,
+            });
         }
-        if let Some(hill) = self.hill.as_mut() {
-            explain(hill, "Hill slope", Logistic::HILL);
-        }
-        explain(&mut self.upper, "upper asymptote", Logistic::UPPER);
-        explain(&mut self.lower, "lower asymptote", Logistic::LOWER);
+    };
+    if qualifier == Qualifier::Equal && ic50.interval == "wald-log" {
+        explain(ic50, "IC50", Logistic::IC50);
     }
+    explain(hill, "Hill slope", Logistic::HILL);
+    explain(upper, "upper asymptote", Logistic::UPPER);
+    explain(lower, "lower asymptote", Logistic::LOWER);
 }
 
 /// Why an IC50 from a fit with the Hill coefficient held is approximate.
@@ -1334,9 +1339,11 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
     };
     let mut lower = Param { unit: options.response_unit.clone(), ..fixed_param(0.0, "the Morrison model") };
     lower.note = Some("zero by the Morrison model (complete inhibition at saturating inhibitor)".into());
+    let outliers = pass.listed(curve);
+    let (compound, source, carried) = names_of(curve);
     Ok(Ic50Result {
-        compound: curve.compound.clone(),
-        source: curve.location.origin(),
+        compound,
+        source,
         confidence: options.confidence,
         n: fit.n,
         converged: fit.converged(),
@@ -1351,9 +1358,9 @@ fn analyse_morrison(curve: &Curve, et: f64, options: &Options) -> Result<Ic50Res
         residual_sd: fit.residual_sd,
         r2: fit.r2,
         flags,
-        outliers: pass.listed(curve),
+        outliers,
         flat_p,
-        carried: curve.carried.clone(),
+        carried,
         model: "morrison",
         ki_app: Some(ki_app),
         fitted: fit.theta.clone(),
