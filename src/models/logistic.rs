@@ -49,19 +49,6 @@ impl Logistic {
     /// Index of the asymptote at zero concentration.
     pub const UPPER: usize = 3;
 
-    /// The first of [`Model::starts`] (the data-driven one), without
-    /// building the others: the variable-projection kernel needs only it,
-    /// once per curve.
-    pub fn first_start(data: &Data<Dose>) -> [f64; 4] {
-        let Some(guess) = Guess::from(&data.x.iter().map(|d| d.x).collect::<Vec<_>>(), &data.y) else {
-            return [1.0, 1.0, 0.0, 1.0];
-        };
-        match logit_line(data, guess.lower, guess.upper) {
-            Some((ic50, hill)) => [ic50, hill, guess.lower, guess.upper],
-            None => [guess.middle(), 1.0, guess.lower, guess.upper],
-        }
-    }
-
     /// 1/(1 + (x/IC50)^h), with its limits at x = 0, and ln(x/IC50) (0 at x = 0).
     fn fraction(theta: &[f64], dose: &Dose) -> (f64, f64) {
         Self::fraction_with(theta, dose, |ic50| ic50.ln())
