@@ -473,9 +473,9 @@ fn covariance4<M: Model>(
 
 /// s²(JᵀWJ)⁻¹ of a four-parameter fit from its information matrix JᵀWJ,
 /// inverted after scaling to unit diagonal (as [`invert_information`]);
-/// `None` when it is singular or conditioned beyond 1e14. Shared by the
-/// engine and the dose-response kernel, which builds JᵀWJ from its own
-/// fractions.
+/// `None` when it is singular or conditioned beyond 1e14. The
+/// dose-response kernel writes the same steps out for its 4×4 case
+/// (`analysis::ic50::projected::covariance4`) and is tested against this.
 pub(crate) fn covariance_of_information4(information: &Matrix4<f64>, sse: f64, df: usize) -> Option<DMatrix<f64>> {
     let d: [f64; 4] = std::array::from_fn(|k| information[(k, k)].sqrt());
     if d.iter().any(|v| !(v.is_finite() && *v > 0.0)) {

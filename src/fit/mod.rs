@@ -14,8 +14,11 @@ pub mod intervals;
 mod small;
 pub mod stats;
 
+/// The engine's covariance, the reference the kernel's own 4×4 inverse is tested against.
+#[cfg(test)]
+pub(crate) use engine::covariance_of_information4;
+pub(crate) use engine::r_squared;
 pub use engine::{Fit, FitSettings, Termination, fit, fit_from, summarise};
-pub(crate) use engine::{covariance_of_information4, r_squared};
 pub use small::fit_small;
 
 /// Largest response magnitude whose squares, summed over a million rows,

@@ -29,10 +29,10 @@
 // comparisons are deliberate: a NaN must fail them and decline the fit.
 #![allow(clippy::needless_range_loop, clippy::neg_cmp_op_on_partial_ord)]
 
-use nalgebra::{Matrix2, Matrix4, Vector2};
+use nalgebra::{DMatrix, Matrix2, Vector2};
 
 use crate::fit::intervals::{Bound, Interval, f_quantile};
-use crate::fit::{Data, Fit, Model, Termination, covariance_of_information4, r_squared};
+use crate::fit::{Data, Fit, Model, Termination, r_squared};
 use crate::models::{Dose, Logistic};
 
 /// Curves with more wells than this go to the general engine (stack buffers).
@@ -634,10 +634,8 @@ fn summary(
             }
         }
     }
-    let information = Matrix4::from_fn(|j, k| upper[j.min(k)][j.max(k)]);
     let df = n - 4;
-    let covariance = covariance_of_information4(&information, lin.sse, df)?;
-    let c: [[f64; 4]; 4] = std::array::from_fn(|j| std::array::from_fn(|k| covariance[(j, k)]));
+    let c = covariance4(&upper, lin.sse, df)?;
     // The outlier rule's leverages gᵀ(JᵀWJ)⁻¹g, from the gradients just made
     // (it would otherwise evaluate the model at every well again).
     let s2 = lin.sse / df as f64;
@@ -655,7 +653,7 @@ fn summary(
         .collect();
     let se = (0..4)
         .map(|j| {
-            let v = covariance[(j, j)];
+            let v = c[j][j];
             (v.is_finite() && v >= 0.0).then(|| v.sqrt())
         })
         .collect();
@@ -664,7 +662,7 @@ fn summary(
         theta: vec![ic50, h, lin.lower, lin.upper],
         fixed: vec![false; 4],
         se,
-        covariance: Some(covariance),
+        covariance: Some(DMatrix::from_fn(4, 4, |j, k| c[j][k])),
         n,
         n_free: 4,
         df,
@@ -676,6 +674,72 @@ fn summary(
         evaluations: iterations,
         leverage: Some(leverage),
     })
+}
+
+/// s²(JᵀWJ)⁻¹ from the upper triangle of JᵀWJ (`information[j][k]`,
+/// j ≤ k), as the engine's `covariance_of_information4` defines it —
+/// scaled to unit diagonal so that parameters of very different size do
+/// not fool the factorisation, `None` when it is not positive definite or
+/// the scaled inverse's diagonal passes 1e14 — but written out for the
+/// 4×4 case on the stack: the Cholesky factor L of the scaled matrix
+/// (Golub & Van Loan, *Matrix Computations*, 4th ed., Alg. 4.2.1), M = L⁻¹
+/// by forward substitution, and the inverse MᵀM. Every screening curve
+/// needs one, and the general factorisation and triangular solves (through
+/// an identity matrix) were a few per cent of a run; the two agree to
+/// rounding (tested).
+fn covariance4(information: &[[f64; 4]; 4], sse: f64, df: usize) -> Option<[[f64; 4]; 4]> {
+    let d: [f64; 4] = std::array::from_fn(|k| information[k][k].sqrt());
+    if d.iter().any(|v| !(v.is_finite() && *v > 0.0)) {
+        return None;
+    }
+    let scaled = |i: usize, j: usize| information[i.min(j)][i.max(j)] / (d[i] * d[j]);
+    let mut l = [[0.0; 4]; 4];
+    for j in 0..4 {
+        let mut pivot = scaled(j, j);
+        for k in 0..j {
+            pivot -= l[j][k] * l[j][k];
+        }
+        if !(pivot > 0.0) {
+            return None;
+        }
+        l[j][j] = pivot.sqrt();
+        for i in j + 1..4 {
+            let mut v = scaled(i, j);
+            for k in 0..j {
+                v -= l[i][k] * l[j][k];
+            }
+            l[i][j] = v / l[j][j];
+        }
+    }
+    let mut m = [[0.0; 4]; 4];
+    for i in 0..4 {
+        m[i][i] = 1.0 / l[i][i];
+        for j in 0..i {
+            let mut v = 0.0;
+            for k in j..i {
+                v += l[i][k] * m[k][j];
+            }
+            m[i][j] = -v / l[i][i];
+        }
+    }
+    let mut inverse = [[0.0; 4]; 4];
+    for i in 0..4 {
+        for j in 0..=i {
+            let mut v = 0.0;
+            for k in i..4 {
+                v += m[k][i] * m[k][j];
+            }
+            (inverse[i][j], inverse[j][i]) = (v, v);
+        }
+    }
+    let condition = (0..4).map(|k| inverse[k][k]).fold(0.0, f64::max);
+    if !(condition.is_finite() && condition < 1e14) {
+        return None;
+    }
+    let s2 = sse / df as f64;
+    let covariance: [[f64; 4]; 4] =
+        std::array::from_fn(|i| std::array::from_fn(|j| inverse[i][j] / (d[i] * d[j]) * s2));
+    covariance.iter().flatten().all(|v| v.is_finite()).then_some(covariance)
 }
 
 /// How far (ln units) the profile walks before calling a side unbounded:
@@ -1042,6 +1106,71 @@ mod tests {
         // concentrations (h past 100) the kernel leaves the profile to the
         // engine: about half of these very steep test curves.
         assert!(total >= 50 && answered * 2 >= total, "kernel profiled {answered} of {total}");
+    }
+
+    /// The kernel's 4×4 covariance against the engine's
+    /// (`covariance_of_information4`, nalgebra's Cholesky): on random
+    /// positive definite matrices whose parameters differ in scale by up to
+    /// 10¹⁰, on the information matrices of fitted curves, and on singular
+    /// and indefinite ones (both decline), every entry agrees to 1e-12 of
+    /// √(Cᵢᵢ·Cⱼⱼ).
+    #[test]
+    fn covariance4_is_the_engines() {
+        use crate::fit::covariance_of_information4;
+        use nalgebra::Matrix4;
+        let mut rng = rand::rngs::StdRng::seed_from_u64(41);
+        let agree = |upper: &[[f64; 4]; 4]| {
+            let full = Matrix4::from_fn(|j, k| upper[j.min(k)][j.max(k)]);
+            let (ours, engine) = (covariance4(upper, 3.0, 6), covariance_of_information4(&full, 3.0, 6));
+            match (ours, engine) {
+                (Some(c), Some(e)) => {
+                    for j in 0..4 {
+                        for k in 0..4 {
+                            let size = (e[(j, j)] * e[(k, k)]).sqrt();
+                            assert!((c[j][k] - e[(j, k)]).abs() <= 1e-12 * size, "{upper:?}: {j},{k}");
+                        }
+                    }
+                    true
+                }
+                (None, None) => false,
+                (c, e) => panic!("{upper:?}: kernel {c:?}, engine {e:?}"),
+            }
+        };
+        let mut answered = 0;
+        for _ in 0..2000 {
+            // JᵀJ of a random 10×4 Jacobian with columns of very different scale.
+            let scale: [f64; 4] = std::array::from_fn(|_| 10f64.powf(rng.random_range(-5.0..5.0)));
+            let rows: Vec<[f64; 4]> =
+                (0..10).map(|_| std::array::from_fn(|k| scale[k] * rng.random_range(-1.0..1.0))).collect();
+            let upper: [[f64; 4]; 4] =
+                std::array::from_fn(|j| std::array::from_fn(|k| rows.iter().map(|r| r[j] * r[k]).sum()));
+            answered += agree(&upper) as usize;
+        }
+        assert_eq!(answered, 2000);
+        let dilution: Vec<f64> = (0..10).map(|k| 10000.0 / 3f64.powi(k)).collect();
+        for scale in [1.0, 1e6] {
+            for _ in 0..100 {
+                let ic50 = (rng.random_range(1f64.ln()..10000f64.ln())).exp();
+                let data =
+                    curve(&dilution, ic50, rng.random_range(0.5..3.0), 0.0, 100.0 * scale, 3.0 * scale, &mut rng);
+                let Some(fit) = fit_logistic_projected(&data) else { continue };
+                let mut upper = [[0.0; 4]; 4];
+                let mut g = [0.0; 4];
+                for x in &data.x {
+                    Logistic.gradient(&fit.theta, x, &mut g);
+                    for j in 0..4 {
+                        for k in j..4 {
+                            upper[j][k] += g[j] * g[k];
+                        }
+                    }
+                }
+                assert!(agree(&upper));
+            }
+        }
+        // Singular (two equal columns) and indefinite.
+        let singular = [[1.0, 1.0, 0.5, 0.2], [0.0, 1.0, 0.5, 0.2], [0.0, 0.0, 2.0, 0.1], [0.0, 0.0, 0.0, 3.0]];
+        let indefinite = [[1.0, 2.0, 0.0, 0.0], [0.0, 1.0, 0.0, 0.0], [0.0, 0.0, 1.0, 0.0], [0.0, 0.0, 0.0, 1.0]];
+        assert!(!agree(&singular) && !agree(&indefinite));
     }
 
     /// A flat curve has no interior optimum: the kernel declines.
