@@ -133,7 +133,8 @@ fn ln_beta_part(d1: usize, d2: usize, a: f64, b: f64) -> f64 {
 /// statrs' `checked_beta_reg(a, b, x)` (the continued fraction of Numerical
 /// Recipes §6.4, as statrs 0.19 writes it, operation for operation) for
 /// 0 < x < 1 not at 1, with `ln_beta_part` = lnΓ(a + b) − lnΓ(a) − lnΓ(b)
-/// given. A test holds it to statrs' own to the bit.
+/// given. A test holds it to statrs' own to the bit. Adapted from statrs
+/// 0.19 (`function::beta`), MIT licence, Copyright (c) 2016 Michael Ma.
 fn beta_reg_from(a: f64, b: f64, x: f64, ln_beta_part: f64) -> f64 {
     let bt = (ln_beta_part + a * x.ln() + b * (1.0 - x).ln()).exp();
     let symm_transform = x >= (a + 1.0) / (a + b + 2.0);
@@ -162,30 +163,25 @@ fn beta_reg_from(a: f64, b: f64, x: f64, ln_beta_part: f64) -> f64 {
     d = 1.0 / d;
     let mut h = d;
 
+    // One step of the modified Lentz recurrence for the term `aa`: the new
+    // (c, 1/d), each kept away from zero.
+    let lentz = |aa: f64, c: f64, d: f64| {
+        let mut d = 1.0 + aa * d;
+        if d.abs() < fpmin {
+            d = fpmin;
+        }
+        let mut c = 1.0 + aa / c;
+        if c.abs() < fpmin {
+            c = fpmin;
+        }
+        (c, 1.0 / d)
+    };
     for m in 1..141 {
         let m = f64::from(m);
         let m2 = m * 2.0;
-        let mut aa = m * (b - m) * x / ((qam + m2) * (a + m2));
-        d = 1.0 + aa * d;
-        if d.abs() < fpmin {
-            d = fpmin;
-        }
-        c = 1.0 + aa / c;
-        if c.abs() < fpmin {
-            c = fpmin;
-        }
-        d = 1.0 / d;
+        (c, d) = lentz(m * (b - m) * x / ((qam + m2) * (a + m2)), c, d);
         h = h * d * c;
-        aa = -(a + m) * (qab + m) * x / ((a + m2) * (qap + m2));
-        d = 1.0 + aa * d;
-        if d.abs() < fpmin {
-            d = fpmin;
-        }
-        c = 1.0 + aa / c;
-        if c.abs() < fpmin {
-            c = fpmin;
-        }
-        d = 1.0 / d;
+        (c, d) = lentz(-(a + m) * (qab + m) * x / ((a + m2) * (qap + m2)), c, d);
         let del = d * c;
         h *= del;
         if (del - 1.0).abs() <= eps {
