@@ -244,7 +244,7 @@ pub fn analyse(series: &Series, units: &Units, options: &Options) -> Result<KmRe
 /// The common value of rates that are all equal (to 1 part in 10¹²), which
 /// determine Vmax but not Km: the fit would drive Km to 0 and call it converged.
 fn constant_rate(rate: &[f64]) -> Option<f64> {
-    let (lo, hi) = rate.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), r| (lo.min(*r), hi.max(*r)));
+    let (lo, hi) = crate::fit::span_of(rate);
     (hi > 0.0 && hi - lo <= 1e-12 * hi.abs()).then_some(hi)
 }
 

@@ -441,7 +441,7 @@ fn check_matrix(matrix: &Matrix, options: &Options) -> Result<()> {
     if !matrix.rate.iter().any(|v| *v > 0.0) {
         return Err(err("no positive rate".into(), "check the rate column and its sign"));
     }
-    let (lo, hi) = matrix.rate.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
+    let (lo, hi) = crate::fit::span_of(&matrix.rate);
     if hi - lo <= 1e-12 * hi.abs() {
         return Err(err(
             format!(

@@ -41,7 +41,7 @@ impl Model for MichaelisMenten {
     /// the tested range with Vmax from the largest rate.
     fn starts(&self, data: &Data<f64>) -> Vec<Vec<f64>> {
         let vmax_guess = data.y.iter().cloned().fold(f64::MIN, f64::max).abs().max(f64::MIN_POSITIVE) * 1.2;
-        let (s_min, s_max) = range(&data.x);
+        let (s_min, s_max) = crate::fit::span_of(&data.x);
         let mut starts = Vec::new();
         if let Some((vmax, km)) = hanes_woolf(data) {
             starts.push(vec![vmax, km]);
@@ -55,11 +55,6 @@ impl Model for MichaelisMenten {
         }
         starts
     }
-}
-
-/// Minimum and maximum of a slice.
-pub(crate) fn range(x: &[f64]) -> (f64, f64) {
-    x.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &v| (lo.min(v), hi.max(v)))
 }
 
 /// Vmax and Km from the straight line through (S, S/v), when it gives

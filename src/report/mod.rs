@@ -37,11 +37,7 @@ impl Origin {
     /// of an `ic50` input shares its reader's): no copy of the name. Lines
     /// already strictly ascending, as a reader meets them, are not sorted.
     pub fn shared(file: std::sync::Arc<str>, lines: impl IntoIterator<Item = u64>) -> Origin {
-        Origin::from_lines(file, lines.into_iter().collect())
-    }
-
-    /// [`Origin::shared`] of lines already in a vector, taken as they are.
-    pub fn from_lines(file: std::sync::Arc<str>, mut lines: Vec<u64>) -> Origin {
+        let mut lines: Vec<u64> = lines.into_iter().collect();
         if !lines.windows(2).all(|w| w[0] < w[1]) {
             lines.sort_unstable();
             lines.dedup();

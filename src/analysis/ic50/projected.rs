@@ -114,6 +114,20 @@ impl<'a> Wells<'a> {
             unit_weights,
         })
     }
+    /// The smallest and largest ln x over the positive doses; `None` when
+    /// no dose is positive. The start grid spans it, and an optimum too far
+    /// outside it is declined.
+    fn ln_range(&self) -> Option<(f64, f64)> {
+        let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+        for (&lx, &pos) in self.ln_x.iter().zip(self.positive) {
+            if pos {
+                lo = lo.min(lx);
+                hi = hi.max(lx);
+            }
+        }
+        (lo.is_finite() && hi.is_finite()).then_some((lo, hi))
+    }
+
     /// s at every well for (a = ln IC50, h), with the model's limits at x = 0.
     fn fractions(&self, a: f64, h: f64, s: &mut [f64]) {
         for ((si, &lx), &pos) in s.iter_mut().zip(self.ln_x).zip(self.positive) {
@@ -336,17 +350,8 @@ impl<'a> Wells<'a> {
 /// and each slope is twice the one before, so its powers are the squares of
 /// the last slope's. (The few ulps these recurrences drift by can only
 /// matter for starts whose SSEs tie to rounding.)
-fn best_start(wells: &Wells, s: &mut [f64]) -> Option<(f64, f64)> {
-    let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
-    for (&lx, &pos) in wells.ln_x.iter().zip(wells.positive) {
-        if pos {
-            lo = lo.min(lx);
-            hi = hi.max(lx);
-        }
-    }
-    if !(lo.is_finite() && hi.is_finite()) {
-        return None;
-    }
+/// `(lo, hi)` is the tested range of ln x ([`Wells::ln_range`]).
+fn best_start(wells: &Wells, (lo, hi): (f64, f64), s: &mut [f64]) -> Option<(f64, f64)> {
     let grid_point = |k: usize| lo + (hi - lo) * k as f64 / (GRID - 1) as f64;
     if !(SLOPES[SLOPES.len() - 1] * (hi - lo) < 600.0) {
         // Far too wide a range for the recurrences to stay finite: point by point.
@@ -578,14 +583,9 @@ pub fn fit_logistic_projected(data: &Data<Dose>) -> Option<Fit> {
     let wells = Wells::new(&doses, data)?;
     let mut s = [0.0; MAX_POINTS];
     let s = &mut s[..n];
-    let start = best_start(&wells, s)?;
+    let (lo, hi) = wells.ln_range()?;
+    let start = best_start(&wells, (lo, hi), s)?;
     let (a, h, lin, iterations) = minimise(&wells, start, s)?;
-    let (lo, hi) = wells
-        .ln_x
-        .iter()
-        .zip(wells.positive)
-        .filter(|(_, p)| **p)
-        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), (&lx, _)| (lo.min(lx), hi.max(lx)));
     let slope_ok = h.abs() >= SLOPE_RANGE.0 && h.abs() <= SLOPE_RANGE.1;
     let inside = a > lo - RANGE_FACTOR.ln() && a < hi + RANGE_FACTOR.ln();
     if !(slope_ok && inside) {
@@ -925,7 +925,7 @@ mod tests {
         let doses = Doses::of(data);
         let wells = Wells::new(&doses, data).expect("test curves have finite responses");
         let mut s = vec![0.0; n];
-        if let Some((a, h)) = best_start(&wells, &mut s) {
+        if let Some((a, h)) = wells.ln_range().and_then(|range| best_start(&wells, range, &mut s)) {
             let l = wells.project(&s).unwrap();
             starts.push(vec![a.exp(), h, l.lower, l.upper]);
         }
