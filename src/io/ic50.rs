@@ -319,11 +319,6 @@ pub struct CurveBatch {
 }
 
 impl CurveBatch {
-    /// Curves (and failed blocks) in the batch.
-    pub fn len(&self) -> usize {
-        self.items.len()
-    }
-
     /// Whether the input had no curve left.
     pub fn is_empty(&self) -> bool {
         self.items.is_empty()
