@@ -64,8 +64,9 @@ struct Linear {
     sse: f64,
 }
 
-/// The wells, laid out for the kernel.
-struct Wells<'a> {
+/// The wells, laid out for the kernel, whose stack buffers hold `M` wells
+/// ([`fit_logistic_projected`] picks the smallest capacity that fits).
+struct Wells<'a, const M: usize> {
     ln_x: &'a [f64],
     positive: &'a [bool],
     y: &'a [f64],
@@ -75,16 +76,16 @@ struct Wells<'a> {
     unit_weights: bool,
 }
 
-/// ln x and whether x > 0 at every well, on the stack (at most
-/// [`MAX_POINTS`] wells; the callers check).
-struct Doses {
-    ln_x: [f64; MAX_POINTS],
-    positive: [bool; MAX_POINTS],
+/// ln x and whether x > 0 at every well, on the stack (at most `M`
+/// wells; the callers check).
+struct Doses<const M: usize> {
+    ln_x: [f64; M],
+    positive: [bool; M],
 }
 
-impl Doses {
-    fn of(data: &Data<Dose>) -> Doses {
-        let mut doses = Doses { ln_x: [0.0; MAX_POINTS], positive: [false; MAX_POINTS] };
+impl<const M: usize> Doses<M> {
+    fn of(data: &Data<Dose>) -> Doses<M> {
+        let mut doses = Doses { ln_x: [0.0; M], positive: [false; M] };
         for (i, d) in data.x.iter().enumerate() {
             doses.positive[i] = d.x > 0.0;
             doses.ln_x[i] = if doses.positive[i] { d.ln_x } else { 0.0 };
@@ -93,10 +94,10 @@ impl Doses {
     }
 }
 
-impl<'a> Wells<'a> {
+impl<'a, const M: usize> Wells<'a, M> {
     /// The wells of `data` for the kernel; `None` when the weights sum to
     /// nothing or a response is not finite.
-    fn new(doses: &'a Doses, data: &'a Data<Dose>) -> Option<Wells<'a>> {
+    fn new(doses: &'a Doses<M>, data: &'a Data<Dose>) -> Option<Wells<'a, M>> {
         let n = data.len();
         let weight_sum: f64 = data.weights.iter().sum();
         if !(weight_sum > 0.0) || data.y.iter().any(|y| !y.is_finite()) {
@@ -233,8 +234,8 @@ impl<'a> Wells<'a> {
         let (w, y, s, ln_x, positive) = self.views(s);
         let n = y.len();
         let span = lin.upper - lin.lower;
-        let mut da = [0.0; MAX_POINTS];
-        let mut dh = [0.0; MAX_POINTS];
+        let mut da = [0.0; M];
+        let mut dh = [0.0; M];
         let (da, dh) = (&mut da[..n], &mut dh[..n]);
         let (mut s_sum, mut a_sum, mut h_sum) = (0.0, 0.0, 0.0);
         for i in 0..n {
@@ -292,8 +293,8 @@ impl<'a> Wells<'a> {
         let (w, y, s, ln_x, positive) = self.views(s);
         let n = y.len();
         let d = lin.upper - lin.lower;
-        let mut sa = [0.0; MAX_POINTS];
-        let mut sh = [0.0; MAX_POINTS];
+        let mut sa = [0.0; M];
+        let mut sh = [0.0; M];
         let (sa, sh) = (&mut sa[..n], &mut sh[..n]);
         let (mut s_sum, mut a_sum, mut h_sum) = (0.0, 0.0, 0.0);
         let (mut r_a, mut r_h, mut c_aa, mut c_ah, mut c_hh) = (0.0, 0.0, 0.0, 0.0, 0.0);
@@ -351,13 +352,13 @@ impl<'a> Wells<'a> {
 /// the last slope's. (The few ulps these recurrences drift by can only
 /// matter for starts whose SSEs tie to rounding.)
 /// `(lo, hi)` is the tested range of ln x ([`Wells::ln_range`]).
-fn best_start(wells: &Wells, (lo, hi): (f64, f64), s: &mut [f64]) -> Option<(f64, f64)> {
+fn best_start<const M: usize>(wells: &Wells<M>, (lo, hi): (f64, f64), s: &mut [f64]) -> Option<(f64, f64)> {
     let grid_point = |k: usize| lo + (hi - lo) * k as f64 / (GRID - 1) as f64;
     if !(SLOPES[SLOPES.len() - 1] * (hi - lo) < 600.0) {
         // Far too wide a range for the recurrences to stay finite: point by point.
         return best_start_directly(wells, s, grid_point);
     }
-    let mut centred = [0.0; MAX_POINTS];
+    let mut centred = [0.0; M];
     let centred = &mut centred[..s.len()];
     let mean = wells.y.iter().zip(wells.w).map(|(y, w)| w * y).sum::<f64>() / wells.weight_sum;
     let mut total = 0.0;
@@ -367,7 +368,7 @@ fn best_start(wells: &Wells, (lo, hi): (f64, f64), s: &mut [f64]) -> Option<(f64
     }
     let walk = GridWalk::new(wells, lo, (hi - lo) / (GRID - 1) as f64);
     let mut sse = [[f64::INFINITY; SLOPES.len()]; GRID];
-    let mut e = [0.0; MAX_POINTS];
+    let mut e = [0.0; M];
     let e = &mut e[..s.len()];
     for j in 0..SLOPES.len() {
         let ratio = walk.first_row(j, e);
@@ -395,7 +396,11 @@ fn best_start(wells: &Wells, (lo, hi): (f64, f64), s: &mut [f64]) -> Option<(f64
 }
 
 /// [`best_start`]'s grid point by point, each with its own `exp`s.
-fn best_start_directly(wells: &Wells, s: &mut [f64], grid_point: impl Fn(usize) -> f64) -> Option<(f64, f64)> {
+fn best_start_directly<const M: usize>(
+    wells: &Wells<M>,
+    s: &mut [f64],
+    grid_point: impl Fn(usize) -> f64,
+) -> Option<(f64, f64)> {
     let mut best: Option<(f64, f64, f64)> = None;
     for k in 0..GRID {
         for &h in &SLOPES {
@@ -411,17 +416,17 @@ fn best_start_directly(wells: &Wells, s: &mut [f64], grid_point: impl Fn(usize) 
 }
 
 /// The powers e = exp(h·(ln x − a)) along [`best_start`]'s grid.
-struct GridWalk<'a> {
+struct GridWalk<'a, const M: usize> {
     positive: &'a [bool],
     /// exp(h₀·(ln x − lo)) at every positive well (0 elsewhere), h₀ the first slope.
-    base: [f64; MAX_POINTS],
+    base: [f64; M],
     /// exp(−h₀·δ): one grid step along ln IC50 at the first slope.
     ratio: f64,
 }
 
-impl<'a> GridWalk<'a> {
-    fn new(wells: &'a Wells, lo: f64, step: f64) -> GridWalk<'a> {
-        let mut base = [0.0; MAX_POINTS];
+impl<'a, const M: usize> GridWalk<'a, M> {
+    fn new(wells: &'a Wells<M>, lo: f64, step: f64) -> GridWalk<'a, M> {
+        let mut base = [0.0; M];
         for ((b, &lx), &pos) in base.iter_mut().zip(wells.ln_x).zip(wells.positive) {
             *b = if pos { (SLOPES[0] * (lx - lo)).exp() } else { 0.0 };
         }
@@ -467,11 +472,11 @@ const SLOPES: [f64; 3] = [0.6, 1.2, 2.4];
 
 /// Levenberg–Marquardt on (ln IC50, h) from `start`, whose fractions are
 /// in `s`; `None` unless it converges to an interior point.
-fn minimise(wells: &Wells, start: (f64, f64), s: &mut [f64]) -> Option<(f64, f64, Linear, usize)> {
+fn minimise<const M: usize>(wells: &Wells<M>, start: (f64, f64), s: &mut [f64]) -> Option<(f64, f64, Linear, usize)> {
     let (mut a, mut h) = start;
     let mut lin = wells.project(s)?;
     let mut lambda = 1e-3;
-    let mut trial = [0.0; MAX_POINTS];
+    let mut trial = [0.0; M];
     let trial = &mut trial[..s.len()];
     let mut handover = POLISH_FROM;
     for iteration in 1..=MAX_ITERATIONS {
@@ -525,8 +530,8 @@ fn minimise(wells: &Wells, start: (f64, f64), s: &mut [f64]) -> Option<(f64, f64
 /// taken while the Hessian is positive definite, they shrink and the SSE
 /// stays within rounding; otherwise `Err` with the last point reached
 /// (whose fractions are in `s`), for the damped iteration to go on from.
-fn polish(
-    wells: &Wells,
+fn polish<const M: usize>(
+    wells: &Wells<M>,
     (mut a, mut h, mut lin): (f64, f64, Linear),
     s: &mut [f64],
     trial: &mut [f64],
@@ -575,13 +580,22 @@ fn polish(
 /// the full four-parameter Jacobian at the optimum). `None` when the kernel
 /// cannot vouch for its answer; the caller then uses the general engine.
 pub fn fit_logistic_projected(data: &Data<Dose>) -> Option<Fit> {
-    let n = data.len();
-    if !(5..=MAX_POINTS).contains(&n) {
-        return None;
+    match data.len() {
+        5..=16 => fit_within::<16>(data),
+        17..=32 => fit_within::<32>(data),
+        33..=MAX_POINTS => fit_within::<MAX_POINTS>(data),
+        _ => None,
     }
-    let doses = Doses::of(data);
+}
+
+/// [`fit_logistic_projected`] with stack buffers of `M` wells (`data`
+/// has at most `M`): a ten-point curve's buffers are then zeroed by a few
+/// stores rather than a `memset` of 512 bytes each, some twenty times a fit.
+fn fit_within<const M: usize>(data: &Data<Dose>) -> Option<Fit> {
+    let n = data.len();
+    let doses = Doses::<M>::of(data);
     let wells = Wells::new(&doses, data)?;
-    let mut s = [0.0; MAX_POINTS];
+    let mut s = [0.0; M];
     let s = &mut s[..n];
     let (lo, hi) = wells.ln_range()?;
     let start = best_start(&wells, (lo, hi), s)?;
@@ -603,8 +617,8 @@ pub fn fit_logistic_projected(data: &Data<Dose>) -> Option<Fit> {
 /// gradient (`models::logistic`), zero in the first two at x = 0. The
 /// numbers agree with the engine's to rounding (tested); `None` when the
 /// information matrix is singular.
-fn summary(
-    wells: &Wells,
+fn summary<const M: usize>(
+    wells: &Wells<M>,
     data: &Data<Dose>,
     (a, h, lin): (f64, f64, Linear),
     s: &[f64],
@@ -616,7 +630,7 @@ fn summary(
     let mut residuals = Vec::with_capacity(n);
     // JᵀWJ is symmetric: its upper triangle is summed (on the stack) and mirrored.
     let mut upper = [[0.0; 4]; 4];
-    let mut gradients = [[0.0; 4]; MAX_POINTS];
+    let mut gradients = [[0.0; 4]; M];
     for i in 0..n {
         let si = s[i];
         residuals.push(wells.y[i] - (lin.lower + span * si));
@@ -759,13 +773,22 @@ const PROFILE_REACH: f64 = 25.0;
 /// caller then runs the engine's profile); the ends agree with the
 /// engine's to 1e-6 (tested).
 pub fn profile_ic50(data: &Data<Dose>, fit: &Fit, confidence: f64) -> Option<Interval> {
-    let n = data.len();
-    if !(5..=MAX_POINTS).contains(&n) || fit.fixed.iter().any(|&f| f) || fit.df == 0 || !fit.sse.is_finite() {
+    if fit.fixed.iter().any(|&f| f) || fit.df == 0 || !fit.sse.is_finite() {
         return None;
     }
+    match data.len() {
+        5..=16 => profile_within::<16>(data, fit, confidence),
+        17..=32 => profile_within::<32>(data, fit, confidence),
+        33..=MAX_POINTS => profile_within::<MAX_POINTS>(data, fit, confidence),
+        _ => None,
+    }
+}
+
+/// [`profile_ic50`] with stack buffers of `M` wells (as [`fit_within`]).
+fn profile_within<const M: usize>(data: &Data<Dose>, fit: &Fit, confidence: f64) -> Option<Interval> {
     let f = f_quantile(confidence, 1, fit.df)?;
     let threshold = fit.sse * (1.0 + f / fit.df as f64);
-    let doses = Doses::of(data);
+    let doses = Doses::<M>::of(data);
     let wells = Wells::new(&doses, data)?;
     let (ic50, h) = (fit.theta[Logistic::IC50], fit.theta[Logistic::HILL]);
     let se_internal = fit.se[Logistic::IC50].map(|se| se / ic50);
@@ -778,15 +801,15 @@ pub fn profile_ic50(data: &Data<Dose>, fit: &Fit, confidence: f64) -> Option<Int
 }
 
 /// One side's walk of [`profile_ic50`].
-struct Walk<'a> {
-    wells: &'a Wells<'a>,
+struct Walk<'a, const M: usize> {
+    wells: &'a Wells<'a, M>,
     centre: f64,
     h: f64,
     first_step: f64,
     threshold: f64,
 }
 
-impl Walk<'_> {
+impl<const M: usize> Walk<'_, M> {
     /// Outward from the fit by doubling steps until the profile SSE
     /// exceeds the threshold, then the crossing to 1e-10 (the engine's
     /// tolerance); `Unbounded` when the reach is passed first.
@@ -854,9 +877,9 @@ impl Walk<'_> {
 /// function is not convex; a step that raises the SSE is halved); with the
 /// h found. `None` when the slope leaves the kernel's range
 /// or the minimum is not clear (the engine then profiles).
-fn profile_point(wells: &Wells, a: f64, mut h: f64) -> Option<(f64, f64)> {
+fn profile_point<const M: usize>(wells: &Wells<M>, a: f64, mut h: f64) -> Option<(f64, f64)> {
     let n = wells.y.len();
-    let (mut s, mut trial) = ([0.0; MAX_POINTS], [0.0; MAX_POINTS]);
+    let (mut s, mut trial) = ([0.0; M], [0.0; M]);
     let (s, trial) = (&mut s[..n], &mut trial[..n]);
     wells.fractions(a, h, s);
     let mut lin = wells.project(s)?;
@@ -922,7 +945,7 @@ mod tests {
     fn reference(data: &Data<Dose>) -> Fit {
         let mut starts = Logistic.starts(data);
         let n = data.len();
-        let doses = Doses::of(data);
+        let doses = Doses::<MAX_POINTS>::of(data);
         let wells = Wells::new(&doses, data).expect("test curves have finite responses");
         let mut s = vec![0.0; n];
         if let Some((a, h)) = wells.ln_range().and_then(|range| best_start(&wells, range, &mut s)) {
@@ -978,6 +1001,52 @@ mod tests {
             }
         }
         assert!(answered * 100 >= total * 99, "kernel answered {answered} of {total}");
+    }
+
+    /// The stack capacity is chosen by the number of wells only to save
+    /// zeroing: a curve gets the very same bits (estimates, SEs, covariance,
+    /// leverages, profile ends) from every capacity that holds it, on 10,
+    /// 20 and 40 wells (single, duplicate and quadruplicate dilutions).
+    #[test]
+    fn every_capacity_gives_the_same_bits() {
+        let mut rng = rand::rngs::StdRng::seed_from_u64(17);
+        let dilution: Vec<f64> = (0..10).map(|k| 10000.0 / 3f64.powi(k)).collect();
+        let bits = |f: &Option<Fit>| {
+            f.as_ref().map(|f| {
+                let cov = f.covariance.as_ref().map(|c| c.iter().map(|v| v.to_bits()).collect::<Vec<_>>());
+                let lev = f.leverage.as_ref().map(|l| l.iter().map(|v| v.to_bits()).collect::<Vec<_>>());
+                let se: Vec<_> = f.se.iter().map(|s| s.map(f64::to_bits)).collect();
+                (f.theta.iter().map(|v| v.to_bits()).collect::<Vec<_>>(), se, cov, lev, f.sse.to_bits())
+            })
+        };
+        let ends = |i: Option<Interval>| i.map(|i| format!("{:?} {:?}", i.low, i.high));
+        let mut answered = 0;
+        for copies in [1, 2, 4] {
+            let conc: Vec<f64> = dilution.iter().flat_map(|&c| std::iter::repeat_n(c, copies)).collect();
+            for _ in 0..40 {
+                let ic50 = (rng.random_range(3f64.ln()..3000f64.ln())).exp();
+                let data = curve(&conc, ic50, rng.random_range(0.6..3.0), 2.0, 100.0, 3.0, &mut rng);
+                let widest = fit_within::<MAX_POINTS>(&data);
+                answered += usize::from(widest.is_some());
+                let capacities: Vec<Option<Fit>> = match conc.len() {
+                    ..=16 => vec![fit_within::<16>(&data), fit_within::<32>(&data)],
+                    ..=32 => vec![fit_within::<32>(&data)],
+                    _ => vec![],
+                };
+                for fit in &capacities {
+                    assert_eq!(bits(fit), bits(&widest), "{} wells", conc.len());
+                }
+                let Some(fit) = widest else { continue };
+                let profile = ends(profile_within::<MAX_POINTS>(&data, &fit, 0.95));
+                if conc.len() <= 16 {
+                    assert_eq!(ends(profile_within::<16>(&data, &fit, 0.95)), profile);
+                }
+                if conc.len() <= 32 {
+                    assert_eq!(ends(profile_within::<32>(&data, &fit, 0.95)), profile);
+                }
+            }
+        }
+        assert!(answered >= 110, "the kernel answered {answered} of 120");
     }
 
     /// Screening curves — ten 3-fold dilutions, IC50 inside the range, Hill
@@ -1051,7 +1120,7 @@ mod tests {
         for scale in [1.0, 1e7] {
             for _ in 0..50 {
                 let data = curve(&conc, 100.0, 1.0, 0.0, 100.0 * scale, 3.0 * scale, &mut rng);
-                let doses = Doses::of(&data);
+                let doses = Doses::<MAX_POINTS>::of(&data);
                 let wells = Wells::new(&doses, &data).expect("finite responses");
                 let mean = data.y.iter().sum::<f64>() / conc.len() as f64;
                 let centred: Vec<f64> = data.y.iter().map(|y| y - mean).collect();
