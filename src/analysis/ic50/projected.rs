@@ -1029,8 +1029,8 @@ mod tests {
                 let widest = fit_within::<MAX_POINTS>(&data);
                 answered += usize::from(widest.is_some());
                 let capacities: Vec<Option<Fit>> = match conc.len() {
-                    ..=16 => vec![fit_within::<16>(&data), fit_within::<32>(&data)],
-                    ..=32 => vec![fit_within::<32>(&data)],
+                    0..=16 => vec![fit_within::<16>(&data), fit_within::<32>(&data)],
+                    17..=32 => vec![fit_within::<32>(&data)],
                     _ => vec![],
                 };
                 for fit in &capacities {
