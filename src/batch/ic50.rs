@@ -51,7 +51,7 @@ impl Settings {
         Settings {
             read: ReadOptions { normalise: false, concentration_unit: None, unit_flag: "--concentration-unit" },
             format,
-            batch_size: 2048,
+            batch_size: 8192,
             fix_lower: None,
             fix_upper: None,
             enzyme: None,

@@ -87,7 +87,7 @@ pub struct Args {
     #[arg(long, default_value_t = Thresholds::default().lower_window.1, allow_negative_numbers = true)]
     pub lower_max: f64,
     /// Curves per parallel batch (memory and progress granularity).
-    #[arg(long, default_value_t = 2048, hide = true)]
+    #[arg(long, default_value_t = 8192, hide = true)]
     pub batch_size: usize,
     /// Output format and destination.
     #[command(flatten)]

@@ -471,6 +471,8 @@ pub fn delimiter_for(path: &str) -> u8 {
 pub struct OutputSink {
     writer: BufWriter<Box<dyn Write + Send>>,
     temp: Option<(PathBuf, PathBuf)>,
+    /// The temporary file's write-out, started as it grows.
+    early: Option<EarlyWriteOut>,
     /// The temporary file, registered for removal on SIGINT/SIGTERM.
     _registered: Option<super::cleanup::Registered>,
 }
@@ -483,6 +485,7 @@ impl OutputSink {
             return Ok(OutputSink {
                 writer: BufWriter::new(Box::new(std::io::stdout())),
                 temp: None,
+                early: None,
                 _registered: None,
             });
         };
@@ -492,12 +495,18 @@ impl OutputSink {
                 .write(true)
                 .open(path)
                 .map_err(|source| Error::Write { path: path.to_path_buf(), source })?;
-            return Ok(OutputSink { writer: BufWriter::new(Box::new(device)), temp: None, _registered: None });
+            return Ok(OutputSink {
+                writer: BufWriter::new(Box::new(device)),
+                temp: None,
+                early: None,
+                _registered: None,
+            });
         }
         let temp = super::identity::temp_sibling(path);
         let registered = super::cleanup::register(&temp);
         let file = std::fs::File::create(&temp).map_err(|source| Error::Write { path: path.to_path_buf(), source })?;
         Ok(OutputSink {
+            early: Some(EarlyWriteOut::of(&file)),
             writer: BufWriter::new(Box::new(file)),
             temp: Some((temp, path.to_path_buf())),
             _registered: Some(registered),
@@ -525,11 +534,69 @@ impl OutputSink {
 
 impl Write for OutputSink {
     fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
-        self.writer.write(buf)
+        let n = self.writer.write(buf)?;
+        if let Some(early) = &mut self.early {
+            early.wrote(n);
+        }
+        Ok(n)
     }
 
     fn flush(&mut self) -> std::io::Result<()> {
         self.writer.flush()
+    }
+}
+
+/// Starts the write-out of a temporary output file every [`Self::EVERY`]
+/// bytes while the run goes on (Linux: `sync_file_range` with
+/// `SYNC_FILE_RANGE_WRITE`, which queues the dirty pages and returns; it
+/// neither waits for the disk nor promises anything a crash could test).
+///
+/// Why: the output replaces the file it is named after by a rename, and
+/// ext4 (the `auto_da_alloc` default) then writes the new file out before
+/// the rename returns, so that a crash cannot leave an empty file in the
+/// old one's place. Left until then, that write-out was the run's serial
+/// tail: 0.44-0.46 s for the 460 MB of a million curves (`strace -T`),
+/// with both cores otherwise idle. Started along the way, most of it is
+/// done by the time of the rename, and the rename keeps its guarantee.
+struct EarlyWriteOut {
+    #[cfg(target_os = "linux")]
+    fd: std::os::fd::RawFd,
+    /// Bytes handed to the file so far, and where the last write-out began.
+    written: u64,
+    started: u64,
+}
+
+impl EarlyWriteOut {
+    const EVERY: u64 = 32 << 20;
+
+    fn of(file: &std::fs::File) -> EarlyWriteOut {
+        #[cfg(target_os = "linux")]
+        let fd = std::os::fd::AsRawFd::as_raw_fd(file);
+        #[cfg(not(target_os = "linux"))]
+        let _ = file;
+        EarlyWriteOut {
+            #[cfg(target_os = "linux")]
+            fd,
+            written: 0,
+            started: 0,
+        }
+    }
+
+    fn wrote(&mut self, n: usize) {
+        self.written += n as u64;
+        if self.written - self.started < Self::EVERY {
+            return;
+        }
+        // From where the last one began to the end of the file: the bytes a
+        // buffer still held then are covered now. Advisory: a failure only
+        // leaves the write-out to the rename, as before.
+        #[cfg(target_os = "linux")]
+        // SAFETY: `fd` is the temporary file's, open as long as the sink
+        // that owns both; the call reads no memory of ours.
+        unsafe {
+            libc::sync_file_range(self.fd, self.started as libc::off64_t, 0, libc::SYNC_FILE_RANGE_WRITE);
+        }
+        self.started = self.written;
     }
 }
 
@@ -805,5 +872,30 @@ mod tests {
         sink.write_all(b"whole").unwrap();
         sink.commit().unwrap();
         assert_eq!(std::fs::read_to_string(&path).unwrap(), "whole");
+    }
+
+    /// An output that passes the early write-out's interval several times,
+    /// in writes of every size (some larger than the buffer, some not),
+    /// replaces the file before it byte for byte, and the sink counted
+    /// every byte it took.
+    #[test]
+    fn a_large_output_written_out_early_arrives_whole() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("out.csv");
+        std::fs::write(&path, b"the previous output").unwrap();
+        let total = 2 * EarlyWriteOut::EVERY as usize + 12_345;
+        let expected: Vec<u8> = (0..total).map(|i| (i % 251) as u8).collect();
+        let mut sink = OutputSink::create(Some(&path), &[]).unwrap();
+        let (mut at, mut size) = (0, 1);
+        while at < total {
+            let end = (at + size).min(total);
+            sink.write_all(&expected[at..end]).unwrap();
+            at = end;
+            size = size * 7 % 1_000_003 + 1;
+        }
+        assert_eq!(sink.early.as_ref().map(|e| e.written), Some(total as u64));
+        assert!(sink.early.as_ref().is_some_and(|e| e.started >= 2 * EarlyWriteOut::EVERY));
+        sink.commit().unwrap();
+        assert!(std::fs::read(&path).unwrap() == expected);
     }
 }
