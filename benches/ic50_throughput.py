@@ -145,7 +145,7 @@ def callgrind_breakdown(kimech, data, work, count):
     if p.returncode not in (0, 3):
         sys.exit(f"callgrind run failed ({p.returncode}):\n{p.stderr[-2000:]}")
     total = int(re.search(r"Collected : (\d+)", p.stderr).group(1))
-    report = subprocess.run(["callgrind_annotate", "--inclusive=yes", str(out_file)], capture_output=True,
+    report = subprocess.run(["callgrind_annotate", "--inclusive=yes", "--threshold=100", str(out_file)], capture_output=True,
                             text=True).stdout
     inclusive = {}
     for line in report.splitlines():
