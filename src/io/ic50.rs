@@ -392,11 +392,15 @@ impl BatchWells {
     }
 
     /// Room for a batch the size of `like`.
+    /// Makes room for `like` (bytes of names, wells) and an eighth more, so
+    /// that a batch a little larger than the last does not copy its buffers
+    /// as they double.
     fn reserve_like(&mut self, like: (usize, usize)) {
-        self.names.reserve(like.0);
-        self.x.reserve(like.1);
-        self.y.reserve(like.1);
-        self.lines.reserve(like.1);
+        let (names, wells) = (like.0 + like.0 / 8, like.1 + like.1 / 8);
+        self.names.reserve(names);
+        self.x.reserve(wells);
+        self.y.reserve(wells);
+        self.lines.reserve(wells);
     }
 }
 
@@ -470,8 +474,11 @@ impl<'a> CurveReader<'a> {
     /// Reads up to `max` complete compound blocks; a block that cannot be a
     /// curve is an `Err` in its place, so the rest still come out.
     pub fn next_batch(&mut self, max: usize) -> Result<CurveBatch> {
+        // Room for every curve of a full batch (up to a bound, for a huge
+        // `--batch-size`): growing a vector of ~100-byte items copied it
+        // whole, at the default batch size once a batch.
         let mut batch = CurveBatch {
-            items: Vec::with_capacity(max.min(4096)),
+            items: Vec::with_capacity(max.min(1 << 16)),
             wells: BatchWells { file: self.file.clone(), ..BatchWells::default() },
         };
         // Room for the batch at the size of the last one, or for the first
