@@ -403,13 +403,19 @@ impl RowStream {
             let chunk = &line[at..];
             let (word, valid) = match chunk.first_chunk::<8>() {
                 Some(bytes) => (u64::from_le_bytes(*bytes), HIGH),
+                // The line's last bytes: eight read from the buffer, which
+                // nearly always holds more than the line (initialised bytes,
+                // masked off below), else copied out one by one.
                 None => {
-                    let mut padded = [0u8; 8];
-                    padded[..chunk.len()].copy_from_slice(chunk);
-                    (u64::from_le_bytes(padded), HIGH & ((1u64 << (8 * chunk.len())) - 1))
+                    let from = self.pos + at;
+                    let word = match self.buf.get(from..).and_then(|b| b.first_chunk::<8>()) {
+                        Some(bytes) => u64::from_le_bytes(*bytes),
+                        None => chunk.iter().rev().fold(0u64, |w, &b| (w << 8) | u64::from(b)),
+                    };
+                    (word, HIGH & ((1u64 << (8 * chunk.len())) - 1))
                 }
             };
-            if (word & HIGH) | (equal_bytes(word, b'"') & valid) != 0 {
+            if (word & valid) | (equal_bytes(word, b'"') & valid) != 0 {
                 return None;
             }
             let mut delimiters = equal_bytes(word, self.delimiter) & valid;
