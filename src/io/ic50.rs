@@ -391,7 +391,6 @@ impl BatchWells {
         curve
     }
 
-    /// Room for a batch the size of `like`.
     /// Makes room for `like` (bytes of names, wells) and an eighth more, so
     /// that a batch a little larger than the last does not copy its buffers
     /// as they double.
@@ -401,6 +400,16 @@ impl BatchWells {
         self.x.reserve(wells);
         self.y.reserve(wells);
         self.lines.reserve(wells);
+    }
+
+    /// Adds the well [`Layout::plain_well`] read on `line`, its
+    /// concentration in the reporting unit (the first unit read becomes it
+    /// when neither header nor flag gave one).
+    fn push_plain(&mut self, (molar, unit, y): (f64, ConcUnit, f64), reporting: &mut Option<ConcUnit>, line: u64) {
+        let reporting = *reporting.get_or_insert(unit);
+        self.x.push(reporting.from_molar(molar));
+        self.y.push(y);
+        self.lines.push(line);
     }
 }
 
@@ -556,11 +565,8 @@ impl<'a> CurveReader<'a> {
         if line.cell(self.layout.compound).as_bytes() != &wells.names.as_bytes()[b.name.clone()] {
             return false;
         }
-        let Some((molar, unit, y)) = self.layout.plain_well(&line) else { return false };
-        let reporting = *self.unit.get_or_insert(unit);
-        wells.x.push(reporting.from_molar(molar));
-        wells.y.push(y);
-        wells.lines.push(line.line);
+        let Some(well) = self.layout.plain_well(&line) else { return false };
+        wells.push_plain(well, &mut self.unit, line.line);
         b.last = line.line;
         let end = line.end;
         self.stream.take_plain(end);
@@ -671,12 +677,9 @@ impl RowContext<'_> {
     fn well(&mut self, b: &mut Block, wells: &mut BatchWells) -> Result<()> {
         let (table, layout, row) = (self.table, self.layout, self.row);
         if self.plates.is_none()
-            && let Some((molar, unit, y)) = layout.plain_well(row)
+            && let Some(well) = layout.plain_well(row)
         {
-            let reporting = *self.unit.get_or_insert(unit);
-            wells.x.push(reporting.from_molar(molar));
-            wells.y.push(y);
-            wells.lines.push(row.line());
+            wells.push_plain(well, self.unit, row.line());
             return Ok(());
         }
         // The header's unit, else the flag's: looked up once, in the layout.

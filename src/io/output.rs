@@ -149,21 +149,23 @@ pub fn append_short(out: &mut Vec<u8>, bytes: &[u8]) {
     let start = out.len();
     out.extend_from_slice(&[0u8; 32]);
     let room = &mut out[start..start + 32];
-    if n >= 16 {
-        room[..16].copy_from_slice(&bytes[..16]);
-        room[n - 16..n].copy_from_slice(&bytes[n - 16..]);
-    } else if n >= 8 {
-        room[..8].copy_from_slice(&bytes[..8]);
-        room[n - 8..n].copy_from_slice(&bytes[n - 8..]);
-    } else if n >= 4 {
-        room[..4].copy_from_slice(&bytes[..4]);
-        room[n - 4..n].copy_from_slice(&bytes[n - 4..]);
-    } else {
-        for (r, b) in room.iter_mut().zip(bytes) {
-            *r = *b;
-        }
+    match n {
+        16.. => copy_ends::<16>(room, bytes),
+        8.. => copy_ends::<8>(room, bytes),
+        4.. => copy_ends::<4>(room, bytes),
+        _ => room.iter_mut().zip(bytes).for_each(|(r, b)| *r = *b),
     }
     out.truncate(start + n);
+}
+
+/// `bytes` (W to 2W long) into the front of `room` as two copies of W
+/// bytes, the first and the last W, which overlap where `bytes` is
+/// shorter than 2W (the shared bytes are the same).
+#[inline(always)]
+fn copy_ends<const W: usize>(room: &mut [u8], bytes: &[u8]) {
+    let n = bytes.len();
+    room[..W].copy_from_slice(&bytes[..W]);
+    room[n - W..n].copy_from_slice(&bytes[n - W..]);
 }
 
 /// At an exact tie between two shortest candidates the formatter may round to even
